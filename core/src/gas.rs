@@ -1,0 +1,1 @@
+//! Ideal-gas processes, cycles and measured p-V loops.

@@ -1,0 +1,38 @@
+//! # heatbound
+//!
+//! The computation behind heatbound: a `no_std`, heap-free library that turns
+//! the readings of a heat-engine test rig into the figures a test engineer
+//! needs live — how much of the heat becomes work, how far that is from the
+//! Carnot bound of the two temperatures, and how much entropy the rig
+//! generates (and so how much work is lost, by Gouy–Stodola).
+//!
+//! The same code runs on the controller beside the rig, in the
+//! software-in-the-loop simulation, in the emulator and in the host tool's
+//! offline replay.
+//!
+//! ```text
+//! sensors --> sensor (ITS-90, IEC 60751, calorimetry, shaft power)
+//!         --> monitor (window + run totals, O(1) per sample) --> alarm
+//! design:     gas (ideal-gas processes, cycles, p-V loops)
+//! ```
+//!
+//! Units are SI throughout and carried in names (`t_hot_k`, `heat_in_w`);
+//! temperatures are kelvin inside the library, with °C only at the sensor edge.
+//!
+//! ## Features
+//! - `std`: marks host builds; nothing in the computation depends on it.
+//! - `defmt`: derives `defmt::Format` on public types for firmware logging.
+#![cfg_attr(not(any(test, feature = "std")), no_std)]
+#![deny(unsafe_code)]
+#![warn(missing_docs)]
+
+pub mod gas;
+pub mod sensor;
+
+/// The molar gas constant R in J/(mol·K): N_A·k with both defining constants
+/// exact in the 2019 SI (CODATA 2018, unchanged in 2022).
+pub const MOLAR_GAS_CONSTANT: f64 = 8.314_462_618_153_24;
+
+/// The offset between the Celsius and kelvin scales, exact by the SI
+/// definition of the degree Celsius.
+pub const ZERO_CELSIUS_K: f64 = 273.15;

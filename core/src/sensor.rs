@@ -1,0 +1,1 @@
+//! Sensor conversion and channel health.
