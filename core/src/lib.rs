@@ -26,7 +26,11 @@
 #![deny(unsafe_code)]
 #![warn(missing_docs)]
 
+pub mod alarm;
+pub mod config;
 pub mod gas;
+pub mod monitor;
+pub mod num;
 pub mod sensor;
 
 /// The molar gas constant R in J/(mol·K): N_A·k with both defining constants

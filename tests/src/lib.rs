@@ -9,5 +9,9 @@
 /// when both are zero-ish. Used by the suites to state tolerances uniformly.
 pub fn rel_diff(a: f64, b: f64) -> f64 {
     let scale = a.abs().max(b.abs());
-    if scale < 1e-300 { (a - b).abs() } else { (a - b).abs() / scale }
+    if scale < 1e-300 {
+        (a - b).abs()
+    } else {
+        (a - b).abs() / scale
+    }
 }

@@ -1,0 +1,649 @@
+//! Alarms: the rules that warn a test engineer, and their state machines.
+//!
+//! ```text
+//! Monitor --AlarmInputs--> AlarmSet::update(t_ms) --> Events, trip_active()
+//! ```
+//!
+//! Each rule turns the live window figures into one of three verdicts:
+//! above its limit (*raise*), below its limit by more than the deadband
+//! (*clear*), or in between (*hold*). A per-rule state machine then applies
+//! the ISA-18.2 / IEC 62682 behaviours: on-delay, off-delay, deadband,
+//! latching with acknowledge, and severity. Time is the sample time passed
+//! in, never a clock, so replay, simulation and firmware behave identically.
+//!
+//! The second-law rules compare against k·u, the expanded uncertainty, so a
+//! reading that is beyond the bound only by less than its own measurement
+//! uncertainty does not raise them.
+//!
+//! These alarms are monitoring aids, not a safety-rated interlock: hardwired
+//! cut-outs and relief devices must stay in place.
+
+use serde::{Deserialize, Serialize};
+
+use crate::config::{Alarms as AlarmConfig, RigConfig};
+use crate::monitor::{Faults, Metrics};
+use crate::num::Real;
+
+/// The alarm rules. Their ids ([`RuleId::as_str`]) are part of the interface.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[serde(rename_all = "snake_case")]
+#[repr(u8)]
+pub enum RuleId {
+    /// `η − η_C > k·u(margin)`: readings are physically impossible.
+    BeyondCarnot = 0,
+    /// `σ̇ < −k·u(σ̇)`: the same fault, seen through the entropy account.
+    NegativeEntropyProduction = 1,
+    /// `η/η_C >` the configured fraction: implausibly close to the bound.
+    NearCarnot = 2,
+    /// `Q_loss < −k·u(Q_loss)` with heat out measured: more energy leaves than enters.
+    EnergyBalance = 3,
+    /// `T_hot >` the configured maximum: a rig limit.
+    OverTemperature = 4,
+    /// A channel is invalid, stuck or stale for longer than the rule's delay.
+    SensorFault = 5,
+}
+
+impl RuleId {
+    /// Number of rules.
+    pub const COUNT: usize = 6;
+    /// Every rule, in index order.
+    pub const ALL: [RuleId; RuleId::COUNT] = [
+        RuleId::BeyondCarnot,
+        RuleId::NegativeEntropyProduction,
+        RuleId::NearCarnot,
+        RuleId::EnergyBalance,
+        RuleId::OverTemperature,
+        RuleId::SensorFault,
+    ];
+
+    /// Position in per-rule arrays and the bit in an alarm bit mask.
+    pub const fn index(self) -> usize {
+        self as usize
+    }
+
+    /// The rule from its index, if there is one.
+    pub const fn from_index(index: usize) -> Option<RuleId> {
+        if index < Self::COUNT {
+            Some(Self::ALL[index])
+        } else {
+            None
+        }
+    }
+
+    /// The rule's id as used in reports, JSON and `rig.toml`.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            RuleId::BeyondCarnot => "beyond_carnot",
+            RuleId::NegativeEntropyProduction => "negative_entropy_production",
+            RuleId::NearCarnot => "near_carnot",
+            RuleId::EnergyBalance => "energy_balance",
+            RuleId::OverTemperature => "over_temperature",
+            RuleId::SensorFault => "sensor_fault",
+        }
+    }
+
+    /// The rule with this id.
+    ///
+    /// ```
+    /// use heatbound::alarm::RuleId;
+    /// assert_eq!(RuleId::parse("beyond_carnot"), Some(RuleId::BeyondCarnot));
+    /// assert_eq!(RuleId::parse("nope"), None);
+    /// ```
+    pub fn parse(id: &str) -> Option<RuleId> {
+        Self::ALL.into_iter().find(|r| r.as_str() == id)
+    }
+
+    /// Severity unless configured otherwise.
+    pub const fn default_severity(self) -> Severity {
+        match self {
+            RuleId::BeyondCarnot | RuleId::NegativeEntropyProduction | RuleId::OverTemperature => {
+                Severity::Trip
+            }
+            RuleId::EnergyBalance | RuleId::SensorFault => Severity::Warning,
+            RuleId::NearCarnot => Severity::Advisory,
+        }
+    }
+
+    /// Deadband unless configured otherwise: 1 % of the scale of the rule's
+    /// quantity (a typical starting deadband, from memory).
+    pub fn default_deadband(self, hot_max_k: f64) -> f64 {
+        match self {
+            RuleId::OverTemperature => 0.01 * hot_max_k,
+            RuleId::SensorFault => 0.0,
+            _ => 0.01,
+        }
+    }
+
+    /// The unit the deadband is given in.
+    pub const fn deadband_unit(self) -> &'static str {
+        match self {
+            RuleId::BeyondCarnot => "efficiency (or COP) points",
+            RuleId::NegativeEntropyProduction => "fraction of the entropy inflow ∫q_in/T_hot",
+            RuleId::NearCarnot => "fraction of the Carnot bound",
+            RuleId::EnergyBalance => "fraction of Q_in",
+            RuleId::OverTemperature => "kelvin",
+            RuleId::SensorFault => "unused",
+        }
+    }
+
+    /// The `rig.toml` keys of the rule's deadband and delays, for error messages.
+    pub const fn config_keys(self) -> [&'static str; 3] {
+        match self {
+            RuleId::BeyondCarnot => [
+                "alarms.beyond_carnot.deadband",
+                "alarms.beyond_carnot.on_delay_s",
+                "alarms.beyond_carnot.off_delay_s",
+            ],
+            RuleId::NegativeEntropyProduction => [
+                "alarms.negative_entropy_production.deadband",
+                "alarms.negative_entropy_production.on_delay_s",
+                "alarms.negative_entropy_production.off_delay_s",
+            ],
+            RuleId::NearCarnot => [
+                "alarms.near_carnot.deadband",
+                "alarms.near_carnot.on_delay_s",
+                "alarms.near_carnot.off_delay_s",
+            ],
+            RuleId::EnergyBalance => [
+                "alarms.energy_balance.deadband",
+                "alarms.energy_balance.on_delay_s",
+                "alarms.energy_balance.off_delay_s",
+            ],
+            RuleId::OverTemperature => [
+                "alarms.over_temperature.deadband",
+                "alarms.over_temperature.on_delay_s",
+                "alarms.over_temperature.off_delay_s",
+            ],
+            RuleId::SensorFault => [
+                "alarms.sensor_fault.deadband",
+                "alarms.sensor_fault.on_delay_s",
+                "alarms.sensor_fault.off_delay_s",
+            ],
+        }
+    }
+}
+
+impl core::fmt::Display for RuleId {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// How serious an alarm is. An active `Trip` drives the trip output.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[serde(rename_all = "snake_case")]
+pub enum Severity {
+    /// Worth a look.
+    Advisory,
+    /// Needs attention.
+    Warning,
+    /// Drives the trip output.
+    Trip,
+}
+
+impl Severity {
+    /// The name used in reports and `rig.toml`.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            Severity::Advisory => "advisory",
+            Severity::Warning => "warning",
+            Severity::Trip => "trip",
+        }
+    }
+}
+
+impl core::fmt::Display for Severity {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// What happened to an alarm.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[serde(rename_all = "snake_case")]
+pub enum EventKind {
+    /// The condition held for the on-delay.
+    Raised,
+    /// The clear condition held for the off-delay (and, if latching, the
+    /// alarm was acknowledged).
+    Cleared,
+    /// An operator acknowledged the alarm.
+    Acknowledged,
+}
+
+impl EventKind {
+    /// The name used in reports and JSON.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            EventKind::Raised => "raised",
+            EventKind::Cleared => "cleared",
+            EventKind::Acknowledged => "acknowledged",
+        }
+    }
+}
+
+impl core::fmt::Display for EventKind {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// One alarm event, stamped with sample time.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Event {
+    /// Sample time of the event, milliseconds.
+    pub t_ms: u32,
+    /// Which rule.
+    pub rule: RuleId,
+    /// What happened.
+    pub kind: EventKind,
+    /// The rule's severity.
+    pub severity: Severity,
+}
+
+/// The events of one update or acknowledge: at most two per rule.
+pub type Events = heapless::Vec<Event, { RuleId::COUNT * 2 }>;
+
+/// The state of one rule.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum AlarmState {
+    /// Not active.
+    #[default]
+    Normal,
+    /// The condition holds; waiting out the on-delay since `since_ms`.
+    Pending {
+        /// When the condition began.
+        since_ms: u32,
+    },
+    /// Raised.
+    Active {
+        /// Whether an operator has acknowledged it.
+        acked: bool,
+    },
+    /// Raised; the clear condition holds and the off-delay runs since `since_ms`.
+    Clearing {
+        /// When the clear condition began.
+        since_ms: u32,
+        /// Whether an operator has acknowledged it.
+        acked: bool,
+    },
+    /// Latching rule whose condition has cleared: held until acknowledged.
+    Unacknowledged,
+}
+
+impl AlarmState {
+    /// Whether the alarm is annunciated (raised and not yet reset).
+    pub const fn is_active(self) -> bool {
+        matches!(
+            self,
+            AlarmState::Active { .. } | AlarmState::Clearing { .. } | AlarmState::Unacknowledged
+        )
+    }
+}
+
+impl core::fmt::Display for AlarmState {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(match self {
+            AlarmState::Normal => "normal",
+            AlarmState::Pending { .. } => "pending",
+            AlarmState::Active { acked: false } => "active",
+            AlarmState::Active { acked: true } => "active, acknowledged",
+            AlarmState::Clearing { .. } => "clearing",
+            AlarmState::Unacknowledged => "cleared, awaiting acknowledge",
+        })
+    }
+}
+
+/// A rule's verdict on the current figures.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Verdict {
+    /// Beyond the limit. `since_ms` backdates the start of the condition when
+    /// the evidence is older than this update (a channel that has been
+    /// invalid since then).
+    Raise {
+        /// When the condition began, if earlier than now.
+        since_ms: Option<u32>,
+    },
+    /// Inside the deadband: neither raise nor clear.
+    Hold,
+    /// Clear of the limit by more than the deadband, or not evaluable.
+    Clear,
+}
+
+/// What the rules look at: the live window figures, the latest hot-side
+/// temperature and the channel faults.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct AlarmInputs<R: Real> {
+    /// The sliding window's figures, with uncertainties.
+    pub window: Metrics<R>,
+    /// Latest valid hot-side temperature, kelvin.
+    pub t_hot_k: Option<R>,
+    /// Channel faults.
+    pub faults: Faults,
+}
+
+/// Turns `x` (positive = beyond the limit) into a verdict with `deadband`.
+fn level<R: Real>(x: Option<R>, deadband: R) -> Verdict {
+    match x {
+        Some(x) if x > R::ZERO => Verdict::Raise { since_ms: None },
+        Some(x) if x >= -deadband => Verdict::Hold,
+        _ => Verdict::Clear,
+    }
+}
+
+/// The limits the rules compare against, taken from the configuration.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Limits {
+    /// Coverage factor k of the second-law rules.
+    pub coverage_factor: f64,
+    /// `near_carnot` fraction.
+    pub near_carnot_fraction: f64,
+    /// `over_temperature` limit, kelvin.
+    pub hot_max_k: f64,
+    /// Deadband of each rule, in its unit.
+    pub deadband: [f64; RuleId::COUNT],
+}
+
+impl Limits {
+    /// The limits of `config`.
+    pub fn new(config: &RigConfig) -> Self {
+        let a: &AlarmConfig = &config.alarms;
+        Self {
+            coverage_factor: config.coverage_factor,
+            near_carnot_fraction: a.near_carnot_fraction,
+            hot_max_k: a.hot_max_k,
+            deadband: RuleId::ALL.map(|id| a.rule(id).deadband),
+        }
+    }
+
+    /// Each rule's verdict on `inputs`.
+    ///
+    /// `x` for each rule is the distance beyond its limit, in the rule's
+    /// deadband unit ([`RuleId::deadband_unit`]).
+    pub fn verdicts<R: Real>(&self, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
+        verdicts(self, inputs)
+    }
+}
+
+fn verdicts<R: Real>(limits: &Limits, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
+    let k = R::from_f64(limits.coverage_factor);
+    let db = |id: RuleId| R::from_f64(limits.deadband[id.index()]);
+    let m = &inputs.window;
+
+    // η − η_C − k·u(margin), with margin = η_C − η (or COP_C − COP).
+    let beyond = match (m.carnot_margin, m.u_carnot_margin) {
+        (Some(margin), Some(u)) => Some(-margin - k * u),
+        _ => None,
+    };
+    // (−σ̇ − k·u(σ̇)) relative to the entropy inflow rate, so the deadband is
+    // rig-independent.
+    let negative_entropy = match (
+        m.entropy_rate_w_per_k,
+        m.u_entropy_rate_w_per_k,
+        m.entropy_in_rate_w_per_k,
+    ) {
+        (Some(s), Some(u), Some(inflow)) if inflow > R::ZERO => Some((-s - k * u) / inflow),
+        _ => None,
+    };
+    let near = m
+        .second_law_efficiency
+        .map(|f| f - R::from_f64(limits.near_carnot_fraction));
+    let balance = match (m.balance_residual_j, m.u_balance_residual_j) {
+        (Some(l), Some(u)) if m.heat_in_j > R::ZERO => Some((-l - k * u) / m.heat_in_j),
+        _ => None,
+    };
+    let over = inputs.t_hot_k.map(|t| t - R::from_f64(limits.hot_max_k));
+
+    let sensor = match inputs.faults.since_ms {
+        Some(since) => Verdict::Raise {
+            since_ms: Some(since),
+        },
+        None => Verdict::Clear,
+    };
+
+    [
+        level(beyond, db(RuleId::BeyondCarnot)),
+        level(negative_entropy, db(RuleId::NegativeEntropyProduction)),
+        level(near, db(RuleId::NearCarnot)),
+        level(balance, db(RuleId::EnergyBalance)),
+        level(over, db(RuleId::OverTemperature)),
+        sensor,
+    ]
+}
+
+/// Seconds to whole milliseconds, saturating.
+fn ms(s: f64) -> u32 {
+    let ms = s * 1000.0;
+    if ms >= u32::MAX as f64 {
+        u32::MAX
+    } else if ms > 0.0 {
+        ms as u32
+    } else {
+        0
+    }
+}
+
+/// The state machines of every rule.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct AlarmSet {
+    limits: Limits,
+    states: [AlarmState; RuleId::COUNT],
+    enabled: [bool; RuleId::COUNT],
+    severity: [Severity; RuleId::COUNT],
+    latching: [bool; RuleId::COUNT],
+    on_delay_ms: [u32; RuleId::COUNT],
+    off_delay_ms: [u32; RuleId::COUNT],
+}
+
+impl AlarmSet {
+    /// Every rule in `Normal`, with the settings of `config`.
+    pub fn new(config: &RigConfig) -> Self {
+        let rule = |id: RuleId| config.alarms.rule(id);
+        Self {
+            limits: Limits::new(config),
+            states: [AlarmState::Normal; RuleId::COUNT],
+            enabled: RuleId::ALL.map(|id| rule(id).enabled),
+            severity: RuleId::ALL.map(|id| rule(id).severity),
+            latching: RuleId::ALL.map(|id| rule(id).latching),
+            on_delay_ms: RuleId::ALL.map(|id| ms(rule(id).on_delay_s)),
+            off_delay_ms: RuleId::ALL.map(|id| ms(rule(id).off_delay_s)),
+        }
+    }
+
+    /// Evaluates every rule on `inputs` at sample time `t_ms` and advances
+    /// the state machines; returns the events this caused.
+    ///
+    /// ```
+    /// use heatbound::alarm::{AlarmSet, EventKind, RuleId};
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::{Monitor, Sample};
+    ///
+    /// let config = RigConfig::default();
+    /// let mut monitor: Monitor<64> = Monitor::new(&config).unwrap();
+    /// let mut alarms = AlarmSet::new(&config);
+    /// let mut raised = None;
+    /// for i in 0..30u32 {
+    ///     // 500 W in, 300 W out between 600 K and 300 K: 60 % against a 50 % bound.
+    ///     let s = Sample { t_ms: i * 1000, t_hot_k: 600.0, t_cold_k: 300.0,
+    ///                      heat_in_w: 500.0, work_w: 300.0, heat_out_w: None };
+    ///     monitor.push(&s);
+    ///     for e in alarms.update(s.t_ms, &monitor.alarm_inputs()) {
+    ///         if e.rule == RuleId::BeyondCarnot && e.kind == EventKind::Raised {
+    ///             raised = Some(e.t_ms);
+    ///         }
+    ///     }
+    /// }
+    /// // The default on-delay is 5 s of sample time after the first window figure.
+    /// assert_eq!(raised, Some(6000));
+    /// assert!(alarms.trip_active());
+    /// ```
+    pub fn update<R: Real>(&mut self, t_ms: u32, inputs: &AlarmInputs<R>) -> Events {
+        let verdicts = verdicts(&self.limits, inputs);
+        self.apply(t_ms, &verdicts)
+    }
+
+    /// The limits the rules compare against.
+    pub fn limits(&self) -> &Limits {
+        &self.limits
+    }
+
+    /// Advances the rules with verdicts computed elsewhere (for example by
+    /// [`Limits::verdicts`] on recomputed figures); returns the events.
+    pub fn apply(&mut self, t_ms: u32, verdicts: &[Verdict; RuleId::COUNT]) -> Events {
+        let mut events = Events::new();
+        for id in RuleId::ALL {
+            if let Some(kind) = self.step(id, t_ms, verdicts[id.index()]) {
+                // Capacity is two per rule; one step emits at most one.
+                let _ = events.push(self.event(id, t_ms, kind));
+            }
+        }
+        events
+    }
+
+    fn event(&self, rule: RuleId, t_ms: u32, kind: EventKind) -> Event {
+        Event {
+            t_ms,
+            rule,
+            kind,
+            severity: self.severity[rule.index()],
+        }
+    }
+
+    fn step(&mut self, id: RuleId, t: u32, verdict: Verdict) -> Option<EventKind> {
+        let i = id.index();
+        if !self.enabled[i] {
+            self.states[i] = AlarmState::Normal;
+            return None;
+        }
+        let on = self.on_delay_ms[i];
+        let off = self.off_delay_ms[i];
+        let (next, event) = match (self.states[i], verdict) {
+            (AlarmState::Normal, Verdict::Raise { since_ms }) => {
+                let since = since_ms.unwrap_or(t);
+                if t.wrapping_sub(since) >= on {
+                    (AlarmState::Active { acked: false }, Some(EventKind::Raised))
+                } else {
+                    (AlarmState::Pending { since_ms: since }, None)
+                }
+            }
+            (AlarmState::Normal, _) => (AlarmState::Normal, None),
+            (AlarmState::Pending { since_ms }, Verdict::Raise { .. }) => {
+                if t.wrapping_sub(since_ms) >= on {
+                    (AlarmState::Active { acked: false }, Some(EventKind::Raised))
+                } else {
+                    (AlarmState::Pending { since_ms }, None)
+                }
+            }
+            // The on-delay needs the condition to hold without a break.
+            (AlarmState::Pending { .. }, _) => (AlarmState::Normal, None),
+            (AlarmState::Active { acked }, Verdict::Clear) => {
+                if off == 0 {
+                    self.reset(i, acked)
+                } else {
+                    (AlarmState::Clearing { since_ms: t, acked }, None)
+                }
+            }
+            (AlarmState::Active { acked }, _) => (AlarmState::Active { acked }, None),
+            (AlarmState::Clearing { since_ms, acked }, Verdict::Clear) => {
+                if t.wrapping_sub(since_ms) >= off {
+                    self.reset(i, acked)
+                } else {
+                    (AlarmState::Clearing { since_ms, acked }, None)
+                }
+            }
+            (AlarmState::Clearing { acked, .. }, _) => (AlarmState::Active { acked }, None),
+            // Still annunciated: a returning condition keeps it so, silently.
+            (AlarmState::Unacknowledged, Verdict::Raise { .. }) => {
+                (AlarmState::Active { acked: false }, None)
+            }
+            (AlarmState::Unacknowledged, _) => (AlarmState::Unacknowledged, None),
+        };
+        self.states[i] = next;
+        event
+    }
+
+    /// The off-delay has run out: reset, unless latching and unacknowledged.
+    fn reset(&self, i: usize, acked: bool) -> (AlarmState, Option<EventKind>) {
+        if self.latching[i] && !acked {
+            (AlarmState::Unacknowledged, None)
+        } else {
+            (AlarmState::Normal, Some(EventKind::Cleared))
+        }
+    }
+
+    /// An operator acknowledges `rule` at `t_ms`. A latched alarm whose
+    /// condition has already cleared resets here.
+    ///
+    /// Returns the events: `acknowledged`, then `cleared` if it reset.
+    /// Acknowledging an alarm that is not active, or already acknowledged,
+    /// does nothing.
+    pub fn acknowledge(&mut self, rule: RuleId, t_ms: u32) -> Events {
+        let i = rule.index();
+        let mut events = Events::new();
+        let (next, reset) = match self.states[i] {
+            AlarmState::Active { acked: false } => (AlarmState::Active { acked: true }, false),
+            AlarmState::Clearing {
+                since_ms,
+                acked: false,
+            } => (
+                AlarmState::Clearing {
+                    since_ms,
+                    acked: true,
+                },
+                false,
+            ),
+            AlarmState::Unacknowledged => (AlarmState::Normal, true),
+            _ => return events,
+        };
+        self.states[i] = next;
+        let _ = events.push(self.event(rule, t_ms, EventKind::Acknowledged));
+        if reset {
+            let _ = events.push(self.event(rule, t_ms, EventKind::Cleared));
+        }
+        events
+    }
+
+    /// Acknowledges every active alarm.
+    pub fn acknowledge_all(&mut self, t_ms: u32) -> Events {
+        let mut all = Events::new();
+        for id in RuleId::ALL {
+            for e in self.acknowledge(id, t_ms) {
+                let _ = all.push(e);
+            }
+        }
+        all
+    }
+
+    /// The state of one rule.
+    pub fn state(&self, rule: RuleId) -> AlarmState {
+        self.states[rule.index()]
+    }
+
+    /// Whether `rule` is annunciated.
+    pub fn is_active(&self, rule: RuleId) -> bool {
+        self.states[rule.index()].is_active()
+    }
+
+    /// Active rules as a bit mask, bit i = [`RuleId::index`].
+    pub fn active_mask(&self) -> u8 {
+        RuleId::ALL
+            .iter()
+            .filter(|id| self.is_active(**id))
+            .fold(0, |m, id| m | (1 << id.index()))
+    }
+
+    /// Whether any active rule has severity `trip`: drive the trip output from this.
+    pub fn trip_active(&self) -> bool {
+        RuleId::ALL
+            .iter()
+            .any(|id| self.is_active(*id) && self.severity[id.index()] == Severity::Trip)
+    }
+}

@@ -1,1 +1,0 @@
-//! Ideal-gas processes, cycles and measured p-V loops.

@@ -1,0 +1,1366 @@
+//! The monitor: samples in, second-law figures out, O(1) per sample.
+//!
+//! ```text
+//! conversion --> Sample --> Monitor::push --> window + run integrals
+//!                                    |--> Monitor::alarm_inputs --> AlarmSet::update
+//!                                    '--> Monitor::window_metrics / totals_metrics (on demand)
+//! ```
+//!
+//! ## Definitions
+//! - Integration is by the trapezoidal rule between consecutive valid samples.
+//!   A spacing longer than `max_gap_s` is not bridged: integration restarts
+//!   after it. Invalid samples are skipped and counted, and their valid
+//!   neighbours are joined when the spacing allows.
+//! - `Q_in = ∫q_in dt`, `W = ∫w dt`, `Q_out = ∫q_out dt` when heat out is
+//!   measured, else `Q_in − W`.
+//! - Heat-weighted mean temperatures `T_h = Q_in / ∫(q_in/T_hot) dt` and
+//!   `T_c = Q_out / ∫(q_out/T_cold) dt`.
+//! - `η = W/Q_in`, `η_C = 1 − T_c/T_h`, `η_CA = 1 − √(T_c/T_h)`, margin
+//!   `η_C − η`, second-law efficiency `η/η_C`.
+//! - `S_gen = ∫(q_out/T_cold) dt + Q_loss/T0 − ∫(q_in/T_hot) dt`, with
+//!   `Q_loss = Q_in − W − Q_out` only when heat out is measured; `σ̇ = S_gen`
+//!   per second of integrated time; exergy destroyed `T0·S_gen` (Gouy–Stodola).
+//!   `T0` is the configured ambient, else the cold-side mean.
+//! - Heat pump and cooler: COP `Q_in/W` (heat delivered) or `Q_out/W` (heat
+//!   drawn) against `T_h/(T_h − T_c)` or `T_c/(T_h − T_c)`; the entropy
+//!   account changes sign with the direction of the heat flows.
+//! - A figure whose denominator is ≤ 0 is `None`, never NaN or inf.
+//!
+//! ## Uncertainty (GUM, JCGM 100:2008, first-order law of propagation)
+//! Each channel's standard uncertainty is a *systematic* error: an offset of
+//! the hot or cold temperature, or a scale error of a power channel, shared
+//! by every sample. Such errors do not average down over a window. The
+//! monitor therefore keeps, beside the plain integrals, the sensitivities
+//! `∫q_in/T_hot² dt` and `∫q_out/T_cold² dt` (and, with heat out inferred,
+//! `∫q_in/T_cold dt` and `∫w/T_cold dt` separately), from which the partial
+//! derivative of every figure with respect to each of the five systematic
+//! errors follows exactly. Correlations are kept because each error's
+//! partials are combined before squaring: `u(margin)` is not
+//! `√(u(η_C)² + u(η)²)`. A configured `T0` is exact; the default `T0`, the
+//! cold-side mean, is itself measured and is propagated like `T_c`.
+//!
+//! ## Cost and precision
+//! [`Monitor::push`] adds one interval to the window and to the run totals
+//! and subtracts the interval that leaves the window: no rescan. Sums are
+//! compensated ([`CompensatedSum`]) so a run of weeks at 10 Hz does not
+//! drift. The steady-state test keeps min/max per channel in 8 time buckets
+//! of `duration_s/8`, amortised O(1). The monitor is generic over the
+//! [`Real`] it computes in: `f32` on a controller, `f64` on the host.
+//!
+//! `size_of::<Monitor<64>>()` (f32) is 3 656 bytes on x86-64, and the
+//! [`AlarmSet`](crate::alarm::AlarmSet) adds 192: together well under the
+//! 8 KiB budget (a unit test checks it; `cargo run -p heatbound --example
+//! sizes` prints the figures).
+
+use serde::Serialize;
+
+use crate::alarm::AlarmInputs;
+use crate::config::{Mode, RigConfig, Uncertainty};
+use crate::num::{Accumulator, CompensatedSum, Real, RunningTotal};
+
+/// One reading of every channel, already converted to SI units.
+///
+/// `heat_in_w`, `work_w` and `heat_out_w` follow the sign conventions of
+/// [`Mode`]. `heat_out_w` is `None` when heat out is not measured.
+#[derive(Clone, Copy, Debug, PartialEq, Default, Serialize)]
+pub struct Sample<R = f32> {
+    /// Sample time, milliseconds; wraps after 49.7 days, which is handled.
+    pub t_ms: u32,
+    /// Hot-side temperature, kelvin.
+    pub t_hot_k: R,
+    /// Cold-side temperature, kelvin.
+    pub t_cold_k: R,
+    /// Heat input, watts.
+    pub heat_in_w: R,
+    /// Work, watts.
+    pub work_w: R,
+    /// Heat out, watts, if measured.
+    pub heat_out_w: Option<R>,
+}
+
+/// The channels of a [`Sample`], for faults and steady-state bands.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[serde(rename_all = "snake_case")]
+#[repr(u8)]
+pub enum Channel {
+    /// `t_hot_k`.
+    Hot = 0,
+    /// `t_cold_k`.
+    Cold = 1,
+    /// `heat_in_w`.
+    HeatIn = 2,
+    /// `work_w`.
+    Work = 3,
+    /// `heat_out_w`.
+    HeatOut = 4,
+}
+
+impl Channel {
+    /// Every channel, in bit order.
+    pub const ALL: [Channel; 5] = [
+        Channel::Hot,
+        Channel::Cold,
+        Channel::HeatIn,
+        Channel::Work,
+        Channel::HeatOut,
+    ];
+
+    /// The channel's column name.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            Channel::Hot => "hot",
+            Channel::Cold => "cold",
+            Channel::HeatIn => "heat_in_w",
+            Channel::Work => "work_w",
+            Channel::HeatOut => "heat_out_w",
+        }
+    }
+
+    /// The channel's bit in a fault mask.
+    pub const fn bit(self) -> u8 {
+        1 << (self as u8)
+    }
+}
+
+impl core::fmt::Display for Channel {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Why a sample was not integrated.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum Invalid {
+    /// A reading is NaN or infinite.
+    NonFinite(Channel),
+    /// A temperature is outside the configured plausible range.
+    OutOfRange(Channel),
+    /// Heat out is measured in this run, but the sample has none.
+    MissingHeatOut,
+    /// The sample has the same time stamp as the previous one.
+    RepeatedTime,
+}
+
+impl core::fmt::Display for Invalid {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            Invalid::NonFinite(c) => write!(f, "{c} is not a finite number"),
+            Invalid::OutOfRange(c) => write!(f, "{c} is outside the plausible temperature range"),
+            Invalid::MissingHeatOut => {
+                f.write_str("heat_out_w is missing in a run that measures it")
+            }
+            Invalid::RepeatedTime => f.write_str("time stamp repeats the previous sample's"),
+        }
+    }
+}
+
+/// What [`Monitor::push`] did with a sample.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Pushed {
+    /// Integrated from the previous valid sample.
+    Integrated,
+    /// Valid, and starts integration: the first sample, or the first after a
+    /// gap longer than `max_gap_s`.
+    Started,
+    /// Skipped and counted.
+    Invalid(Invalid),
+}
+
+/// The state of the channels, as the `sensor_fault` rule sees it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Faults {
+    /// Channels invalid in the latest sample, as [`Channel::bit`]s.
+    pub invalid: u8,
+    /// Channels that repeated the same value `stuck_samples` times in a row.
+    pub stuck: u8,
+    /// The latest sample came later than `stale_s` after the one before.
+    pub stale: bool,
+    /// Since when the channels have been faulty, if they are now.
+    pub since_ms: Option<u32>,
+}
+
+impl Faults {
+    /// Whether any channel is faulty.
+    pub const fn any(&self) -> bool {
+        self.since_ms.is_some()
+    }
+}
+
+/// The raw integrals of a window or run: everything the figures are derived
+/// from. These travel on the wire so the host can recompute every figure.
+#[derive(Clone, Copy, Debug, PartialEq, Default, Serialize)]
+pub struct Integrals<R> {
+    /// Integrated time, seconds (gaps excluded).
+    pub duration_s: R,
+    /// `Q_in = ∫q_in dt`, joules.
+    pub heat_in_j: R,
+    /// `W = ∫w dt`, joules.
+    pub work_j: R,
+    /// `Q_out`: `∫q_out dt` if measured, else `Q_in − W`, joules.
+    pub heat_out_j: R,
+    /// Whether heat out was measured.
+    pub heat_out_measured: bool,
+    /// `∫q_in/T_hot dt`, J/K.
+    pub entropy_in_j_per_k: R,
+    /// `∫q_out/T_cold dt`, J/K.
+    pub entropy_out_j_per_k: R,
+    /// `∫q_in/T_hot² dt`, J/K²: sensitivity to a hot-side offset.
+    pub hot_sensitivity: R,
+    /// `∫q_out/T_cold² dt`, J/K²: sensitivity to a cold-side offset.
+    pub cold_sensitivity: R,
+    /// With heat out inferred: `∫q_in/T_cold dt`, J/K (else 0).
+    pub cold_heat_in_j_per_k: R,
+    /// With heat out inferred: `∫w/T_cold dt`, J/K (else 0).
+    pub cold_work_j_per_k: R,
+}
+
+/// What the figures need besides the integrals.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FigureSettings {
+    /// Engine, heat pump or cooler.
+    pub mode: Mode,
+    /// T0, kelvin; `None` = the cold-side mean.
+    pub ambient_k: Option<f64>,
+    /// Standard uncertainties.
+    pub uncertainty: Uncertainty,
+}
+
+impl FigureSettings {
+    /// The settings of `config`.
+    pub fn new(config: &RigConfig) -> Self {
+        Self {
+            mode: config.mode,
+            ambient_k: config.ambient_k,
+            uncertainty: config.uncertainty,
+        }
+    }
+}
+
+/// Every figure of a window or run. `None` means *not available*.
+///
+/// `u_*` are standard uncertainties (coverage k = 1); multiply by the
+/// configured coverage factor for expanded ones.
+#[derive(Clone, Copy, Debug, PartialEq, Default, Serialize)]
+pub struct Metrics<R> {
+    /// Integrated time, seconds.
+    pub duration_s: R,
+    /// `Q_in`, joules.
+    pub heat_in_j: R,
+    /// `W`, joules.
+    pub work_j: R,
+    /// `Q_out`, joules (measured or inferred).
+    pub heat_out_j: R,
+    /// Energy-balance residual, joules: `Q_in − W − Q_out` for an engine,
+    /// `W + Q_out − Q_in` reversed; only with heat out measured.
+    pub balance_residual_j: Option<R>,
+    /// `η = W/Q_in` (engine).
+    pub efficiency: Option<R>,
+    /// Coefficient of performance (heat pump: `Q_in/W`, cooler: `Q_out/W`).
+    pub cop: Option<R>,
+    /// Heat-weighted mean hot-side temperature `T_h`, kelvin.
+    pub hot_mean_k: Option<R>,
+    /// Heat-weighted mean cold-side temperature `T_c`, kelvin.
+    pub cold_mean_k: Option<R>,
+    /// `η_C = 1 − T_c/T_h` (engine).
+    pub carnot_efficiency: Option<R>,
+    /// Carnot COP: `T_h/(T_h − T_c)` or `T_c/(T_h − T_c)`.
+    pub carnot_cop: Option<R>,
+    /// `η_CA = 1 − √(T_c/T_h)` (engine).
+    pub curzon_ahlborn_efficiency: Option<R>,
+    /// `η_C − η` (or `COP_C − COP`).
+    pub carnot_margin: Option<R>,
+    /// `η/η_C` (or `COP/COP_C`).
+    pub second_law_efficiency: Option<R>,
+    /// `S_gen`, J/K.
+    pub entropy_generated_j_per_k: Option<R>,
+    /// `σ̇ = S_gen / duration`, W/K.
+    pub entropy_rate_w_per_k: Option<R>,
+    /// Entropy inflow rate `∫(q_in/T_hot) dt / duration`, W/K: the scale of `σ̇`.
+    pub entropy_in_rate_w_per_k: Option<R>,
+    /// Exergy destroyed `T0·S_gen`, joules.
+    pub exergy_destroyed_j: Option<R>,
+    /// T0 used, kelvin.
+    pub ambient_k: Option<R>,
+    /// u(η).
+    pub u_efficiency: Option<R>,
+    /// u(COP).
+    pub u_cop: Option<R>,
+    /// u(η_C).
+    pub u_carnot_efficiency: Option<R>,
+    /// u(COP_C).
+    pub u_carnot_cop: Option<R>,
+    /// u(margin).
+    pub u_carnot_margin: Option<R>,
+    /// u(S_gen), J/K.
+    pub u_entropy_generated_j_per_k: Option<R>,
+    /// u(σ̇), W/K.
+    pub u_entropy_rate_w_per_k: Option<R>,
+    /// u(balance residual), joules.
+    pub u_balance_residual_j: Option<R>,
+}
+
+/// `Some(x)` if `x` is finite.
+#[inline]
+fn fin<R: Real>(x: R) -> Option<R> {
+    if x.is_finite() { Some(x) } else { None }
+}
+
+/// `a / b` if `b > 0` and the quotient is finite.
+#[inline]
+fn ratio<R: Real>(a: R, b: R) -> Option<R> {
+    if b > R::ZERO { fin(a / b) } else { None }
+}
+
+/// Partial derivatives of one figure with respect to the five systematic
+/// errors: hot offset, cold offset (K), heat-in, work and heat-out scale.
+#[derive(Clone, Copy, Debug, Default)]
+struct Partials<R> {
+    hot: R,
+    cold: R,
+    heat_in: R,
+    work: R,
+    heat_out: R,
+}
+
+impl<R: Real> Partials<R> {
+    fn sub(self, o: Self) -> Self {
+        Self {
+            hot: self.hot - o.hot,
+            cold: self.cold - o.cold,
+            heat_in: self.heat_in - o.heat_in,
+            work: self.work - o.work,
+            heat_out: self.heat_out - o.heat_out,
+        }
+    }
+
+    fn scale(self, s: R) -> Self {
+        Self {
+            hot: self.hot * s,
+            cold: self.cold * s,
+            heat_in: self.heat_in * s,
+            work: self.work * s,
+            heat_out: self.heat_out * s,
+        }
+    }
+
+    /// `√(Σ (∂f/∂x_i · u_i)²)`, GUM eq. (10) for uncorrelated inputs.
+    fn combine(self, u: &Uncertainty) -> Option<R> {
+        let t = |d: R, ui: f64| {
+            let x = d * R::from_f64(ui);
+            x * x
+        };
+        fin((t(self.hot, u.hot_k)
+            + t(self.cold, u.cold_k)
+            + t(self.heat_in, u.heat_in_rel)
+            + t(self.work, u.work_rel)
+            + t(self.heat_out, u.heat_out_rel))
+        .sqrt())
+    }
+}
+
+impl<R: Real> Integrals<R> {
+    /// Every figure of DESIGN §4 from these integrals.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::{FigureSettings, Integrals};
+    /// // A steady engine for 1 s: 1000 W in, 150 W out, 600 K and 300 K.
+    /// let i = Integrals {
+    ///     duration_s: 1.0, heat_in_j: 1000.0, work_j: 150.0, heat_out_j: 850.0,
+    ///     heat_out_measured: false,
+    ///     entropy_in_j_per_k: 1000.0 / 600.0, entropy_out_j_per_k: 850.0 / 300.0,
+    ///     hot_sensitivity: 1000.0 / 360000.0, cold_sensitivity: 850.0 / 90000.0,
+    ///     cold_heat_in_j_per_k: 1000.0 / 300.0, cold_work_j_per_k: 150.0 / 300.0,
+    /// };
+    /// let m = i.metrics(&FigureSettings::new(&RigConfig::default()));
+    /// assert!((m.entropy_generated_j_per_k.unwrap() - 1.16667_f64).abs() < 1e-5);
+    /// assert!((m.exergy_destroyed_j.unwrap() - 350.0).abs() < 1e-9);
+    /// assert_eq!(m.carnot_efficiency, Some(0.5));
+    /// ```
+    pub fn metrics(&self, settings: &FigureSettings) -> Metrics<R> {
+        let u = &settings.uncertainty;
+        let mode = settings.mode;
+        let measured = self.heat_out_measured;
+        let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
+        let (si, so) = (self.entropy_in_j_per_k, self.entropy_out_j_per_k);
+        let (si2, so2) = (self.hot_sensitivity, self.cold_sensitivity);
+        let (ca, cb) = (self.cold_heat_in_j_per_k, self.cold_work_j_per_k);
+        let zero = R::ZERO;
+
+        let mut m = Metrics {
+            duration_s: self.duration_s,
+            heat_in_j: qi,
+            work_j: w,
+            heat_out_j: qo,
+            ..Metrics::default()
+        };
+
+        // Mean temperatures and their partials.
+        let th = ratio(qi, si);
+        let tc = ratio(qo, so);
+        m.hot_mean_k = th;
+        m.cold_mean_k = tc;
+        let d_th = Partials {
+            hot: ratio(qi * si2, si * si).unwrap_or(zero),
+            ..Partials::default()
+        };
+        let d_tc = match ratio(R::ONE, so * so) {
+            Some(inv) if measured => Partials {
+                cold: qo * so2 * inv,
+                ..Partials::default()
+            },
+            Some(inv) => Partials {
+                cold: qo * so2 * inv,
+                heat_in: (qi * so - qo * ca) * inv,
+                work: (qo * cb - w * so) * inv,
+                ..Partials::default()
+            },
+            None => Partials::default(),
+        };
+
+        // Performance and its bound.
+        let (perf, d_perf, bound, d_bound) = match (mode, th, tc) {
+            (Mode::Engine, _, _) => {
+                let eta = ratio(w, qi);
+                let d_eta = eta.map(|e| Partials {
+                    heat_in: -e,
+                    work: e,
+                    ..Partials::default()
+                });
+                let (carnot, d_carnot) = match (th, tc) {
+                    (Some(th), Some(tc)) if th > tc => {
+                        let d = d_tc.scale(-R::ONE / th).sub(d_th.scale(-tc / (th * th)));
+                        (fin(R::ONE - tc / th), Some(d))
+                    }
+                    _ => (None, None),
+                };
+                m.efficiency = eta;
+                m.carnot_efficiency = carnot;
+                m.curzon_ahlborn_efficiency = match (th, tc) {
+                    (Some(th), Some(tc)) if th > tc => fin(R::ONE - (tc / th).sqrt()),
+                    _ => None,
+                };
+                (eta, d_eta, carnot, d_carnot)
+            }
+            (_, th, tc) => {
+                let cop = match mode {
+                    Mode::HeatPump => ratio(qi, w),
+                    _ => ratio(qo, w),
+                };
+                let d_cop = cop.map(|c| match (mode, measured) {
+                    (Mode::HeatPump, _) => Partials {
+                        heat_in: c,
+                        work: -c,
+                        ..Partials::default()
+                    },
+                    (_, true) => Partials {
+                        heat_out: c,
+                        work: -c,
+                        ..Partials::default()
+                    },
+                    (_, false) => {
+                        let r = ratio(qi, w).unwrap_or(zero);
+                        Partials {
+                            heat_in: r,
+                            work: -r,
+                            ..Partials::default()
+                        }
+                    }
+                });
+                let (carnot, d_carnot) = match (th, tc) {
+                    (Some(th), Some(tc)) if th > tc => {
+                        let dt = th - tc;
+                        let top = if mode == Mode::HeatPump { th } else { tc };
+                        // d(T_h/ΔT) = d(T_c/ΔT) = (T_h dT_c − T_c dT_h)/ΔT².
+                        let d = d_tc.scale(th / (dt * dt)).sub(d_th.scale(tc / (dt * dt)));
+                        (fin(top / dt), Some(d))
+                    }
+                    _ => (None, None),
+                };
+                m.cop = cop;
+                m.carnot_cop = carnot;
+                (cop, d_cop, carnot, d_carnot)
+            }
+        };
+        let (u_perf, u_bound) = (
+            d_perf.and_then(|d| d.combine(u)),
+            d_bound.and_then(|d| d.combine(u)),
+        );
+        if mode == Mode::Engine {
+            m.u_efficiency = u_perf;
+            m.u_carnot_efficiency = u_bound;
+        } else {
+            m.u_cop = u_perf;
+            m.u_carnot_cop = u_bound;
+        }
+        if let (Some(p), Some(b)) = (perf, bound) {
+            m.carnot_margin = fin(b - p);
+            m.second_law_efficiency = ratio(p, b);
+        }
+        if let (Some(dp), Some(db)) = (d_perf, d_bound) {
+            m.u_carnot_margin = db.sub(dp).combine(u);
+        }
+
+        // Energy balance and the entropy account, engine convention first.
+        let t0 = match settings.ambient_k {
+            Some(t) => Some(R::from_f64(t)),
+            None => tc,
+        };
+        m.ambient_k = t0;
+        let sign = if mode.is_reverse() { -R::ONE } else { R::ONE };
+        let (s_gen, d_s) = if measured {
+            let loss = qi - w - qo;
+            m.balance_residual_j = fin(loss * sign);
+            let t = |x: R| x * x;
+            m.u_balance_residual_j = fin((t(qi * R::from_f64(u.heat_in_rel))
+                + t(w * R::from_f64(u.work_rel))
+                + t(qo * R::from_f64(u.heat_out_rel)))
+            .sqrt());
+            match t0 {
+                Some(t0) if t0 > zero => {
+                    let mut d = Partials {
+                        hot: si2,
+                        cold: -so2,
+                        heat_in: qi / t0 - si,
+                        work: -w / t0,
+                        heat_out: so - qo / t0,
+                    };
+                    if settings.ambient_k.is_none() {
+                        // The default T0 is the measured cold-side mean, so the
+                        // errors that move T_c also move Q_loss/T0.
+                        d = d.sub(d_tc.scale(loss / (t0 * t0)));
+                    }
+                    (fin(so + loss / t0 - si), Some(d))
+                }
+                _ => (None, None),
+            }
+        } else {
+            let d = Partials {
+                hot: si2,
+                cold: -so2,
+                heat_in: ca - si,
+                work: -cb,
+                heat_out: zero,
+            };
+            (fin(so - si), Some(d))
+        };
+        let s_gen = s_gen.map(|s| s * sign);
+        m.entropy_generated_j_per_k = s_gen;
+        let u_s = d_s.and_then(|d| d.combine(u));
+        m.u_entropy_generated_j_per_k = u_s;
+        m.entropy_rate_w_per_k = s_gen.and_then(|s| ratio(s, self.duration_s));
+        m.u_entropy_rate_w_per_k = u_s.and_then(|s| ratio(s, self.duration_s));
+        m.entropy_in_rate_w_per_k = ratio(si, self.duration_s);
+        m.exergy_destroyed_j = match (s_gen, t0) {
+            (Some(s), Some(t0)) => fin(s * t0),
+            _ => None,
+        };
+        m
+    }
+}
+
+/// The contribution of one trapezoid, or the running sums of many.
+#[derive(Clone, Copy, Debug, Default)]
+struct Slice<R> {
+    dt: R,
+    qi: R,
+    w: R,
+    qo: R,
+    si: R,
+    si2: R,
+    /// Measured: ∫q_out/T_c; inferred: ∫q_in/T_c.
+    ca: R,
+    /// Measured: 0; inferred: ∫w/T_c.
+    cb: R,
+    /// Measured: ∫q_out/T_c²; inferred: ∫q_in/T_c².
+    ca2: R,
+    /// Measured: 0; inferred: ∫w/T_c².
+    cb2: R,
+}
+
+/// The integrands at one sample, kept for the next trapezoid.
+#[derive(Clone, Copy, Debug, Default)]
+struct Point<R> {
+    t_ms: u32,
+    qi: R,
+    w: R,
+    qo: R,
+    si: R,
+    si2: R,
+    ca: R,
+    cb: R,
+    ca2: R,
+    cb2: R,
+}
+
+impl<R: Real> Point<R> {
+    fn new(s: &Sample<R>, measured: bool) -> Self {
+        let inv_h = R::ONE / s.t_hot_k;
+        let inv_c = R::ONE / s.t_cold_k;
+        let qi = s.heat_in_w;
+        let w = s.work_w;
+        let si = qi * inv_h;
+        if measured {
+            let qo = s.heat_out_w.unwrap_or(R::ZERO);
+            let ca = qo * inv_c;
+            Point {
+                t_ms: s.t_ms,
+                qi,
+                w,
+                qo,
+                si,
+                si2: si * inv_h,
+                ca,
+                cb: R::ZERO,
+                ca2: ca * inv_c,
+                cb2: R::ZERO,
+            }
+        } else {
+            let ca = qi * inv_c;
+            let cb = w * inv_c;
+            Point {
+                t_ms: s.t_ms,
+                qi,
+                w,
+                qo: qi - w,
+                si,
+                si2: si * inv_h,
+                ca,
+                cb,
+                ca2: ca * inv_c,
+                cb2: cb * inv_c,
+            }
+        }
+    }
+}
+
+fn trapezoid<R: Real>(a: &Point<R>, b: &Point<R>, dt: R) -> Slice<R> {
+    let h = dt * R::from_f64(0.5);
+    Slice {
+        dt,
+        qi: h * (a.qi + b.qi),
+        w: h * (a.w + b.w),
+        qo: h * (a.qo + b.qo),
+        si: h * (a.si + b.si),
+        si2: h * (a.si2 + b.si2),
+        ca: h * (a.ca + b.ca),
+        cb: h * (a.cb + b.cb),
+        ca2: h * (a.ca2 + b.ca2),
+        cb2: h * (a.cb2 + b.cb2),
+    }
+}
+
+/// Running sums of [`Slice`]s: compensated for the window, block-folded
+/// into `f64` for the run totals.
+#[derive(Clone, Copy, Debug, Default)]
+struct Sums<R, A> {
+    dt: A,
+    qi: A,
+    w: A,
+    qo: A,
+    si: A,
+    si2: A,
+    ca: A,
+    cb: A,
+    ca2: A,
+    cb2: A,
+    real: core::marker::PhantomData<R>,
+}
+
+impl<R: Real, A: Accumulator<R>> Sums<R, A> {
+    fn add(&mut self, s: &Slice<R>) {
+        self.dt.add(s.dt);
+        self.qi.add(s.qi);
+        self.w.add(s.w);
+        self.qo.add(s.qo);
+        self.si.add(s.si);
+        self.si2.add(s.si2);
+        self.ca.add(s.ca);
+        self.cb.add(s.cb);
+        self.ca2.add(s.ca2);
+        self.cb2.add(s.cb2);
+    }
+
+    fn sub(&mut self, s: &Slice<R>) {
+        self.dt.sub(s.dt);
+        self.qi.sub(s.qi);
+        self.w.sub(s.w);
+        self.qo.sub(s.qo);
+        self.si.sub(s.si);
+        self.si2.sub(s.si2);
+        self.ca.sub(s.ca);
+        self.cb.sub(s.cb);
+        self.ca2.sub(s.ca2);
+        self.cb2.sub(s.cb2);
+    }
+
+    fn integrals(&self, measured: bool) -> Integrals<R> {
+        let (ca, cb, ca2, cb2) = (
+            self.ca.value(),
+            self.cb.value(),
+            self.ca2.value(),
+            self.cb2.value(),
+        );
+        let (qi, w) = (self.qi.value(), self.w.value());
+        Integrals {
+            duration_s: self.dt.value(),
+            heat_in_j: qi,
+            work_j: w,
+            heat_out_j: if measured { self.qo.value() } else { qi - w },
+            heat_out_measured: measured,
+            entropy_in_j_per_k: self.si.value(),
+            entropy_out_j_per_k: ca - cb,
+            hot_sensitivity: self.si2.value(),
+            cold_sensitivity: ca2 - cb2,
+            cold_heat_in_j_per_k: if measured { R::ZERO } else { ca },
+            cold_work_j_per_k: if measured { R::ZERO } else { cb },
+        }
+    }
+}
+
+const BUCKETS: usize = 8;
+const STEADY_CHANNELS: usize = 5;
+
+/// Min and max of each channel over a stretch of time.
+#[derive(Clone, Copy, Debug)]
+struct Span<R> {
+    min: [R; STEADY_CHANNELS],
+    max: [R; STEADY_CHANNELS],
+    samples: u32,
+}
+
+impl<R: Real> Span<R> {
+    fn empty() -> Self {
+        Self {
+            min: [R::ZERO; STEADY_CHANNELS],
+            max: [R::ZERO; STEADY_CHANNELS],
+            samples: 0,
+        }
+    }
+
+    fn include(&mut self, v: &[R; STEADY_CHANNELS]) {
+        if self.samples == 0 {
+            self.min = *v;
+            self.max = *v;
+        } else {
+            for ((x, lo), hi) in v.iter().zip(&mut self.min).zip(&mut self.max) {
+                if *x < *lo {
+                    *lo = *x;
+                }
+                if *x > *hi {
+                    *hi = *x;
+                }
+            }
+        }
+        self.samples = self.samples.saturating_add(1);
+    }
+
+    fn merge(&mut self, o: &Span<R>) {
+        if o.samples == 0 {
+            return;
+        }
+        if self.samples == 0 {
+            *self = *o;
+            return;
+        }
+        for i in 0..STEADY_CHANNELS {
+            if o.min[i] < self.min[i] {
+                self.min[i] = o.min[i];
+            }
+            if o.max[i] > self.max[i] {
+                self.max[i] = o.max[i];
+            }
+        }
+        self.samples = self.samples.saturating_add(o.samples);
+    }
+}
+
+/// Steady-state test over time buckets: amortised O(1) per sample.
+#[derive(Clone, Copy, Debug)]
+struct SteadyTracker<R> {
+    bucket_ms: u32,
+    bucket_start_ms: u32,
+    current: Span<R>,
+    done: [Span<R>; BUCKETS],
+    /// Merge of `done`, refreshed when a bucket completes.
+    done_merged: Span<R>,
+    next: usize,
+    completed: usize,
+    /// Bands: absolute for the temperatures, relative for the powers.
+    band: [R; STEADY_CHANNELS],
+    started: bool,
+}
+
+impl<R: Real> SteadyTracker<R> {
+    fn new(config: &RigConfig) -> Self {
+        let s = &config.steady;
+        let bucket_ms = (s.duration_s * 1000.0 / BUCKETS as f64).clamp(1.0, u32::MAX as f64) as u32;
+        Self {
+            bucket_ms,
+            bucket_start_ms: 0,
+            current: Span::empty(),
+            done: [Span::empty(); BUCKETS],
+            done_merged: Span::empty(),
+            next: 0,
+            completed: 0,
+            band: [
+                s.hot_band_k,
+                s.cold_band_k,
+                s.heat_in_band_rel,
+                s.work_band_rel,
+                s.heat_out_band_rel,
+            ]
+            .map(R::from_f64),
+            started: false,
+        }
+    }
+
+    fn restart(&mut self, t_ms: u32) {
+        self.started = true;
+        self.bucket_start_ms = t_ms;
+        self.current = Span::empty();
+        self.done_merged = Span::empty();
+        self.completed = 0;
+        self.next = 0;
+    }
+
+    /// Adds a sample at `t_ms`; returns whether every channel has stayed in
+    /// band for at least the configured duration.
+    fn push(&mut self, t_ms: u32, v: &[R; STEADY_CHANNELS]) -> bool {
+        if !self.started {
+            self.restart(t_ms);
+        }
+        let mut elapsed = t_ms.wrapping_sub(self.bucket_start_ms);
+        if elapsed >= self.bucket_ms {
+            // Close the current bucket, and any empty ones after it.
+            let mut closed = 0;
+            while elapsed >= self.bucket_ms && closed <= BUCKETS {
+                self.done[self.next] = self.current;
+                self.current = Span::empty();
+                self.next = (self.next + 1) % BUCKETS;
+                self.completed = (self.completed + 1).min(BUCKETS);
+                self.bucket_start_ms = self.bucket_start_ms.wrapping_add(self.bucket_ms);
+                elapsed -= self.bucket_ms;
+                closed += 1;
+            }
+            if elapsed >= self.bucket_ms {
+                self.bucket_start_ms = t_ms;
+            }
+            let mut merged = Span::empty();
+            for b in &self.done {
+                merged.merge(b);
+            }
+            self.done_merged = merged;
+        }
+        self.current.include(v);
+        if self.completed < BUCKETS {
+            return false;
+        }
+        let mut all = self.done_merged;
+        all.merge(&self.current);
+        (0..STEADY_CHANNELS).all(|i| {
+            let spread = all.max[i] - all.min[i];
+            if i < 2 {
+                spread <= self.band[i]
+            } else {
+                let scale = if all.max[i].abs() > all.min[i].abs() {
+                    all.max[i].abs()
+                } else {
+                    all.min[i].abs()
+                };
+                spread <= self.band[i] * scale
+            }
+        })
+    }
+}
+
+/// Consecutive-repeat counters for the stuck check.
+#[derive(Clone, Copy, Debug)]
+struct StuckCheck<R> {
+    last: [R; STEADY_CHANNELS],
+    repeats: [u32; STEADY_CHANNELS],
+    limit: u32,
+}
+
+impl<R: Real> StuckCheck<R> {
+    fn update(&mut self, v: &[R; STEADY_CHANNELS], present: u8) -> u8 {
+        if self.limit == 0 {
+            return 0;
+        }
+        let mut stuck = 0;
+        for (i, ch) in Channel::ALL.iter().enumerate() {
+            if present & ch.bit() == 0 {
+                self.repeats[i] = 0;
+                continue;
+            }
+            if v[i] == self.last[i] {
+                self.repeats[i] = self.repeats[i].saturating_add(1);
+            } else {
+                self.repeats[i] = 1;
+                self.last[i] = v[i];
+            }
+            if self.repeats[i] >= self.limit {
+                stuck |= ch.bit();
+            }
+        }
+        stuck
+    }
+}
+
+/// Errors building a [`Monitor`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum MonitorError {
+    /// `window_samples` exceeds the monitor's capacity `N`.
+    WindowTooLong {
+        /// Configured window, samples.
+        window_samples: u32,
+        /// Capacity of this monitor.
+        capacity: usize,
+    },
+}
+
+impl core::fmt::Display for MonitorError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            MonitorError::WindowTooLong {
+                window_samples,
+                capacity,
+            } => {
+                write!(
+                    f,
+                    "`window_samples` = {window_samples} exceeds this monitor's capacity of {capacity} samples"
+                )
+            }
+        }
+    }
+}
+
+impl core::error::Error for MonitorError {}
+
+/// The live monitor: a sliding window of up to `N` valid samples plus run
+/// totals, computing in `R` (`f32` by default).
+#[derive(Clone, Debug)]
+pub struct Monitor<const N: usize, R: Real = f32> {
+    settings: FigureSettings,
+    window_len: usize,
+    max_gap_ms: u32,
+    stale_ms: u32,
+    t_min_k: R,
+    t_max_k: R,
+    /// Whether this run measures heat out; fixed by the first valid sample.
+    measured: Option<bool>,
+    prev: Option<Point<R>>,
+    /// `ring[i]` is the trapezoid that ends at the i-th sample of the window
+    /// (zero for a sample that starts integration).
+    ring: [Slice<R>; N],
+    head: usize,
+    filled: usize,
+    window: Sums<R, CompensatedSum<R>>,
+    totals: Sums<R, RunningTotal<R>>,
+    steady_s: RunningTotal<R>,
+    steady: SteadyTracker<R>,
+    stuck: StuckCheck<R>,
+    is_steady: bool,
+    faults: Faults,
+    valid: u64,
+    invalid: u64,
+    restarts: u64,
+    first_ms: Option<u32>,
+    last_ms: u32,
+    span_ms: u64,
+    last_t_hot_k: Option<R>,
+}
+
+impl<const N: usize, R: Real> Monitor<N, R> {
+    /// An empty monitor for `config`.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::{Monitor, Sample, Pushed};
+    /// let mut m: Monitor<64> = Monitor::new(&RigConfig::default()).unwrap();
+    /// let s = |t_ms| Sample { t_ms, t_hot_k: 600.0, t_cold_k: 300.0,
+    ///                         heat_in_w: 1000.0, work_w: 150.0, heat_out_w: None };
+    /// assert_eq!(m.push(&s(0)), Pushed::Started);
+    /// assert_eq!(m.push(&s(1000)), Pushed::Integrated);
+    /// let w = m.window_metrics();
+    /// assert_eq!(w.efficiency, Some(0.15));
+    /// assert!((w.entropy_rate_w_per_k.unwrap() - 1.166_666_7).abs() < 1e-5);
+    /// ```
+    pub fn new(config: &RigConfig) -> Result<Self, MonitorError> {
+        let window_len = config.window_samples as usize;
+        if window_len > N || window_len < 2 {
+            return Err(MonitorError::WindowTooLong {
+                window_samples: config.window_samples,
+                capacity: N,
+            });
+        }
+        let to_ms = |s: f64| (s * 1000.0).clamp(0.0, u32::MAX as f64 / 2.0) as u32;
+        Ok(Self {
+            settings: FigureSettings::new(config),
+            window_len,
+            max_gap_ms: to_ms(config.max_gap_s),
+            stale_ms: to_ms(config.health.stale_s),
+            t_min_k: R::from_f64(config.health.min_temperature_k),
+            t_max_k: R::from_f64(config.health.max_temperature_k),
+            measured: None,
+            prev: None,
+            ring: [Slice::default(); N],
+            head: 0,
+            filled: 0,
+            window: Sums::default(),
+            totals: Sums::default(),
+            steady_s: RunningTotal::default(),
+            steady: SteadyTracker::new(config),
+            stuck: StuckCheck {
+                last: [R::ZERO; STEADY_CHANNELS],
+                repeats: [0; STEADY_CHANNELS],
+                limit: config.health.stuck_samples,
+            },
+            is_steady: false,
+            faults: Faults::default(),
+            valid: 0,
+            invalid: 0,
+            restarts: 0,
+            first_ms: None,
+            last_ms: 0,
+            span_ms: 0,
+            last_t_hot_k: None,
+        })
+    }
+
+    fn check(&self, s: &Sample<R>) -> Result<(), Invalid> {
+        let channels = [
+            (s.t_hot_k, Channel::Hot),
+            (s.t_cold_k, Channel::Cold),
+            (s.heat_in_w, Channel::HeatIn),
+            (s.work_w, Channel::Work),
+        ];
+        for (v, c) in channels {
+            if !v.is_finite() {
+                return Err(Invalid::NonFinite(c));
+            }
+        }
+        for (v, c) in [(s.t_hot_k, Channel::Hot), (s.t_cold_k, Channel::Cold)] {
+            if !(v >= self.t_min_k && v <= self.t_max_k) {
+                return Err(Invalid::OutOfRange(c));
+            }
+        }
+        match (self.measured, s.heat_out_w) {
+            (_, Some(q)) if !q.is_finite() => return Err(Invalid::NonFinite(Channel::HeatOut)),
+            (Some(true), None) => return Err(Invalid::MissingHeatOut),
+            _ => {}
+        }
+        if self.prev.is_some_and(|p| p.t_ms == s.t_ms) {
+            return Err(Invalid::RepeatedTime);
+        }
+        Ok(())
+    }
+
+    /// Takes one sample: integrates it from the previous valid sample, slides
+    /// the window, updates the steady-state test and the channel faults.
+    /// O(1): no rescan of the window.
+    pub fn push(&mut self, s: &Sample<R>) -> Pushed {
+        // Time bookkeeping covers every sample, valid or not.
+        match self.first_ms {
+            None => self.first_ms = Some(s.t_ms),
+            Some(_) => self.span_ms += u64::from(s.t_ms.wrapping_sub(self.last_ms)),
+        }
+        let since_last = s.t_ms.wrapping_sub(self.last_ms);
+        let had_sample = self.valid + self.invalid > 0;
+        self.last_ms = s.t_ms;
+        self.faults.stale = had_sample && since_last > self.stale_ms;
+
+        if let Err(why) = self.check(s) {
+            self.invalid += 1;
+            self.faults.invalid = match why {
+                Invalid::NonFinite(c) | Invalid::OutOfRange(c) => c.bit(),
+                Invalid::MissingHeatOut => Channel::HeatOut.bit(),
+                Invalid::RepeatedTime => 0,
+            };
+            self.update_fault_since(s.t_ms, since_last);
+            return Pushed::Invalid(why);
+        }
+        self.faults.invalid = 0;
+        let measured = *self.measured.get_or_insert(s.heat_out_w.is_some());
+        let point = Point::new(s, measured);
+        self.last_t_hot_k = Some(s.t_hot_k);
+
+        let values = [
+            s.t_hot_k,
+            s.t_cold_k,
+            s.heat_in_w,
+            s.work_w,
+            s.heat_out_w.unwrap_or(R::ZERO),
+        ];
+        let present = if measured { 0x1f } else { 0x0f };
+        self.faults.stuck = self.stuck.update(&values, present);
+        self.update_fault_since(s.t_ms, since_last);
+
+        let slice = match &self.prev {
+            Some(p) if s.t_ms.wrapping_sub(p.t_ms) <= self.max_gap_ms => {
+                let dt = R::from_f64(f64::from(s.t_ms.wrapping_sub(p.t_ms)) * 1e-3);
+                Some(trapezoid(p, &point, dt))
+            }
+            _ => None,
+        };
+        self.prev = Some(point);
+        self.valid += 1;
+
+        // Slide the window: the new sample's trapezoid enters; when full, the
+        // oldest sample leaves and with it the trapezoid to its successor.
+        let entry = slice.unwrap_or_default();
+        if self.filled == self.window_len {
+            self.head = (self.head + 1) % self.window_len;
+            if let Some(oldest_link) = self.ring.get(self.head) {
+                self.window.sub(oldest_link);
+            }
+        } else {
+            self.filled += 1;
+        }
+        let newest = (self.head + self.filled - 1) % self.window_len;
+        if let Some(slot) = self.ring.get_mut(newest) {
+            *slot = entry;
+        }
+        // The oldest sample's own trapezoid reaches outside the window.
+        if self.filled > 1 {
+            self.window.add(&entry);
+        }
+
+        let outcome = match slice {
+            Some(slice) => {
+                self.totals.add(&slice);
+                Pushed::Integrated
+            }
+            None => {
+                if self.valid > 1 {
+                    self.restarts += 1;
+                }
+                self.steady.restart(s.t_ms);
+                Pushed::Started
+            }
+        };
+        self.is_steady = self.steady.push(s.t_ms, &values);
+        if let (true, Some(slice)) = (self.is_steady, slice) {
+            self.steady_s.add(slice.dt);
+        }
+        outcome
+    }
+
+    fn update_fault_since(&mut self, t_ms: u32, since_last: u32) {
+        let faulty = self.faults.invalid != 0 || self.faults.stuck != 0 || self.faults.stale;
+        self.faults.since_ms = match (faulty, self.faults.since_ms) {
+            (false, _) => None,
+            (true, Some(since)) => Some(since),
+            // A stale channel has been silent since the previous sample.
+            (true, None) if self.faults.stale => Some(t_ms.wrapping_sub(since_last)),
+            (true, None) => Some(t_ms),
+        };
+    }
+
+    /// The window's raw integrals.
+    pub fn window_integrals(&self) -> Integrals<R> {
+        self.window.integrals(self.measured.unwrap_or(false))
+    }
+
+    /// The run's raw integrals.
+    pub fn totals_integrals(&self) -> Integrals<R> {
+        self.totals.integrals(self.measured.unwrap_or(false))
+    }
+
+    /// Every figure of the sliding window.
+    pub fn window_metrics(&self) -> Metrics<R> {
+        self.window_integrals().metrics(&self.settings)
+    }
+
+    /// Every figure of the whole run.
+    pub fn totals_metrics(&self) -> Metrics<R> {
+        self.totals_integrals().metrics(&self.settings)
+    }
+
+    /// What the alarm rules need now.
+    pub fn alarm_inputs(&self) -> AlarmInputs<R> {
+        AlarmInputs {
+            window: self.window_metrics(),
+            t_hot_k: self.last_t_hot_k,
+            faults: self.faults,
+        }
+    }
+
+    /// The settings the figures are computed with.
+    pub fn settings(&self) -> &FigureSettings {
+        &self.settings
+    }
+
+    /// Whether every channel has stayed in band for the configured duration.
+    pub fn is_steady(&self) -> bool {
+        self.is_steady
+    }
+
+    /// Fraction of integrated run time that was steady, if any time was integrated.
+    pub fn steady_fraction(&self) -> Option<R> {
+        ratio(self.steady_s.value(), self.totals.dt.value())
+    }
+
+    /// Channel faults as of the latest sample.
+    pub fn faults(&self) -> Faults {
+        self.faults
+    }
+
+    /// Valid samples taken.
+    pub fn valid_samples(&self) -> u64 {
+        self.valid
+    }
+
+    /// Invalid samples skipped.
+    pub fn invalid_samples(&self) -> u64 {
+        self.invalid
+    }
+
+    /// Times integration restarted after a gap.
+    pub fn restarts(&self) -> u64 {
+        self.restarts
+    }
+
+    /// Valid samples now in the window.
+    pub fn window_samples(&self) -> usize {
+        self.filled
+    }
+
+    /// Time from the first to the latest sample, valid or not, in seconds
+    /// (wraps of the millisecond clock included).
+    pub fn elapsed_s(&self) -> f64 {
+        self.span_ms as f64 * 1e-3
+    }
+
+    /// Whether heat out is measured in this run (`None` before the first valid sample).
+    pub fn heat_out_measured(&self) -> Option<bool> {
+        self.measured
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::alarm::AlarmSet;
+
+    fn steady(t_ms: u32) -> Sample {
+        Sample {
+            t_ms,
+            t_hot_k: 600.0,
+            t_cold_k: 300.0,
+            heat_in_w: 1000.0,
+            work_w: 150.0,
+            heat_out_w: None,
+        }
+    }
+
+    fn small_window() -> RigConfig {
+        RigFile {
+            window_samples: Some(16),
+            ..Default::default()
+        }
+        .validate()
+        .unwrap()
+    }
+
+    #[test]
+    fn monitor_and_alarms_fit_the_ram_budget() {
+        let monitor = core::mem::size_of::<Monitor<64>>();
+        let alarms = core::mem::size_of::<AlarmSet>();
+        assert!(
+            monitor + alarms <= 8 * 1024,
+            "monitor {monitor} + alarms {alarms} bytes"
+        );
+    }
+
+    #[test]
+    fn window_slides_over_the_last_n_samples() {
+        let config = RigFile {
+            window_samples: Some(4),
+            ..Default::default()
+        }
+        .validate()
+        .unwrap();
+        let mut m: Monitor<8, f64> = Monitor::new(&config).unwrap();
+        for i in 0..10u32 {
+            let s = Sample {
+                t_ms: i * 1000,
+                t_hot_k: 600.0,
+                t_cold_k: 300.0,
+                heat_in_w: f64::from(i),
+                work_w: 0.0,
+                heat_out_w: None,
+            };
+            m.push(&s);
+        }
+        // Last four samples: q_in = 6, 7, 8, 9 W at 1 s spacing.
+        let w = m.window_integrals();
+        assert_eq!(w.duration_s, 3.0);
+        assert_eq!(w.heat_in_j, 6.5 + 7.5 + 8.5);
+        assert_eq!(m.totals_integrals().heat_in_j, 40.5);
+    }
+
+    use crate::config::RigFile;
+
+    #[test]
+    fn gap_restarts_integration_and_invalid_samples_are_bridged() {
+        let mut m: Monitor<64, f64> = Monitor::new(&RigConfig::default()).unwrap();
+        let s = |t_ms: u32, q: f64| Sample {
+            t_ms,
+            t_hot_k: 600.0,
+            t_cold_k: 300.0,
+            heat_in_w: q,
+            work_w: 0.0,
+            heat_out_w: None,
+        };
+        assert_eq!(m.push(&s(0, 1.0)), Pushed::Started);
+        assert_eq!(m.push(&s(1000, 1.0)), Pushed::Integrated);
+        assert!(matches!(
+            m.push(&s(2000, f64::NAN)),
+            Pushed::Invalid(Invalid::NonFinite(Channel::HeatIn))
+        ));
+        assert_eq!(m.push(&s(3000, 1.0)), Pushed::Integrated); // bridged over 2 s
+        assert_eq!(m.push(&s(30_000, 1.0)), Pushed::Started); // 27 s > max_gap_s = 10 s
+        assert_eq!(m.push(&s(31_000, 1.0)), Pushed::Integrated);
+        assert_eq!(m.totals_integrals().duration_s, 4.0);
+        assert_eq!(m.invalid_samples(), 1);
+        assert_eq!(m.restarts(), 1);
+    }
+
+    #[test]
+    fn millisecond_clock_wrap_is_a_normal_step() {
+        let mut m: Monitor<16, f64> = Monitor::new(&small_window()).unwrap();
+        let start = u32::MAX - 1500;
+        for i in 0..4u32 {
+            let s = Sample {
+                t_ms: start.wrapping_add(i * 1000),
+                t_hot_k: 600.0,
+                t_cold_k: 300.0,
+                heat_in_w: 1000.0,
+                work_w: 150.0,
+                heat_out_w: None,
+            };
+            m.push(&s);
+        }
+        assert_eq!(m.totals_integrals().duration_s, 3.0);
+        assert_eq!(m.restarts(), 0);
+    }
+
+    #[test]
+    fn nothing_available_before_two_samples() {
+        let mut m: Monitor<16> = Monitor::new(&small_window()).unwrap();
+        m.push(&steady(0));
+        let w = m.window_metrics();
+        assert_eq!(w.efficiency, None);
+        assert_eq!(w.carnot_efficiency, None);
+        assert_eq!(w.entropy_rate_w_per_k, None);
+    }
+}

@@ -1,1 +1,0 @@
-//! Sensor conversion and channel health.
