@@ -320,7 +320,9 @@ pub enum Verdict {
 /// temperature and the channel faults.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct AlarmInputs<R: Real> {
-    /// The sliding window's figures, with uncertainties.
+    /// The sliding window's figures that the rules read: the Carnot margin,
+    /// σ̇, the entropy inflow, the second-law efficiency, the balance residual
+    /// and their uncertainties. Figures no rule reads may be `None` here.
     pub window: Metrics<R>,
     /// Latest valid hot-side temperature, kelvin.
     pub t_hot_k: Option<R>,

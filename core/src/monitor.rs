@@ -42,7 +42,7 @@
 //! ## Cost and precision
 //! [`Monitor::push`] adds one interval to the window and to the run totals
 //! and subtracts the interval that leaves the window: no rescan. Sums are
-//! compensated ([`CompensatedSum`]) so a run of weeks at 10 Hz does not
+//! compensated ([`CompensatedSums`], [`RunningTotals`]) so a run of weeks at 10 Hz does not
 //! drift. The steady-state test keeps min/max per channel in 8 time buckets
 //! of `duration_s/8`, amortised O(1). The monitor is generic over the
 //! [`Real`] it computes in: `f32` on a controller, `f64` on the host.
@@ -56,7 +56,7 @@ use serde::Serialize;
 
 use crate::alarm::AlarmInputs;
 use crate::config::{Mode, RigConfig, Uncertainty};
-use crate::num::{Accumulator, CompensatedSum, Real, RunningTotal};
+use crate::num::{Accumulator, CompensatedSums, Real, RunningTotals};
 
 /// One reading of every channel, already converted to SI units.
 ///
@@ -384,6 +384,12 @@ impl<R: Real> Integrals<R> {
     /// assert_eq!(m.carnot_efficiency, Some(0.5));
     /// ```
     pub fn metrics(&self, settings: &FigureSettings) -> Metrics<R> {
+        self.figures(settings, true)
+    }
+
+    /// The figures; with `all` false, only those the alarm rules read
+    /// (margin, σ̇, balance and their uncertainties), for the per-sample path.
+    fn figures(&self, settings: &FigureSettings, all: bool) -> Metrics<R> {
         let u = &settings.uncertainty;
         let mode = settings.mode;
         let measured = self.heat_out_measured;
@@ -443,7 +449,7 @@ impl<R: Real> Integrals<R> {
                 m.efficiency = eta;
                 m.carnot_efficiency = carnot;
                 m.curzon_ahlborn_efficiency = match (th, tc) {
-                    (Some(th), Some(tc)) if th > tc => fin(R::ONE - (tc / th).sqrt()),
+                    (Some(th), Some(tc)) if all && th > tc => fin(R::ONE - (tc / th).sqrt()),
                     _ => None,
                 };
                 (eta, d_eta, carnot, d_carnot)
@@ -488,10 +494,14 @@ impl<R: Real> Integrals<R> {
                 (cop, d_cop, carnot, d_carnot)
             }
         };
-        let (u_perf, u_bound) = (
-            d_perf.and_then(|d| d.combine(u)),
-            d_bound.and_then(|d| d.combine(u)),
-        );
+        let (u_perf, u_bound) = if all {
+            (
+                d_perf.and_then(|d| d.combine(u)),
+                d_bound.and_then(|d| d.combine(u)),
+            )
+        } else {
+            (None, None)
+        };
         if mode == Mode::Engine {
             m.u_efficiency = u_perf;
             m.u_carnot_efficiency = u_bound;
@@ -558,169 +568,91 @@ impl<R: Real> Integrals<R> {
         m.u_entropy_rate_w_per_k = u_s.and_then(|s| ratio(s, self.duration_s));
         m.entropy_in_rate_w_per_k = ratio(si, self.duration_s);
         m.exergy_destroyed_j = match (s_gen, t0) {
-            (Some(s), Some(t0)) => fin(s * t0),
+            (Some(s), Some(t0)) if all => fin(s * t0),
             _ => None,
         };
         m
     }
 }
 
-/// The contribution of one trapezoid, or the running sums of many.
-#[derive(Clone, Copy, Debug, Default)]
-struct Slice<R> {
-    dt: R,
-    qi: R,
-    w: R,
-    qo: R,
-    si: R,
-    si2: R,
-    /// Measured: ∫q_out/T_c; inferred: ∫q_in/T_c.
-    ca: R,
-    /// Measured: 0; inferred: ∫w/T_c.
-    cb: R,
-    /// Measured: ∫q_out/T_c²; inferred: ∫q_in/T_c².
-    ca2: R,
-    /// Measured: 0; inferred: ∫w/T_c².
-    cb2: R,
+/// How many integrals the monitor keeps, and where each sits in a [`Terms`].
+const TERMS: usize = 10;
+/// Time, seconds.
+const DT: usize = 0;
+/// `q_in`.
+const QI: usize = 1;
+/// `w`.
+const W: usize = 2;
+/// `q_out` (measured; with heat out inferred, `q_in − w`).
+const QO: usize = 3;
+/// `q_in/T_hot`.
+const SI: usize = 4;
+/// `q_in/T_hot²`.
+const SI2: usize = 5;
+/// Measured: `q_out/T_cold`; inferred: `q_in/T_cold`.
+const CA: usize = 6;
+/// Measured: 0; inferred: `w/T_cold`.
+const CB: usize = 7;
+/// Measured: `q_out/T_cold²`; inferred: `q_in/T_cold²`.
+const CA2: usize = 8;
+/// Measured: 0; inferred: `w/T_cold²`.
+const CB2: usize = 9;
+
+/// The integrands at one sample (with `DT` unused), or the contribution of
+/// one trapezoid. Arrays, so that sums and trapezoids vectorise.
+type Terms<R> = [R; TERMS];
+
+/// The integrands of a sample.
+fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
+    let inv_h = R::ONE / s.t_hot_k;
+    let inv_c = R::ONE / s.t_cold_k;
+    let (qi, w) = (s.heat_in_w, s.work_w);
+    let si = qi * inv_h;
+    let (qo, ca, cb) = if measured {
+        let qo = s.heat_out_w.unwrap_or(R::ZERO);
+        (qo, qo * inv_c, R::ZERO)
+    } else {
+        (qi - w, qi * inv_c, w * inv_c)
+    };
+    [
+        R::ZERO,
+        qi,
+        w,
+        qo,
+        si,
+        si * inv_h,
+        ca,
+        cb,
+        ca * inv_c,
+        cb * inv_c,
+    ]
 }
 
-/// The integrands at one sample, kept for the next trapezoid.
-#[derive(Clone, Copy, Debug, Default)]
-struct Point<R> {
-    t_ms: u32,
-    qi: R,
-    w: R,
-    qo: R,
-    si: R,
-    si2: R,
-    ca: R,
-    cb: R,
-    ca2: R,
-    cb2: R,
-}
-
-impl<R: Real> Point<R> {
-    fn new(s: &Sample<R>, measured: bool) -> Self {
-        let inv_h = R::ONE / s.t_hot_k;
-        let inv_c = R::ONE / s.t_cold_k;
-        let qi = s.heat_in_w;
-        let w = s.work_w;
-        let si = qi * inv_h;
-        if measured {
-            let qo = s.heat_out_w.unwrap_or(R::ZERO);
-            let ca = qo * inv_c;
-            Point {
-                t_ms: s.t_ms,
-                qi,
-                w,
-                qo,
-                si,
-                si2: si * inv_h,
-                ca,
-                cb: R::ZERO,
-                ca2: ca * inv_c,
-                cb2: R::ZERO,
-            }
-        } else {
-            let ca = qi * inv_c;
-            let cb = w * inv_c;
-            Point {
-                t_ms: s.t_ms,
-                qi,
-                w,
-                qo: qi - w,
-                si,
-                si2: si * inv_h,
-                ca,
-                cb,
-                ca2: ca * inv_c,
-                cb2: cb * inv_c,
-            }
-        }
-    }
-}
-
-fn trapezoid<R: Real>(a: &Point<R>, b: &Point<R>, dt: R) -> Slice<R> {
+/// The trapezoid between integrands `a` and `b`, `dt` seconds apart.
+fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt: R) -> Terms<R> {
     let h = dt * R::from_f64(0.5);
-    Slice {
-        dt,
-        qi: h * (a.qi + b.qi),
-        w: h * (a.w + b.w),
-        qo: h * (a.qo + b.qo),
-        si: h * (a.si + b.si),
-        si2: h * (a.si2 + b.si2),
-        ca: h * (a.ca + b.ca),
-        cb: h * (a.cb + b.cb),
-        ca2: h * (a.ca2 + b.ca2),
-        cb2: h * (a.cb2 + b.cb2),
+    let mut out = [R::ZERO; TERMS];
+    for ((o, x), y) in out.iter_mut().zip(a).zip(b) {
+        *o = h * (*x + *y);
     }
+    out[DT] = dt;
+    out
 }
 
-/// Running sums of [`Slice`]s: compensated for the window, block-folded
-/// into `f64` for the run totals.
-#[derive(Clone, Copy, Debug, Default)]
-struct Sums<R, A> {
-    dt: A,
-    qi: A,
-    w: A,
-    qo: A,
-    si: A,
-    si2: A,
-    ca: A,
-    cb: A,
-    ca2: A,
-    cb2: A,
-    real: core::marker::PhantomData<R>,
-}
-
-impl<R: Real, A: Accumulator<R>> Sums<R, A> {
-    fn add(&mut self, s: &Slice<R>) {
-        self.dt.add(s.dt);
-        self.qi.add(s.qi);
-        self.w.add(s.w);
-        self.qo.add(s.qo);
-        self.si.add(s.si);
-        self.si2.add(s.si2);
-        self.ca.add(s.ca);
-        self.cb.add(s.cb);
-        self.ca2.add(s.ca2);
-        self.cb2.add(s.cb2);
-    }
-
-    fn sub(&mut self, s: &Slice<R>) {
-        self.dt.sub(s.dt);
-        self.qi.sub(s.qi);
-        self.w.sub(s.w);
-        self.qo.sub(s.qo);
-        self.si.sub(s.si);
-        self.si2.sub(s.si2);
-        self.ca.sub(s.ca);
-        self.cb.sub(s.cb);
-        self.ca2.sub(s.ca2);
-        self.cb2.sub(s.cb2);
-    }
-
-    fn integrals(&self, measured: bool) -> Integrals<R> {
-        let (ca, cb, ca2, cb2) = (
-            self.ca.value(),
-            self.cb.value(),
-            self.ca2.value(),
-            self.cb2.value(),
-        );
-        let (qi, w) = (self.qi.value(), self.w.value());
-        Integrals {
-            duration_s: self.dt.value(),
-            heat_in_j: qi,
-            work_j: w,
-            heat_out_j: if measured { self.qo.value() } else { qi - w },
-            heat_out_measured: measured,
-            entropy_in_j_per_k: self.si.value(),
-            entropy_out_j_per_k: ca - cb,
-            hot_sensitivity: self.si2.value(),
-            cold_sensitivity: ca2 - cb2,
-            cold_heat_in_j_per_k: if measured { R::ZERO } else { ca },
-            cold_work_j_per_k: if measured { R::ZERO } else { cb },
-        }
+/// The integrals from summed terms.
+fn integrals_of<R: Real>(v: &Terms<R>, measured: bool) -> Integrals<R> {
+    Integrals {
+        duration_s: v[DT],
+        heat_in_j: v[QI],
+        work_j: v[W],
+        heat_out_j: if measured { v[QO] } else { v[QI] - v[W] },
+        heat_out_measured: measured,
+        entropy_in_j_per_k: v[SI],
+        entropy_out_j_per_k: v[CA] - v[CB],
+        hot_sensitivity: v[SI2],
+        cold_sensitivity: v[CA2] - v[CB2],
+        cold_heat_in_j_per_k: if measured { R::ZERO } else { v[CA] },
+        cold_work_j_per_k: if measured { R::ZERO } else { v[CB] },
     }
 }
 
@@ -957,15 +889,16 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     t_max_k: R,
     /// Whether this run measures heat out; fixed by the first valid sample.
     measured: Option<bool>,
-    prev: Option<Point<R>>,
+    /// Time and integrands of the previous valid sample.
+    prev: Option<(u32, Terms<R>)>,
     /// `ring[i]` is the trapezoid that ends at the i-th sample of the window
     /// (zero for a sample that starts integration).
-    ring: [Slice<R>; N],
+    ring: [Terms<R>; N],
     head: usize,
     filled: usize,
-    window: Sums<R, CompensatedSum<R>>,
-    totals: Sums<R, RunningTotal<R>>,
-    steady_s: RunningTotal<R>,
+    window: CompensatedSums<R, TERMS>,
+    totals: RunningTotals<R, TERMS>,
+    steady_s: RunningTotals<R, 1>,
     steady: SteadyTracker<R>,
     stuck: StuckCheck<R>,
     is_steady: bool,
@@ -1012,12 +945,12 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             t_max_k: R::from_f64(config.health.max_temperature_k),
             measured: None,
             prev: None,
-            ring: [Slice::default(); N],
+            ring: [[R::ZERO; TERMS]; N],
             head: 0,
             filled: 0,
-            window: Sums::default(),
-            totals: Sums::default(),
-            steady_s: RunningTotal::default(),
+            window: CompensatedSums::new(),
+            totals: RunningTotals::new(),
+            steady_s: RunningTotals::new(),
             steady: SteadyTracker::new(config),
             stuck: StuckCheck {
                 last: [R::ZERO; STEADY_CHANNELS],
@@ -1058,7 +991,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             (Some(true), None) => return Err(Invalid::MissingHeatOut),
             _ => {}
         }
-        if self.prev.is_some_and(|p| p.t_ms == s.t_ms) {
+        if self.prev.is_some_and(|(t, _)| t == s.t_ms) {
             return Err(Invalid::RepeatedTime);
         }
         Ok(())
@@ -1090,7 +1023,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         }
         self.faults.invalid = 0;
         let measured = *self.measured.get_or_insert(s.heat_out_w.is_some());
-        let point = Point::new(s, measured);
+        let point = integrands(s, measured);
         self.last_t_hot_k = Some(s.t_hot_k);
 
         let values = [
@@ -1105,18 +1038,18 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         self.update_fault_since(s.t_ms, since_last);
 
         let slice = match &self.prev {
-            Some(p) if s.t_ms.wrapping_sub(p.t_ms) <= self.max_gap_ms => {
-                let dt = R::from_f64(f64::from(s.t_ms.wrapping_sub(p.t_ms)) * 1e-3);
+            Some((t_prev, p)) if s.t_ms.wrapping_sub(*t_prev) <= self.max_gap_ms => {
+                let dt = R::from_f64(f64::from(s.t_ms.wrapping_sub(*t_prev)) * 1e-3);
                 Some(trapezoid(p, &point, dt))
             }
             _ => None,
         };
-        self.prev = Some(point);
+        self.prev = Some((s.t_ms, point));
         self.valid += 1;
 
         // Slide the window: the new sample's trapezoid enters; when full, the
         // oldest sample leaves and with it the trapezoid to its successor.
-        let entry = slice.unwrap_or_default();
+        let entry = slice.unwrap_or([R::ZERO; TERMS]);
         if self.filled == self.window_len {
             self.head = (self.head + 1) % self.window_len;
             if let Some(oldest_link) = self.ring.get(self.head) {
@@ -1149,7 +1082,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         };
         self.is_steady = self.steady.push(s.t_ms, &values);
         if let (true, Some(slice)) = (self.is_steady, slice) {
-            self.steady_s.add(slice.dt);
+            self.steady_s.add(&[slice[DT]]);
         }
         outcome
     }
@@ -1167,12 +1100,12 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
     /// The window's raw integrals.
     pub fn window_integrals(&self) -> Integrals<R> {
-        self.window.integrals(self.measured.unwrap_or(false))
+        integrals_of(&self.window.values(), self.measured.unwrap_or(false))
     }
 
     /// The run's raw integrals.
     pub fn totals_integrals(&self) -> Integrals<R> {
-        self.totals.integrals(self.measured.unwrap_or(false))
+        integrals_of(&self.totals.values(), self.measured.unwrap_or(false))
     }
 
     /// Every figure of the sliding window.
@@ -1188,7 +1121,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// What the alarm rules need now.
     pub fn alarm_inputs(&self) -> AlarmInputs<R> {
         AlarmInputs {
-            window: self.window_metrics(),
+            window: self.window_integrals().figures(&self.settings, false),
             t_hot_k: self.last_t_hot_k,
             faults: self.faults,
         }
@@ -1206,7 +1139,11 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
     /// Fraction of integrated run time that was steady, if any time was integrated.
     pub fn steady_fraction(&self) -> Option<R> {
-        ratio(self.steady_s.value(), self.totals.dt.value())
+        let [steady] = self.steady_s.values_f64();
+        ratio(
+            R::from_f64(steady),
+            R::from_f64(self.totals.values_f64()[DT]),
+        )
     }
 
     /// Channel faults as of the latest sample.

@@ -114,154 +114,192 @@ impl Real for f64 {
     }
 }
 
-/// Something that keeps a running sum: the window and the run totals of
-/// the monitor use different ones.
-pub trait Accumulator<R>: Copy + Default {
-    /// Adds `x`.
-    fn add(&mut self, x: R);
-    /// Subtracts `x`.
-    fn sub(&mut self, x: R);
-    /// The current sum.
-    fn value(&self) -> R;
+/// Something that keeps `K` running sums side by side: the window and the
+/// run totals of the monitor use different ones.
+pub trait Accumulator<R, const K: usize>: Copy {
+    /// An empty accumulator.
+    fn empty() -> Self;
+    /// Adds `x[i]` to sum `i`.
+    fn add(&mut self, x: &[R; K]);
+    /// Subtracts `x[i]` from sum `i`.
+    fn sub(&mut self, x: &[R; K]);
+    /// The current sums.
+    fn values(&self) -> [R; K];
 }
 
-/// A running sum with Neumaier compensation.
+/// `K` running sums with Neumaier compensation.
 ///
 /// The lost low-order bits of every addition are kept in a second word, so
 /// a sliding-window sum that adds and later subtracts the same terms comes
 /// back to the true remainder instead of accumulating rounding. Its
 /// magnitude must stay bounded, as a window's does: for sums that grow
-/// without bound over a long run, use [`RunningTotal`].
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct CompensatedSum<R> {
-    sum: R,
-    compensation: R,
+/// without bound over a long run, use [`RunningTotals`].
+///
+/// The sums sit in arrays and the update has no branches, so the compiler
+/// can keep all `K` in vector registers.
+///
+/// ```
+/// use heatbound::num::CompensatedSums;
+/// let mut s = CompensatedSums::<f32, 1>::new();
+/// for _ in 0..100_000 {
+///     s.add(&[0.1]);
+/// }
+/// assert!((s.values()[0] - 10_000.0).abs() < 0.01); // a plain f32 sum ends at 9998.56
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CompensatedSums<R, const K: usize> {
+    sum: [R; K],
+    compensation: [R; K],
 }
 
-impl<R: Real> CompensatedSum<R> {
-    /// An empty sum.
-    pub const fn new(zero: R) -> Self {
+impl<R: Real, const K: usize> Default for CompensatedSums<R, K> {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl<R: Real, const K: usize> CompensatedSums<R, K> {
+    /// Empty sums.
+    pub const fn new() -> Self {
         Self {
-            sum: zero,
-            compensation: zero,
+            sum: [R::ZERO; K],
+            compensation: [R::ZERO; K],
         }
     }
 
-    /// Adds `x`.
-    ///
-    /// ```
-    /// use heatbound::num::CompensatedSum;
-    /// let mut s = CompensatedSum::new(0.0_f32);
-    /// for _ in 0..100_000 {
-    ///     s.add(0.1);
-    /// }
-    /// assert!((s.value() - 10_000.0).abs() < 0.01); // a plain f32 sum ends at 9998.56
-    /// ```
+    /// Adds `x[i]` to sum `i`.
     #[inline]
-    pub fn add(&mut self, x: R) {
-        let t = self.sum + x;
-        if self.sum.abs() >= x.abs() {
-            self.compensation = self.compensation + ((self.sum - t) + x);
-        } else {
-            self.compensation = self.compensation + ((x - t) + self.sum);
+    pub fn add(&mut self, x: &[R; K]) {
+        for ((s, c), &x) in self.sum.iter_mut().zip(self.compensation.iter_mut()).zip(x) {
+            let t = *s + x;
+            let (big, small) = if s.abs() >= x.abs() { (*s, x) } else { (x, *s) };
+            *c = *c + ((big - t) + small);
+            *s = t;
         }
-        self.sum = t;
     }
 
-    /// Subtracts `x`.
+    /// Subtracts `x[i]` from sum `i`.
     #[inline]
-    pub fn sub(&mut self, x: R) {
-        self.add(-x);
+    pub fn sub(&mut self, x: &[R; K]) {
+        self.add(&x.map(|v| -v));
     }
 
-    /// The compensated value.
+    /// The compensated sums.
     #[inline]
-    pub fn value(&self) -> R {
-        self.sum + self.compensation
+    pub fn values(&self) -> [R; K] {
+        let mut out = self.sum;
+        for (o, c) in out.iter_mut().zip(&self.compensation) {
+            *o = *o + *c;
+        }
+        out
     }
 
-    /// The sum and its compensation, each exact in `R`.
+    /// The sums and their compensations, each exact in `R`.
     #[inline]
-    pub fn parts(&self) -> (R, R) {
-        (self.sum, self.compensation)
+    pub fn parts(&self) -> (&[R; K], &[R; K]) {
+        (&self.sum, &self.compensation)
     }
 }
 
-impl<R: Real> Accumulator<R> for CompensatedSum<R> {
-    #[inline]
-    fn add(&mut self, x: R) {
-        CompensatedSum::add(self, x)
+impl<R: Real, const K: usize> Accumulator<R, K> for CompensatedSums<R, K> {
+    fn empty() -> Self {
+        Self::new()
     }
     #[inline]
-    fn sub(&mut self, x: R) {
-        CompensatedSum::sub(self, x)
+    fn add(&mut self, x: &[R; K]) {
+        CompensatedSums::add(self, x)
     }
     #[inline]
-    fn value(&self) -> R {
-        CompensatedSum::value(self)
+    fn sub(&mut self, x: &[R; K]) {
+        CompensatedSums::sub(self, x)
+    }
+    #[inline]
+    fn values(&self) -> [R; K] {
+        CompensatedSums::values(self)
     }
 }
 
-/// Terms summed in `R` before the block is folded into the `f64` total.
+/// Terms summed in `R` before the block is folded into the `f64` totals.
 const BLOCK: u16 = 256;
 
-/// A run total that does not drift over weeks of samples.
+/// `K` run totals that do not drift over weeks of samples.
 ///
 /// Terms are summed with compensation in `R` over blocks of 256, and each
-/// block is folded into an `f64` total. On a Cortex-M4F that costs one
-/// software `f64` addition per 256 samples, while a plain `f32` total of
-/// 0.1 s steps would be off by 9 % after 10 million samples and even a
-/// compensated one by 0.2 %.
+/// block is folded into `f64` totals. On a Cortex-M4F that costs one
+/// software `f64` addition per sum per 256 samples, while a plain `f32`
+/// total of 0.1 s steps would be off by 9 % after 10 million samples and
+/// even a compensated one by 0.2 %.
 ///
 /// ```
-/// use heatbound::num::RunningTotal;
-/// let mut s = RunningTotal::<f32>::default();
+/// use heatbound::num::RunningTotals;
+/// let mut s = RunningTotals::<f32, 1>::new();
 /// for _ in 0..10_000_000 {
-///     s.add(0.1);
+///     s.add(&[0.1]);
 /// }
 /// // 0.1_f32 is 0.100000001490116…, so the exact sum is 1 000 000.0149.
-/// assert!((s.value_f64() - 1_000_000.0149).abs() < 1e-3);
+/// assert!((s.values_f64()[0] - 1_000_000.0149).abs() < 1e-3);
 /// ```
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct RunningTotal<R> {
-    block: CompensatedSum<R>,
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RunningTotals<R, const K: usize> {
+    block: CompensatedSums<R, K>,
     count: u16,
-    total: f64,
+    total: [f64; K],
 }
 
-impl<R: Real> RunningTotal<R> {
-    /// Adds `x`.
+impl<R: Real, const K: usize> Default for RunningTotals<R, K> {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl<R: Real, const K: usize> RunningTotals<R, K> {
+    /// Empty totals.
+    pub const fn new() -> Self {
+        Self {
+            block: CompensatedSums::new(),
+            count: 0,
+            total: [0.0; K],
+        }
+    }
+
+    /// Adds `x[i]` to total `i`.
     #[inline]
-    pub fn add(&mut self, x: R) {
+    pub fn add(&mut self, x: &[R; K]) {
         self.block.add(x);
         self.count += 1;
         if self.count >= BLOCK {
-            let (sum, compensation) = self.block.parts();
-            self.total += sum.to_f64() + compensation.to_f64();
-            self.block = CompensatedSum::default();
+            self.total = self.values_f64();
+            self.block = CompensatedSums::new();
             self.count = 0;
         }
     }
 
-    /// The total in `f64`.
+    /// The totals in `f64`.
     #[inline]
-    pub fn value_f64(&self) -> f64 {
+    pub fn values_f64(&self) -> [f64; K] {
         let (sum, compensation) = self.block.parts();
-        self.total + sum.to_f64() + compensation.to_f64()
+        let mut out = self.total;
+        for ((o, s), c) in out.iter_mut().zip(sum).zip(compensation) {
+            *o += s.to_f64() + c.to_f64();
+        }
+        out
     }
 }
 
-impl<R: Real> Accumulator<R> for RunningTotal<R> {
-    #[inline]
-    fn add(&mut self, x: R) {
-        RunningTotal::add(self, x)
+impl<R: Real, const K: usize> Accumulator<R, K> for RunningTotals<R, K> {
+    fn empty() -> Self {
+        Self::new()
     }
     #[inline]
-    fn sub(&mut self, x: R) {
-        RunningTotal::add(self, -x)
+    fn add(&mut self, x: &[R; K]) {
+        RunningTotals::add(self, x)
     }
     #[inline]
-    fn value(&self) -> R {
-        R::from_f64(self.value_f64())
+    fn sub(&mut self, x: &[R; K]) {
+        RunningTotals::add(self, &x.map(|v| -v))
+    }
+    #[inline]
+    fn values(&self) -> [R; K] {
+        self.values_f64().map(R::from_f64)
     }
 }
