@@ -24,13 +24,52 @@ enum Command {
     Cycle(cmd::cycle::Args),
     /// Convert a sensor reading (thermocouple EMF, RTD resistance) to temperature or back.
     Convert(cmd::convert::Args),
+    /// Replay a recorded run (CSV) through the monitor and alarms.
+    Analyze(cmd::analyze::Args),
+}
+
+/// A usage error as one line: clap's message up to its first blank line,
+/// joined, without the `error: ` prefix.
+fn usage_line(err: &clap::Error) -> String {
+    let rendered = err.render().to_string();
+    let message: Vec<&str> = rendered
+        .lines()
+        .map(str::trim)
+        .skip_while(|l| l.is_empty())
+        .take_while(|l| !l.is_empty())
+        .collect();
+    let reason = message.join(" ");
+    let reason = reason.trim_start_matches("error:").trim();
+    format!("{reason} (see `heatbound --help`)")
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(err) => {
+            use clap::error::ErrorKind;
+            return match err.kind() {
+                ErrorKind::DisplayHelp
+                | ErrorKind::DisplayVersion
+                | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
+                    let _ = err.print();
+                    if err.kind() == ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand {
+                        ExitCode::from(2)
+                    } else {
+                        ExitCode::SUCCESS
+                    }
+                }
+                _ => {
+                    eprintln!("heatbound: error: {}", usage_line(&err));
+                    ExitCode::from(2)
+                }
+            };
+        }
+    };
     let result = match cli.command {
         Command::Cycle(args) => cmd::cycle::run(&args),
         Command::Convert(args) => cmd::convert::run(&args),
+        Command::Analyze(args) => cmd::analyze::run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

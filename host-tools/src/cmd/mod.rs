@@ -1,3 +1,4 @@
 //! One module per subcommand.
+pub mod analyze;
 pub mod convert;
 pub mod cycle;
