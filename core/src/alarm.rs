@@ -21,7 +21,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::config::{Alarms as AlarmConfig, RigConfig};
-use crate::monitor::{Faults, Metrics};
+use crate::monitor::{AlarmFigures, Faults};
 use crate::num::Real;
 
 /// The alarm rules. Their ids ([`RuleId::as_str`]) are part of the interface.
@@ -320,10 +320,8 @@ pub enum Verdict {
 /// temperature and the channel faults.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct AlarmInputs<R: Real> {
-    /// The sliding window's figures that the rules read: the Carnot margin,
-    /// σ̇, the entropy inflow, the second-law efficiency, the balance residual
-    /// and their uncertainties. Figures no rule reads may be `None` here.
-    pub window: Metrics<R>,
+    /// The sliding window's figures that the rules read.
+    pub figures: AlarmFigures<R>,
     /// Latest valid hot-side temperature, kelvin.
     pub t_hot_k: Option<R>,
     /// Channel faults.
@@ -377,7 +375,7 @@ impl Limits {
 fn verdicts<R: Real>(limits: &Limits, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
     let k = R::from_f64(limits.coverage_factor);
     let db = |id: RuleId| R::from_f64(limits.deadband[id.index()]);
-    let m = &inputs.window;
+    let m = &inputs.figures;
 
     // η − η_C − k·u(margin), with margin = η_C − η (or COP_C − COP).
     let beyond = match (m.carnot_margin, m.u_carnot_margin) {
@@ -502,7 +500,12 @@ impl AlarmSet {
     pub fn apply(&mut self, t_ms: u32, verdicts: &[Verdict; RuleId::COUNT]) -> Events {
         let mut events = Events::new();
         for id in RuleId::ALL {
-            if let Some(kind) = self.step(id, t_ms, verdicts[id.index()]) {
+            let verdict = verdicts[id.index()];
+            // The common case, a quiet rule that stays quiet, costs nothing.
+            if verdict == Verdict::Clear && self.states[id.index()] == AlarmState::Normal {
+                continue;
+            }
+            if let Some(kind) = self.step(id, t_ms, verdict) {
                 // Capacity is two per rule; one step emits at most one.
                 let _ = events.push(self.event(id, t_ms, kind));
             }

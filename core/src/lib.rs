@@ -32,6 +32,7 @@ pub mod gas;
 pub mod monitor;
 pub mod num;
 pub mod sensor;
+pub mod wire;
 
 /// The molar gas constant R in J/(mol·K): N_A·k with both defining constants
 /// exact in the 2019 SI (CODATA 2018, unchanged in 2022).

@@ -20,7 +20,9 @@
 //! - `S_gen = ∫(q_out/T_cold) dt + Q_loss/T0 − ∫(q_in/T_hot) dt`, with
 //!   `Q_loss = Q_in − W − Q_out` only when heat out is measured; `σ̇ = S_gen`
 //!   per second of integrated time; exergy destroyed `T0·S_gen` (Gouy–Stodola).
-//!   `T0` is the configured ambient, else the cold-side mean.
+//!   `T0` is the configured ambient, else the cold-side mean: the time mean
+//!   of `T_cold` when heat out is measured (a heat-weighted mean would be
+//!   undefined once the coolant stops carrying heat), `T_c` when inferred.
 //! - Heat pump and cooler: COP `Q_in/W` (heat delivered) or `Q_out/W` (heat
 //!   drawn) against `T_h/(T_h − T_c)` or `T_c/(T_h − T_c)`; the entropy
 //!   account changes sign with the direction of the heat flows.
@@ -36,8 +38,8 @@
 //! derivative of every figure with respect to each of the five systematic
 //! errors follows exactly. Correlations are kept because each error's
 //! partials are combined before squaring: `u(margin)` is not
-//! `√(u(η_C)² + u(η)²)`. A configured `T0` is exact; the default `T0`, the
-//! cold-side mean, is itself measured and is propagated like `T_c`.
+//! `√(u(η_C)² + u(η)²)`. A configured `T0` is exact; the default `T0` is
+//! itself measured, and a cold-side offset moves it one for one.
 //!
 //! ## Cost and precision
 //! [`Monitor::push`] adds one interval to the window and to the run totals
@@ -217,6 +219,9 @@ pub struct Integrals<R> {
     pub cold_heat_in_j_per_k: R,
     /// With heat out inferred: `∫w/T_cold dt`, J/K (else 0).
     pub cold_work_j_per_k: R,
+    /// With heat out measured: `∫T_cold dt`, K·s, whose time mean is the
+    /// default T0 (else 0).
+    pub cold_temperature_integral_k_s: R,
 }
 
 /// What the figures need besides the integrals.
@@ -384,12 +389,77 @@ impl<R: Real> Integrals<R> {
     /// assert_eq!(m.carnot_efficiency, Some(0.5));
     /// ```
     pub fn metrics(&self, settings: &FigureSettings) -> Metrics<R> {
-        self.figures(settings, true)
+        let c = self.second_law(settings);
+        let u = &settings.uncertainty;
+        let mut m = Metrics {
+            duration_s: self.duration_s,
+            heat_in_j: self.heat_in_j,
+            work_j: self.work_j,
+            heat_out_j: self.heat_out_j,
+            hot_mean_k: c.th,
+            cold_mean_k: c.tc,
+            carnot_margin: c.margin(),
+            second_law_efficiency: c.second_law_efficiency(),
+            u_carnot_margin: c.u_margin(u),
+            balance_residual_j: c.loss,
+            u_balance_residual_j: c.u_loss,
+            entropy_generated_j_per_k: c.s_gen,
+            u_entropy_generated_j_per_k: c.u_s_gen(u),
+            entropy_rate_w_per_k: c.s_gen.and_then(|s| ratio(s, self.duration_s)),
+            u_entropy_rate_w_per_k: c.u_s_gen(u).and_then(|s| ratio(s, self.duration_s)),
+            entropy_in_rate_w_per_k: ratio(self.entropy_in_j_per_k, self.duration_s),
+            ambient_k: c.t0,
+            exergy_destroyed_j: match (c.s_gen, c.t0) {
+                (Some(s), Some(t0)) => fin(s * t0),
+                _ => None,
+            },
+            ..Metrics::default()
+        };
+        let u_perf = c.d_perf.and_then(|d| d.combine(u));
+        let u_bound = c.d_bound.and_then(|d| d.combine(u));
+        if settings.mode == Mode::Engine {
+            m.efficiency = c.perf;
+            m.carnot_efficiency = c.bound;
+            m.u_efficiency = u_perf;
+            m.u_carnot_efficiency = u_bound;
+            m.curzon_ahlborn_efficiency = match (c.th, c.tc) {
+                (Some(th), Some(tc)) if th > tc => fin(R::ONE - (tc / th).sqrt()),
+                _ => None,
+            };
+        } else {
+            m.cop = c.perf;
+            m.carnot_cop = c.bound;
+            m.u_cop = u_perf;
+            m.u_carnot_cop = u_bound;
+        }
+        m
     }
 
-    /// The figures; with `all` false, only those the alarm rules read
-    /// (margin, σ̇, balance and their uncertainties), for the per-sample path.
-    fn figures(&self, settings: &FigureSettings, all: bool) -> Metrics<R> {
+    /// Only the figures the alarm rules read: the per-sample path, which
+    /// skips everything [`Integrals::metrics`] adds for reports.
+    pub fn alarm_figures(&self, settings: &FigureSettings) -> AlarmFigures<R> {
+        let c = self.second_law(settings);
+        let u = &settings.uncertainty;
+        let u_s = c.u_s_gen(u);
+        AlarmFigures {
+            heat_in_j: self.heat_in_j,
+            carnot_margin: c.margin(),
+            u_carnot_margin: c.u_margin(u),
+            second_law_efficiency: c.second_law_efficiency(),
+            entropy_rate_w_per_k: c.s_gen.and_then(|s| ratio(s, self.duration_s)),
+            u_entropy_rate_w_per_k: u_s.and_then(|s| ratio(s, self.duration_s)),
+            entropy_in_rate_w_per_k: ratio(self.entropy_in_j_per_k, self.duration_s),
+            balance_residual_j: c.loss,
+            u_balance_residual_j: c.u_loss,
+        }
+    }
+
+    /// The mean temperatures, the figure of merit and its bound, the entropy
+    /// account and the partial derivatives behind their uncertainties.
+    // Inlined so that the shared struct dissolves into registers on the
+    // per-sample path.
+    #[inline(always)]
+    fn second_law(&self, settings: &FigureSettings) -> SecondLaw<R> {
         let u = &settings.uncertainty;
         let mode = settings.mode;
         let measured = self.heat_out_measured;
@@ -399,19 +469,9 @@ impl<R: Real> Integrals<R> {
         let (ca, cb) = (self.cold_heat_in_j_per_k, self.cold_work_j_per_k);
         let zero = R::ZERO;
 
-        let mut m = Metrics {
-            duration_s: self.duration_s,
-            heat_in_j: qi,
-            work_j: w,
-            heat_out_j: qo,
-            ..Metrics::default()
-        };
-
         // Mean temperatures and their partials.
         let th = ratio(qi, si);
         let tc = ratio(qo, so);
-        m.hot_mean_k = th;
-        m.cold_mean_k = tc;
         let d_th = Partials {
             hot: ratio(qi * si2, si * si).unwrap_or(zero),
             ..Partials::default()
@@ -430,9 +490,9 @@ impl<R: Real> Integrals<R> {
             None => Partials::default(),
         };
 
-        // Performance and its bound.
-        let (perf, d_perf, bound, d_bound) = match (mode, th, tc) {
-            (Mode::Engine, _, _) => {
+        // The figure of merit and its bound.
+        let (perf, d_perf, bound, d_bound) = match mode {
+            Mode::Engine => {
                 let eta = ratio(w, qi);
                 let d_eta = eta.map(|e| Partials {
                     heat_in: -e,
@@ -446,15 +506,9 @@ impl<R: Real> Integrals<R> {
                     }
                     _ => (None, None),
                 };
-                m.efficiency = eta;
-                m.carnot_efficiency = carnot;
-                m.curzon_ahlborn_efficiency = match (th, tc) {
-                    (Some(th), Some(tc)) if all && th > tc => fin(R::ONE - (tc / th).sqrt()),
-                    _ => None,
-                };
                 (eta, d_eta, carnot, d_carnot)
             }
-            (_, th, tc) => {
+            _ => {
                 let cop = match mode {
                     Mode::HeatPump => ratio(qi, w),
                     _ => ratio(qo, w),
@@ -489,50 +543,28 @@ impl<R: Real> Integrals<R> {
                     }
                     _ => (None, None),
                 };
-                m.cop = cop;
-                m.carnot_cop = carnot;
                 (cop, d_cop, carnot, d_carnot)
             }
         };
-        let (u_perf, u_bound) = if all {
-            (
-                d_perf.and_then(|d| d.combine(u)),
-                d_bound.and_then(|d| d.combine(u)),
-            )
-        } else {
-            (None, None)
-        };
-        if mode == Mode::Engine {
-            m.u_efficiency = u_perf;
-            m.u_carnot_efficiency = u_bound;
-        } else {
-            m.u_cop = u_perf;
-            m.u_carnot_cop = u_bound;
-        }
-        if let (Some(p), Some(b)) = (perf, bound) {
-            m.carnot_margin = fin(b - p);
-            m.second_law_efficiency = ratio(p, b);
-        }
-        if let (Some(dp), Some(db)) = (d_perf, d_bound) {
-            m.u_carnot_margin = db.sub(dp).combine(u);
-        }
 
         // Energy balance and the entropy account, engine convention first.
+        // T0: the configured ambient, else the cold-side mean. With heat out
+        // measured that is the time mean of T_cold: a heat-weighted mean
+        // would be undefined once the coolant stops carrying heat away.
         let t0 = match settings.ambient_k {
             Some(t) => Some(R::from_f64(t)),
+            None if measured => ratio(self.cold_temperature_integral_k_s, self.duration_s),
             None => tc,
         };
-        m.ambient_k = t0;
         let sign = if mode.is_reverse() { -R::ONE } else { R::ONE };
-        let (s_gen, d_s) = if measured {
+        let (loss, u_loss, s_gen, d_s) = if measured {
             let loss = qi - w - qo;
-            m.balance_residual_j = fin(loss * sign);
             let t = |x: R| x * x;
-            m.u_balance_residual_j = fin((t(qi * R::from_f64(u.heat_in_rel))
+            let u_loss = fin((t(qi * R::from_f64(u.heat_in_rel))
                 + t(w * R::from_f64(u.work_rel))
                 + t(qo * R::from_f64(u.heat_out_rel)))
             .sqrt());
-            match t0 {
+            let (s_gen, d_s) = match t0 {
                 Some(t0) if t0 > zero => {
                     let mut d = Partials {
                         hot: si2,
@@ -542,14 +574,15 @@ impl<R: Real> Integrals<R> {
                         heat_out: so - qo / t0,
                     };
                     if settings.ambient_k.is_none() {
-                        // The default T0 is the measured cold-side mean, so the
-                        // errors that move T_c also move Q_loss/T0.
-                        d = d.sub(d_tc.scale(loss / (t0 * t0)));
+                        // The default T0 is the time mean of T_cold, which a
+                        // cold-side offset moves one for one: so does Q_loss/T0.
+                        d.cold = d.cold - loss / (t0 * t0);
                     }
                     (fin(so + loss / t0 - si), Some(d))
                 }
                 _ => (None, None),
-            }
+            };
+            (fin(loss * sign), u_loss, s_gen, d_s)
         } else {
             let d = Partials {
                 hot: si2,
@@ -558,48 +591,135 @@ impl<R: Real> Integrals<R> {
                 work: -cb,
                 heat_out: zero,
             };
-            (fin(so - si), Some(d))
+            (None, None, fin(so - si), Some(d))
         };
-        let s_gen = s_gen.map(|s| s * sign);
-        m.entropy_generated_j_per_k = s_gen;
-        let u_s = d_s.and_then(|d| d.combine(u));
-        m.u_entropy_generated_j_per_k = u_s;
-        m.entropy_rate_w_per_k = s_gen.and_then(|s| ratio(s, self.duration_s));
-        m.u_entropy_rate_w_per_k = u_s.and_then(|s| ratio(s, self.duration_s));
-        m.entropy_in_rate_w_per_k = ratio(si, self.duration_s);
-        m.exergy_destroyed_j = match (s_gen, t0) {
-            (Some(s), Some(t0)) if all => fin(s * t0),
-            _ => None,
-        };
-        m
+        SecondLaw {
+            th,
+            tc,
+            perf,
+            d_perf,
+            bound,
+            d_bound,
+            t0,
+            loss,
+            u_loss,
+            s_gen: s_gen.map(|s| s * sign),
+            d_s,
+        }
     }
 }
 
-/// How many integrals the monitor keeps, and where each sits in a [`Terms`].
-const TERMS: usize = 10;
-/// Time, seconds.
-const DT: usize = 0;
-/// `q_in`.
-const QI: usize = 1;
-/// `w`.
-const W: usize = 2;
-/// `q_out` (measured; with heat out inferred, `q_in − w`).
-const QO: usize = 3;
-/// `q_in/T_hot`.
-const SI: usize = 4;
-/// `q_in/T_hot²`.
-const SI2: usize = 5;
-/// Measured: `q_out/T_cold`; inferred: `q_in/T_cold`.
-const CA: usize = 6;
-/// Measured: 0; inferred: `w/T_cold`.
-const CB: usize = 7;
-/// Measured: `q_out/T_cold²`; inferred: `q_in/T_cold²`.
-const CA2: usize = 8;
-/// Measured: 0; inferred: `w/T_cold²`.
-const CB2: usize = 9;
+/// What [`Integrals::second_law`] works out, shared by the full figures and
+/// the alarms' figures.
+struct SecondLaw<R> {
+    th: Option<R>,
+    tc: Option<R>,
+    /// η, or COP reversed.
+    perf: Option<R>,
+    d_perf: Option<Partials<R>>,
+    /// η_C, or the Carnot COP reversed.
+    bound: Option<R>,
+    d_bound: Option<Partials<R>>,
+    t0: Option<R>,
+    /// Balance residual in the mode's convention (heat out measured only).
+    loss: Option<R>,
+    u_loss: Option<R>,
+    s_gen: Option<R>,
+    /// Partials of the engine-convention S_gen; the sign does not matter for u.
+    d_s: Option<Partials<R>>,
+}
 
-/// The integrands at one sample (with `DT` unused), or the contribution of
-/// one trapezoid. Arrays, so that sums and trapezoids vectorise.
+impl<R: Real> SecondLaw<R> {
+    fn margin(&self) -> Option<R> {
+        match (self.perf, self.bound) {
+            (Some(p), Some(b)) => fin(b - p),
+            _ => None,
+        }
+    }
+
+    fn second_law_efficiency(&self) -> Option<R> {
+        match (self.perf, self.bound) {
+            (Some(p), Some(b)) => ratio(p, b),
+            _ => None,
+        }
+    }
+
+    fn u_margin(&self, u: &Uncertainty) -> Option<R> {
+        match (self.d_perf, self.d_bound) {
+            (Some(dp), Some(db)) => db.sub(dp).combine(u),
+            _ => None,
+        }
+    }
+
+    fn u_s_gen(&self, u: &Uncertainty) -> Option<R> {
+        self.d_s.and_then(|d| d.combine(u))
+    }
+}
+
+/// The window figures the alarm rules read (see [`Metrics`] for each).
+#[derive(Clone, Copy, Debug, PartialEq, Default, Serialize)]
+pub struct AlarmFigures<R> {
+    /// `Q_in`, joules.
+    pub heat_in_j: R,
+    /// `η_C − η` (or `COP_C − COP`).
+    pub carnot_margin: Option<R>,
+    /// u(margin).
+    pub u_carnot_margin: Option<R>,
+    /// `η/η_C` (or `COP/COP_C`).
+    pub second_law_efficiency: Option<R>,
+    /// σ̇, W/K.
+    pub entropy_rate_w_per_k: Option<R>,
+    /// u(σ̇), W/K.
+    pub u_entropy_rate_w_per_k: Option<R>,
+    /// Entropy inflow rate, W/K.
+    pub entropy_in_rate_w_per_k: Option<R>,
+    /// Balance residual, joules (heat out measured only).
+    pub balance_residual_j: Option<R>,
+    /// u(balance residual), joules.
+    pub u_balance_residual_j: Option<R>,
+}
+
+impl<R: Copy> From<&Metrics<R>> for AlarmFigures<R> {
+    fn from(m: &Metrics<R>) -> Self {
+        Self {
+            heat_in_j: m.heat_in_j,
+            carnot_margin: m.carnot_margin,
+            u_carnot_margin: m.u_carnot_margin,
+            second_law_efficiency: m.second_law_efficiency,
+            entropy_rate_w_per_k: m.entropy_rate_w_per_k,
+            u_entropy_rate_w_per_k: m.u_entropy_rate_w_per_k,
+            entropy_in_rate_w_per_k: m.entropy_in_rate_w_per_k,
+            balance_residual_j: m.balance_residual_j,
+            u_balance_residual_j: m.u_balance_residual_j,
+        }
+    }
+}
+
+/// How many integrals the monitor keeps beside time, and where each sits
+/// in a [`Terms`]. Eight lanes of `f32` fill two SSE registers (one AVX
+/// register), which keeps the per-sample sums cheap.
+const TERMS: usize = 8;
+/// `q_in`.
+const QI: usize = 0;
+/// `w`.
+const W: usize = 1;
+/// `q_in/T_hot`.
+const SI: usize = 2;
+/// `q_in/T_hot²`.
+const SI2: usize = 3;
+/// Measured: `q_out/T_cold`; inferred: `q_in/T_cold`.
+const CA: usize = 4;
+/// Measured: `q_out`; inferred: `w/T_cold`.
+const CB: usize = 5;
+/// Measured: `q_out/T_cold²`; inferred: `q_in/T_cold²`.
+const CA2: usize = 6;
+/// Measured: `T_cold` (its time integral gives the default T0); inferred:
+/// `w/T_cold²`.
+const CB2: usize = 7;
+
+/// The integrands at one sample, or the contribution of one trapezoid.
+/// Arrays, so that sums and trapezoids vectorise. Time is kept apart, in
+/// whole milliseconds, where integer sums are exact.
 type Terms<R> = [R; TERMS];
 
 /// The integrands of a sample.
@@ -608,24 +728,14 @@ fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
     let inv_c = R::ONE / s.t_cold_k;
     let (qi, w) = (s.heat_in_w, s.work_w);
     let si = qi * inv_h;
-    let (qo, ca, cb) = if measured {
+    if measured {
         let qo = s.heat_out_w.unwrap_or(R::ZERO);
-        (qo, qo * inv_c, R::ZERO)
+        let ca = qo * inv_c;
+        [qi, w, si, si * inv_h, ca, qo, ca * inv_c, s.t_cold_k]
     } else {
-        (qi - w, qi * inv_c, w * inv_c)
-    };
-    [
-        R::ZERO,
-        qi,
-        w,
-        qo,
-        si,
-        si * inv_h,
-        ca,
-        cb,
-        ca * inv_c,
-        cb * inv_c,
-    ]
+        let (ca, cb) = (qi * inv_c, w * inv_c);
+        [qi, w, si, si * inv_h, ca, cb, ca * inv_c, cb * inv_c]
+    }
 }
 
 /// The trapezoid between integrands `a` and `b`, `dt` seconds apart.
@@ -635,85 +745,84 @@ fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt: R) -> Terms<R> {
     for ((o, x), y) in out.iter_mut().zip(a).zip(b) {
         *o = h * (*x + *y);
     }
-    out[DT] = dt;
     out
 }
 
-/// The integrals from summed terms.
-fn integrals_of<R: Real>(v: &Terms<R>, measured: bool) -> Integrals<R> {
+/// The integrals from summed terms over `duration_ms`.
+fn integrals_of<R: Real>(v: &Terms<R>, duration_ms: u64, measured: bool) -> Integrals<R> {
+    let (cold, cold_sensitivity, heat_out_j, cold_heat_in, cold_work, cold_time) = if measured {
+        (v[CA], v[CA2], v[CB], R::ZERO, R::ZERO, v[CB2])
+    } else {
+        (
+            v[CA] - v[CB],
+            v[CA2] - v[CB2],
+            v[QI] - v[W],
+            v[CA],
+            v[CB],
+            R::ZERO,
+        )
+    };
     Integrals {
-        duration_s: v[DT],
+        duration_s: R::from_f64(duration_ms as f64 * 1e-3),
         heat_in_j: v[QI],
         work_j: v[W],
-        heat_out_j: if measured { v[QO] } else { v[QI] - v[W] },
+        heat_out_j,
         heat_out_measured: measured,
         entropy_in_j_per_k: v[SI],
-        entropy_out_j_per_k: v[CA] - v[CB],
+        entropy_out_j_per_k: cold,
         hot_sensitivity: v[SI2],
-        cold_sensitivity: v[CA2] - v[CB2],
-        cold_heat_in_j_per_k: if measured { R::ZERO } else { v[CA] },
-        cold_work_j_per_k: if measured { R::ZERO } else { v[CB] },
+        cold_sensitivity,
+        cold_heat_in_j_per_k: cold_heat_in,
+        cold_work_j_per_k: cold_work,
+        cold_temperature_integral_k_s: cold_time,
     }
 }
 
 const BUCKETS: usize = 8;
 const STEADY_CHANNELS: usize = 5;
 
-/// Min and max of each channel over a stretch of time.
+/// Min and max of each channel over a stretch of time. An empty span has
+/// `min = MAX` and `max = −MAX`, so including and merging need no branches.
 #[derive(Clone, Copy, Debug)]
 struct Span<R> {
     min: [R; STEADY_CHANNELS],
     max: [R; STEADY_CHANNELS],
-    samples: u32,
+}
+
+#[inline]
+fn lesser<R: Real>(a: R, b: R) -> R {
+    if b < a { b } else { a }
+}
+
+#[inline]
+fn greater<R: Real>(a: R, b: R) -> R {
+    if b > a { b } else { a }
 }
 
 impl<R: Real> Span<R> {
     fn empty() -> Self {
         Self {
-            min: [R::ZERO; STEADY_CHANNELS],
-            max: [R::ZERO; STEADY_CHANNELS],
-            samples: 0,
+            min: [R::MAX; STEADY_CHANNELS],
+            max: [-R::MAX; STEADY_CHANNELS],
         }
     }
 
-    fn include(&mut self, v: &[R; STEADY_CHANNELS]) {
-        if self.samples == 0 {
-            self.min = *v;
-            self.max = *v;
-        } else {
-            for ((x, lo), hi) in v.iter().zip(&mut self.min).zip(&mut self.max) {
-                if *x < *lo {
-                    *lo = *x;
-                }
-                if *x > *hi {
-                    *hi = *x;
-                }
-            }
+    #[inline]
+    fn merge(&mut self, min: &[R; STEADY_CHANNELS], max: &[R; STEADY_CHANNELS]) {
+        for (lo, x) in self.min.iter_mut().zip(min) {
+            *lo = lesser(*lo, *x);
         }
-        self.samples = self.samples.saturating_add(1);
-    }
-
-    fn merge(&mut self, o: &Span<R>) {
-        if o.samples == 0 {
-            return;
+        for (hi, x) in self.max.iter_mut().zip(max) {
+            *hi = greater(*hi, *x);
         }
-        if self.samples == 0 {
-            *self = *o;
-            return;
-        }
-        for i in 0..STEADY_CHANNELS {
-            if o.min[i] < self.min[i] {
-                self.min[i] = o.min[i];
-            }
-            if o.max[i] > self.max[i] {
-                self.max[i] = o.max[i];
-            }
-        }
-        self.samples = self.samples.saturating_add(o.samples);
     }
 }
 
 /// Steady-state test over time buckets: amortised O(1) per sample.
+///
+/// The duration is split into 8 buckets; each keeps the min and max of every
+/// channel. The flag says that the last 8 complete buckets and the current
+/// one, together at least the configured duration, stayed within the bands.
 #[derive(Clone, Copy, Debug)]
 struct SteadyTracker<R> {
     bucket_ms: u32,
@@ -724,8 +833,10 @@ struct SteadyTracker<R> {
     done_merged: Span<R>,
     next: usize,
     completed: usize,
-    /// Bands: absolute for the temperatures, relative for the powers.
-    band: [R; STEADY_CHANNELS],
+    /// Absolute part of each band (the temperatures), and relative part (the
+    /// powers, as a fraction of the larger magnitude).
+    band_abs: [R; STEADY_CHANNELS],
+    band_rel: [R; STEADY_CHANNELS],
     started: bool,
 }
 
@@ -733,6 +844,7 @@ impl<R: Real> SteadyTracker<R> {
     fn new(config: &RigConfig) -> Self {
         let s = &config.steady;
         let bucket_ms = (s.duration_s * 1000.0 / BUCKETS as f64).clamp(1.0, u32::MAX as f64) as u32;
+        let z = 0.0;
         Self {
             bucket_ms,
             bucket_start_ms: 0,
@@ -741,9 +853,10 @@ impl<R: Real> SteadyTracker<R> {
             done_merged: Span::empty(),
             next: 0,
             completed: 0,
-            band: [
-                s.hot_band_k,
-                s.cold_band_k,
+            band_abs: [s.hot_band_k, s.cold_band_k, z, z, z].map(R::from_f64),
+            band_rel: [
+                z,
+                z,
                 s.heat_in_band_rel,
                 s.work_band_rel,
                 s.heat_out_band_rel,
@@ -757,6 +870,7 @@ impl<R: Real> SteadyTracker<R> {
         self.started = true;
         self.bucket_start_ms = t_ms;
         self.current = Span::empty();
+        self.done = [Span::empty(); BUCKETS];
         self.done_merged = Span::empty();
         self.completed = 0;
         self.next = 0;
@@ -773,7 +887,9 @@ impl<R: Real> SteadyTracker<R> {
             // Close the current bucket, and any empty ones after it.
             let mut closed = 0;
             while elapsed >= self.bucket_ms && closed <= BUCKETS {
-                self.done[self.next] = self.current;
+                if let Some(slot) = self.done.get_mut(self.next) {
+                    *slot = self.current;
+                }
                 self.current = Span::empty();
                 self.next = (self.next + 1) % BUCKETS;
                 self.completed = (self.completed + 1).min(BUCKETS);
@@ -786,29 +902,23 @@ impl<R: Real> SteadyTracker<R> {
             }
             let mut merged = Span::empty();
             for b in &self.done {
-                merged.merge(b);
+                merged.merge(&b.min, &b.max);
             }
             self.done_merged = merged;
         }
-        self.current.include(v);
+        self.current.merge(v, v);
         if self.completed < BUCKETS {
             return false;
         }
         let mut all = self.done_merged;
-        all.merge(&self.current);
-        (0..STEADY_CHANNELS).all(|i| {
-            let spread = all.max[i] - all.min[i];
-            if i < 2 {
-                spread <= self.band[i]
-            } else {
-                let scale = if all.max[i].abs() > all.min[i].abs() {
-                    all.max[i].abs()
-                } else {
-                    all.min[i].abs()
-                };
-                spread <= self.band[i] * scale
-            }
-        })
+        all.merge(&self.current.min, &self.current.max);
+        let mut steady = true;
+        for i in 0..STEADY_CHANNELS {
+            let (lo, hi) = (all.min[i], all.max[i]);
+            let scale = greater(hi.abs(), lo.abs());
+            steady &= hi - lo <= self.band_abs[i] + self.band_rel[i] * scale;
+        }
+        steady
     }
 }
 
@@ -891,14 +1001,18 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     measured: Option<bool>,
     /// Time and integrands of the previous valid sample.
     prev: Option<(u32, Terms<R>)>,
-    /// `ring[i]` is the trapezoid that ends at the i-th sample of the window
+    /// `ring[i]` and `ring_ms[i]` are the trapezoid that ends at the i-th
+    /// sample of the window and its length
     /// (zero for a sample that starts integration).
     ring: [Terms<R>; N],
+    ring_ms: [u32; N],
     head: usize,
     filled: usize,
     window: CompensatedSums<R, TERMS>,
+    window_ms: u64,
     totals: RunningTotals<R, TERMS>,
-    steady_s: RunningTotals<R, 1>,
+    totals_ms: u64,
+    steady_ms: u64,
     steady: SteadyTracker<R>,
     stuck: StuckCheck<R>,
     is_steady: bool,
@@ -946,11 +1060,14 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             measured: None,
             prev: None,
             ring: [[R::ZERO; TERMS]; N],
+            ring_ms: [0; N],
             head: 0,
             filled: 0,
             window: CompensatedSums::new(),
             totals: RunningTotals::new(),
-            steady_s: RunningTotals::new(),
+            window_ms: 0,
+            totals_ms: 0,
+            steady_ms: 0,
             steady: SteadyTracker::new(config),
             stuck: StuckCheck {
                 last: [R::ZERO; STEADY_CHANNELS],
@@ -1039,8 +1156,9 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
         let slice = match &self.prev {
             Some((t_prev, p)) if s.t_ms.wrapping_sub(*t_prev) <= self.max_gap_ms => {
-                let dt = R::from_f64(f64::from(s.t_ms.wrapping_sub(*t_prev)) * 1e-3);
-                Some(trapezoid(p, &point, dt))
+                let dt_ms = s.t_ms.wrapping_sub(*t_prev);
+                let dt = R::from_f64(f64::from(dt_ms) * 1e-3);
+                Some((trapezoid(p, &point, dt), dt_ms))
             }
             _ => None,
         };
@@ -1049,27 +1167,39 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
         // Slide the window: the new sample's trapezoid enters; when full, the
         // oldest sample leaves and with it the trapezoid to its successor.
-        let entry = slice.unwrap_or([R::ZERO; TERMS]);
+        let (entry, entry_ms) = slice.unwrap_or(([R::ZERO; TERMS], 0));
         if self.filled == self.window_len {
-            self.head = (self.head + 1) % self.window_len;
-            if let Some(oldest_link) = self.ring.get(self.head) {
-                self.window.sub(oldest_link);
+            self.head = if self.head + 1 == self.window_len {
+                0
+            } else {
+                self.head + 1
+            };
+            if let (Some(link), Some(ms)) = (self.ring.get(self.head), self.ring_ms.get(self.head))
+            {
+                self.window.sub(link);
+                self.window_ms -= u64::from(*ms);
             }
         } else {
             self.filled += 1;
         }
-        let newest = (self.head + self.filled - 1) % self.window_len;
-        if let Some(slot) = self.ring.get_mut(newest) {
+        let mut newest = self.head + self.filled - 1;
+        if newest >= self.window_len {
+            newest -= self.window_len;
+        }
+        if let (Some(slot), Some(ms)) = (self.ring.get_mut(newest), self.ring_ms.get_mut(newest)) {
             *slot = entry;
+            *ms = entry_ms;
         }
         // The oldest sample's own trapezoid reaches outside the window.
         if self.filled > 1 {
             self.window.add(&entry);
+            self.window_ms += u64::from(entry_ms);
         }
 
         let outcome = match slice {
-            Some(slice) => {
+            Some((slice, _)) => {
                 self.totals.add(&slice);
+                self.totals_ms += u64::from(entry_ms);
                 Pushed::Integrated
             }
             None => {
@@ -1081,8 +1211,8 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             }
         };
         self.is_steady = self.steady.push(s.t_ms, &values);
-        if let (true, Some(slice)) = (self.is_steady, slice) {
-            self.steady_s.add(&[slice[DT]]);
+        if self.is_steady {
+            self.steady_ms += u64::from(entry_ms);
         }
         outcome
     }
@@ -1100,12 +1230,20 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
     /// The window's raw integrals.
     pub fn window_integrals(&self) -> Integrals<R> {
-        integrals_of(&self.window.values(), self.measured.unwrap_or(false))
+        integrals_of(
+            &self.window.values(),
+            self.window_ms,
+            self.measured.unwrap_or(false),
+        )
     }
 
     /// The run's raw integrals.
     pub fn totals_integrals(&self) -> Integrals<R> {
-        integrals_of(&self.totals.values(), self.measured.unwrap_or(false))
+        integrals_of(
+            &self.totals.values(),
+            self.totals_ms,
+            self.measured.unwrap_or(false),
+        )
     }
 
     /// Every figure of the sliding window.
@@ -1121,7 +1259,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// What the alarm rules need now.
     pub fn alarm_inputs(&self) -> AlarmInputs<R> {
         AlarmInputs {
-            window: self.window_integrals().figures(&self.settings, false),
+            figures: self.window_integrals().alarm_figures(&self.settings),
             t_hot_k: self.last_t_hot_k,
             faults: self.faults,
         }
@@ -1139,10 +1277,9 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
     /// Fraction of integrated run time that was steady, if any time was integrated.
     pub fn steady_fraction(&self) -> Option<R> {
-        let [steady] = self.steady_s.values_f64();
         ratio(
-            R::from_f64(steady),
-            R::from_f64(self.totals.values_f64()[DT]),
+            R::from_f64(self.steady_ms as f64),
+            R::from_f64(self.totals_ms as f64),
         )
     }
 

@@ -775,7 +775,9 @@ fn shipped_example_runs_and_shows_the_coolant_loss() {
     // After the coolant is lost, the calorimeter reads nothing: the window's
     // energy balance is nearly all residual.
     let w = &j["window"];
-    assert_eq!(f(w, "heat_out_j"), 0.0);
+    // Zero up to the rounding the window's compensated add-and-subtract
+    // leaves behind (about 1e-17 of the energies that passed through it).
+    assert!(f(w, "heat_out_j").abs() < 1e-12 * f(&j["totals"], "heat_in_j"));
     assert!(f(w, "balance_residual_j") > 0.9 * f(w, "heat_in_j"));
 
     let out = heatbound()

@@ -15,7 +15,7 @@ use heatbound::alarm::{
     AlarmInputs, AlarmSet, AlarmState, Event, EventKind, Limits, RuleId, Severity, Verdict,
 };
 use heatbound::config::{AlarmsFile, RigConfig, RigFile, RuleFile};
-use heatbound::monitor::{Faults, Metrics, Monitor, Sample};
+use heatbound::monitor::{AlarmFigures, Faults, Metrics, Monitor, Sample};
 
 const RAISE: Verdict = Verdict::Raise { since_ms: None };
 
@@ -107,7 +107,7 @@ fn deadband_sits_below_the_limit() {
     let limits = Limits::new(&RigConfig::default());
     let at = |t: f32| {
         let inputs = AlarmInputs {
-            window: Metrics::<f32>::default(),
+            figures: AlarmFigures::<f32>::default(),
             t_hot_k: Some(t),
             faults: Faults::default(),
         };
@@ -119,7 +119,7 @@ fn deadband_sits_below_the_limit() {
     assert_eq!(at(1088.5), Verdict::Clear);
     // Not evaluable (no valid hot reading yet) counts as clear.
     let none = AlarmInputs {
-        window: Metrics::<f32>::default(),
+        figures: AlarmFigures::<f32>::default(),
         t_hot_k: None,
         faults: Faults::default(),
     };

@@ -532,7 +532,7 @@ fn long_run_check(samples: u64, tol: f64) -> f64 {
 #[test]
 fn three_days_at_10_hz_f32_totals_match_f64() {
     // 2.6 million samples keeps the default (debug) test to a few seconds.
-    // Measured: worst relative error 1.4e-7 (S_gen; Q_in 6.5e-9, T_h 3.4e-8);
+    // Measured: worst relative error 7.7e-8 (η_C; Q_in 6.5e-9, S_gen 2.7e-8);
     // asserted < 1e-6.
     long_run_check(3 * 864_000, 1e-6);
 }
@@ -543,7 +543,7 @@ fn three_days_at_10_hz_f32_totals_match_f64() {
 #[test]
 #[ignore = "25.9 million samples: run in release, see doc comment"]
 fn thirty_days_at_10_hz_f32_totals_match_f64() {
-    // Measured: worst relative error 5.6e-8 (Q_in; S_gen 4.7e-8, η_C 4.6e-8),
-    // 3.3 s in release; asserted < 1e-6.
+    // Measured: worst relative error 1.2e-7 (T_c; Q_in 4.3e-8, S_gen 4.7e-8),
+    // about 4.5 s in release; asserted < 1e-6.
     long_run_check(30 * 864_000, 1e-6);
 }

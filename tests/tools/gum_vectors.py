@@ -19,7 +19,8 @@ the whole integrand:
 
 The integrals are then taken by the trapezoid rule with these ufloats, and
 eta, eta_C, margin, S_gen and sigma-dot follow from DESIGN.md §4. When heat
-out is measured and no ambient is configured, T0 is the cold-side mean and so
+out is measured and no ambient is configured, T0 is the time mean of the cold-side
+reading and so
 depends on the cold offset: it is propagated like every other derived value.
 
 Usage (from the workspace root):
@@ -83,17 +84,17 @@ def figures(case):
         qi = s["heat_in_w"] * s_in
         w = s["work_w"] * s_w
         qo = s["heat_out_w"] * s_out if measured else qi - w
-        return (qi, w, qo, qi / th, qo / tc)
+        return (qi, w, qo, qi / th, qo / tc, tc)
 
     pts = [point(s) for s in case["samples"]]
-    sums = [0.0] * 5
+    sums = [0.0] * 6
     duration = 0.0
     for a, b, sa, sb in zip(pts, pts[1:], case["samples"], case["samples"][1:]):
         dt = (sb["t_ms"] - sa["t_ms"]) * 1e-3
         duration += dt
-        for k in range(5):
+        for k in range(6):
             sums[k] = sums[k] + 0.5 * dt * (a[k] + b[k])
-    q_in, w, q_out, s_in_int, s_out_int = sums
+    q_in, w, q_out, s_in_int, s_out_int, tc_int = sums
     t_h = q_in / s_in_int
     t_c = q_out / s_out_int
     r = {"duration_s": duration, "hot_mean_k": t_h, "cold_mean_k": t_c}
@@ -112,7 +113,8 @@ def figures(case):
         sign = -1.0
     r["carnot_margin"] = bound - perf
     if measured:
-        t0 = ambient if ambient is not None else t_c
+        # Default T0: the time mean of the cold-side reading.
+        t0 = ambient if ambient is not None else tc_int / duration
         loss = q_in - w - q_out
         s_gen = s_out_int + loss / t0 - s_in_int
         r["balance_residual_j"] = sign * loss

@@ -1,0 +1,192 @@
+//! encode → decode is the identity for every valid frame, and every encoded
+//! frame fits the documented sizes.
+
+use heatbound::alarm::{Event, EventKind, RuleId, Severity};
+use heatbound::config::Mode;
+use heatbound::wire::{
+    self, EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Uncertainties,
+};
+use proptest::prelude::*;
+
+fn finite() -> impl Strategy<Value = f32> {
+    prop_oneof![
+        Just(0.0f32),
+        Just(-0.0f32),
+        Just(f32::MAX),
+        Just(f32::MIN_POSITIVE),
+        any::<f32>().prop_filter("finite", |x| x.is_finite()),
+        -1e6f32..1e6f32,
+    ]
+}
+
+fn figure() -> impl Strategy<Value = Option<f32>> {
+    prop_oneof![1 => Just(None), 3 => finite().prop_map(Some)]
+}
+
+fn status() -> impl Strategy<Value = Status> {
+    any::<[bool; 4]>().prop_map(
+        |[steady, heat_out_measured, trip_active, any_fault]| Status {
+            steady,
+            heat_out_measured,
+            trip_active,
+            any_fault,
+        },
+    )
+}
+
+prop_compose! {
+    fn summary()(seq in any::<u16>(), t_ms in any::<u32>(), integrals in [finite(), finite(),
+        finite(), finite(), finite(), finite()], f in proptest::collection::vec(figure(), 9),
+        status in status(), channels in 0u8..32, stale in any::<bool>(), alarms in 0u8..64)
+        -> Summary {
+        Summary {
+            seq, t_ms,
+            duration_s: integrals[0], heat_in_j: integrals[1], work_j: integrals[2],
+            heat_out_j: integrals[3], entropy_in_j_per_k: integrals[4],
+            entropy_out_j_per_k: integrals[5],
+            hot_mean_k: f[0], cold_mean_k: f[1], performance: f[2], bound: f[3],
+            entropy_rate_w_per_k: f[4], u_performance: f[5], u_bound: f[6], u_margin: f[7],
+            u_entropy_rate_w_per_k: f[8],
+            status, faults: FaultBits { channels, stale }, alarms,
+        }
+    }
+}
+
+fn mode() -> impl Strategy<Value = Mode> {
+    prop_oneof![Just(Mode::Engine), Just(Mode::HeatPump), Just(Mode::Cooler)]
+}
+
+prop_compose! {
+    fn hello()(id in "[ -~]{0,16}", fw in any::<(u8, u8, u8)>(), period in any::<u32>(),
+        window in any::<u16>(), mode in mode(), k in finite(),
+        ambient in prop_oneof![Just(None), finite().prop_map(Some)],
+        u in [finite(), finite(), finite(), finite(), finite()], digest in any::<u32>())
+        -> Hello {
+        Hello {
+            rig_id: RigId::new(&id).unwrap(),
+            firmware_version: fw, sample_period_ms: period, window_samples: window, mode,
+            coverage_factor: k, ambient_k: ambient,
+            uncertainty: Uncertainties { hot_k: u[0], cold_k: u[1], heat_in_rel: u[2],
+                work_rel: u[3], heat_out_rel: u[4] },
+            config_digest: digest,
+        }
+    }
+}
+
+fn event() -> impl Strategy<Value = EventFrame> {
+    (
+        any::<u16>(),
+        any::<u32>(),
+        0usize..RuleId::COUNT,
+        prop_oneof![
+            Just(EventKind::Raised),
+            Just(EventKind::Cleared),
+            Just(EventKind::Acknowledged)
+        ],
+        prop_oneof![
+            Just(Severity::Advisory),
+            Just(Severity::Warning),
+            Just(Severity::Trip)
+        ],
+    )
+        .prop_map(|(seq, t_ms, rule, kind, severity)| EventFrame {
+            seq,
+            event: Event {
+                t_ms,
+                rule: RuleId::from_index(rule).unwrap(),
+                kind,
+                severity,
+            },
+        })
+}
+
+fn frame() -> impl Strategy<Value = Frame> {
+    prop_oneof![
+        summary().prop_map(Frame::Summary),
+        hello().prop_map(Frame::Hello),
+        event().prop_map(Frame::Event),
+    ]
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(2000))]
+
+    #[test]
+    fn encode_decode_is_identity(frame in frame()) {
+        let mut buf = [0u8; wire::MAX_FRAME_LEN];
+        let n = wire::encode(&frame, &mut buf).unwrap();
+        prop_assert_eq!(buf[n - 1], 0);
+        prop_assert!(!buf[..n - 1].contains(&0));
+        if let Frame::Summary(_) = frame {
+            prop_assert!(n <= wire::SUMMARY_MAX_WIRE_LEN);
+        }
+        prop_assert_eq!(wire::decode(&buf[..n]), Ok(frame.clone()));
+        // And through the streaming decoder, byte by byte.
+        let mut d = wire::Decoder::<{ wire::MAX_FRAME_LEN }>::new();
+        let mut got = Vec::new();
+        d.feed(&buf[..n], |r| got.push(r));
+        prop_assert_eq!(got, vec![Ok(frame)]);
+    }
+
+    #[test]
+    fn a_missing_figure_roundtrips_as_none(s in summary(), which in 0usize..9) {
+        // None travels as the NaN sentinel and must come back as None.
+        let mut s = s;
+        let slots = [&mut s.hot_mean_k, &mut s.cold_mean_k, &mut s.performance, &mut s.bound,
+            &mut s.entropy_rate_w_per_k, &mut s.u_performance, &mut s.u_bound, &mut s.u_margin,
+            &mut s.u_entropy_rate_w_per_k];
+        *slots.into_iter().nth(which).unwrap() = None;
+        let mut buf = [0u8; wire::MAX_FRAME_LEN];
+        let n = wire::encode(&Frame::Summary(s), &mut buf).unwrap();
+        prop_assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Summary(s)));
+    }
+}
+
+#[test]
+fn worst_case_sizes() {
+    let mut buf = [0u8; wire::MAX_FRAME_LEN];
+    let worst_summary = Summary {
+        seq: u16::MAX,
+        t_ms: u32::MAX,
+        hot_mean_k: Some(1.0),
+        cold_mean_k: Some(1.0),
+        performance: Some(1.0),
+        bound: Some(1.0),
+        entropy_rate_w_per_k: Some(1.0),
+        u_performance: Some(1.0),
+        u_bound: Some(1.0),
+        u_margin: Some(1.0),
+        u_entropy_rate_w_per_k: Some(1.0),
+        alarms: 0x3F,
+        ..Summary::default()
+    };
+    let n = wire::encode(&Frame::Summary(worst_summary), &mut buf).unwrap();
+    assert_eq!(n, wire::SUMMARY_MAX_WIRE_LEN);
+    assert!(n <= 80);
+
+    let worst_hello = Hello {
+        rig_id: RigId::new("0123456789abcdef").unwrap(),
+        firmware_version: (255, 255, 255),
+        sample_period_ms: u32::MAX,
+        window_samples: u16::MAX,
+        mode: Mode::Cooler,
+        coverage_factor: 2.0,
+        ambient_k: Some(293.15),
+        uncertainty: Uncertainties::default(),
+        config_digest: u32::MAX,
+    };
+    let n = wire::encode(&Frame::Hello(worst_hello), &mut buf).unwrap();
+    assert_eq!(n, 70);
+
+    let worst_event = EventFrame {
+        seq: u16::MAX,
+        event: Event {
+            t_ms: u32::MAX,
+            rule: RuleId::SensorFault,
+            kind: EventKind::Acknowledged,
+            severity: Severity::Trip,
+        },
+    };
+    let n = wire::encode(&Frame::Event(worst_event), &mut buf).unwrap();
+    assert_eq!(n, 19);
+}
