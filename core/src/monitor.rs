@@ -316,6 +316,14 @@ fn fin<R: Real>(x: R) -> Option<R> {
     if x.is_finite() { Some(x) } else { None }
 }
 
+/// Whether `th` is above `tc` by more than rounding: temperatures a few
+/// units in the last place apart are equal for the Carnot figures, whose
+/// denominators would otherwise be rounding noise.
+#[inline]
+fn above<R: Real>(th: R, tc: R) -> bool {
+    th - tc > R::from_f64(16.0) * R::EPSILON * th
+}
+
 /// `a / b` if `b > 0` and the quotient is finite.
 #[inline]
 fn ratio<R: Real>(a: R, b: R) -> Option<R> {
@@ -382,6 +390,7 @@ impl<R: Real> Integrals<R> {
     ///     entropy_in_j_per_k: 1000.0 / 600.0, entropy_out_j_per_k: 850.0 / 300.0,
     ///     hot_sensitivity: 1000.0 / 360000.0, cold_sensitivity: 850.0 / 90000.0,
     ///     cold_heat_in_j_per_k: 1000.0 / 300.0, cold_work_j_per_k: 150.0 / 300.0,
+    ///     cold_temperature_integral_k_s: 0.0, // only used with heat out measured
     /// };
     /// let m = i.metrics(&FigureSettings::new(&RigConfig::default()));
     /// assert!((m.entropy_generated_j_per_k.unwrap() - 1.16667_f64).abs() < 1e-5);
@@ -423,7 +432,7 @@ impl<R: Real> Integrals<R> {
             m.u_efficiency = u_perf;
             m.u_carnot_efficiency = u_bound;
             m.curzon_ahlborn_efficiency = match (c.th, c.tc) {
-                (Some(th), Some(tc)) if th > tc => fin(R::ONE - (tc / th).sqrt()),
+                (Some(th), Some(tc)) if above(th, tc) => fin(R::ONE - (tc / th).sqrt()),
                 _ => None,
             };
         } else {
@@ -500,7 +509,7 @@ impl<R: Real> Integrals<R> {
                     ..Partials::default()
                 });
                 let (carnot, d_carnot) = match (th, tc) {
-                    (Some(th), Some(tc)) if th > tc => {
+                    (Some(th), Some(tc)) if above(th, tc) => {
                         let d = d_tc.scale(-R::ONE / th).sub(d_th.scale(-tc / (th * th)));
                         (fin(R::ONE - tc / th), Some(d))
                     }
@@ -534,7 +543,7 @@ impl<R: Real> Integrals<R> {
                     }
                 });
                 let (carnot, d_carnot) = match (th, tc) {
-                    (Some(th), Some(tc)) if th > tc => {
+                    (Some(th), Some(tc)) if above(th, tc) => {
                         let dt = th - tc;
                         let top = if mode == Mode::HeatPump { th } else { tc };
                         // d(T_h/ΔT) = d(T_c/ΔT) = (T_h dT_c − T_c dT_h)/ΔT².

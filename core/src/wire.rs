@@ -441,8 +441,11 @@ pub struct Summary {
     pub entropy_out_j_per_k: f32,
     /// Heat-weighted mean hot-side temperature, kelvin.
     pub hot_mean_k: Option<f32>,
-    /// Heat-weighted mean cold-side temperature, kelvin.
-    pub cold_mean_k: Option<f32>,
+    /// T0, kelvin: the configured ambient, else the cold-side mean the
+    /// device used (the time mean of `T_cold` with heat out measured, `T_c`
+    /// inferred). The heat-weighted `T_c` itself follows from the integrals
+    /// as `Q_out / ∫q_out/T_cold`.
+    pub ambient_k: Option<f32>,
     /// η (engine) or COP (heat pump, cooler).
     pub performance: Option<f32>,
     /// η_C (engine) or Carnot COP.
@@ -490,7 +493,7 @@ impl Summary {
             entropy_in_j_per_k: i.entropy_in_j_per_k,
             entropy_out_j_per_k: i.entropy_out_j_per_k,
             hot_mean_k: m.hot_mean_k,
-            cold_mean_k: m.cold_mean_k,
+            ambient_k: m.ambient_k,
             performance: pick(m.efficiency, m.cop),
             bound: pick(m.carnot_efficiency, m.carnot_cop),
             entropy_rate_w_per_k: m.entropy_rate_w_per_k,
@@ -531,14 +534,21 @@ impl Summary {
     /// assert_eq!(m.hot_mean_k, Some(500.0));
     /// ```
     pub fn integrals(&self) -> Integrals<f32> {
+        let measured = self.status.heat_out_measured;
         Integrals {
             duration_s: self.duration_s,
             heat_in_j: self.heat_in_j,
             work_j: self.work_j,
             heat_out_j: self.heat_out_j,
-            heat_out_measured: self.status.heat_out_measured,
+            heat_out_measured: measured,
             entropy_in_j_per_k: self.entropy_in_j_per_k,
             entropy_out_j_per_k: self.entropy_out_j_per_k,
+            // The device's T0 stands in for the cold-side time integral, so
+            // a default T0 is reproduced (configured ones come from `Hello`).
+            cold_temperature_integral_k_s: match (measured, self.ambient_k) {
+                (true, Some(t0)) => t0 * self.duration_s,
+                _ => 0.0,
+            },
             ..Integrals::default()
         }
     }
@@ -557,7 +567,7 @@ impl Summary {
     fn figures(&self) -> [Option<f32>; 9] {
         [
             self.hot_mean_k,
-            self.cold_mean_k,
+            self.ambient_k,
             self.performance,
             self.bound,
             self.entropy_rate_w_per_k,
@@ -672,7 +682,7 @@ fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
     ] = r.integrals;
     let [
         hot_mean_k,
-        cold_mean_k,
+        ambient_k,
         performance,
         bound,
         entropy_rate_w_per_k,
@@ -691,7 +701,7 @@ fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
         entropy_in_j_per_k,
         entropy_out_j_per_k,
         hot_mean_k,
-        cold_mean_k,
+        ambient_k,
         performance,
         bound,
         entropy_rate_w_per_k,

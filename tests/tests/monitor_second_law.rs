@@ -298,7 +298,9 @@ fn varying_against_trapezoid<R: Real>(tol: f64, measured: bool) {
         ("totals", m.totals_metrics(), total),
         ("window", m.window_metrics(), window),
     ] {
-        let t0 = measured.then(|| r.cold_mean_k());
+        // Default T0, the cold-side mean: with heat out measured, the time
+        // mean of T_cold; inferred, T_c (DESIGN.md §4, monitor docs).
+        let t0 = measured.then(|| r.cold_time_mean_k());
         let sgen = r.entropy_generated_j_per_k(t0);
         let want = [
             r.efficiency(),
@@ -307,7 +309,7 @@ fn varying_against_trapezoid<R: Real>(tol: f64, measured: bool) {
             r.cold_mean_k(),
             sgen,
             sgen / r.duration_s,
-            sgen * r.cold_mean_k(),
+            sgen * t0.unwrap_or(r.cold_mean_k()),
             r.carnot_efficiency() - r.efficiency(),
         ];
         for ((key, value), want) in f64s(&got).into_iter().zip(want) {

@@ -39,7 +39,7 @@ fn summary() -> Frame {
         entropy_in_j_per_k: 10.0,
         entropy_out_j_per_k: 14.0,
         hot_mean_k: Some(600.0),
-        cold_mean_k: Some(300.0),
+        ambient_k: Some(300.0),
         performance: Some(0.3),
         bound: Some(0.5),
         entropy_rate_w_per_k: Some(0.666_666_7),

@@ -44,7 +44,7 @@ prop_compose! {
             duration_s: integrals[0], heat_in_j: integrals[1], work_j: integrals[2],
             heat_out_j: integrals[3], entropy_in_j_per_k: integrals[4],
             entropy_out_j_per_k: integrals[5],
-            hot_mean_k: f[0], cold_mean_k: f[1], performance: f[2], bound: f[3],
+            hot_mean_k: f[0], ambient_k: f[1], performance: f[2], bound: f[3],
             entropy_rate_w_per_k: f[4], u_performance: f[5], u_bound: f[6], u_margin: f[7],
             u_entropy_rate_w_per_k: f[8],
             status, faults: FaultBits { channels, stale }, alarms,
@@ -132,7 +132,7 @@ proptest! {
     fn a_missing_figure_roundtrips_as_none(s in summary(), which in 0usize..9) {
         // None travels as the NaN sentinel and must come back as None.
         let mut s = s;
-        let slots = [&mut s.hot_mean_k, &mut s.cold_mean_k, &mut s.performance, &mut s.bound,
+        let slots = [&mut s.hot_mean_k, &mut s.ambient_k, &mut s.performance, &mut s.bound,
             &mut s.entropy_rate_w_per_k, &mut s.u_performance, &mut s.u_bound, &mut s.u_margin,
             &mut s.u_entropy_rate_w_per_k];
         *slots.into_iter().nth(which).unwrap() = None;
@@ -149,7 +149,7 @@ fn worst_case_sizes() {
         seq: u16::MAX,
         t_ms: u32::MAX,
         hot_mean_k: Some(1.0),
-        cold_mean_k: Some(1.0),
+        ambient_k: Some(1.0),
         performance: Some(1.0),
         bound: Some(1.0),
         entropy_rate_w_per_k: Some(1.0),

@@ -82,7 +82,7 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                     entropy_in_j_per_k: rng.f32(1.0, 20.0),
                     entropy_out_j_per_k: rng.f32(1.0, 30.0),
                     hot_mean_k: some(rng, 400.0, 900.0),
-                    cold_mean_k: some(rng, 280.0, 350.0),
+                    ambient_k: some(rng, 280.0, 350.0),
                     performance: some(rng, 0.0, 0.5),
                     bound: some(rng, 0.3, 0.7),
                     entropy_rate_w_per_k: some(rng, -0.1, 2.0),

@@ -43,19 +43,21 @@ pub struct Trapezoid {
     pub heat_out_j: f64,
     pub entropy_in_j_per_k: f64,
     pub entropy_out_j_per_k: f64,
-    prev: Option<(u32, [f64; 5])>,
+    /// `∫T_cold dt`, K·s: its time mean is the default T0 with heat out measured.
+    pub cold_temperature_integral_k_s: f64,
+    prev: Option<(u32, [f64; 6])>,
 }
 
 impl Trapezoid {
     /// Integrand values of one sample: q_in, w, q_out (inferred as q_in − w
-    /// when `heat_out_w` is `None`), q_in/T_hot, q_out/T_cold.
+    /// when `heat_out_w` is `None`), q_in/T_hot, q_out/T_cold, T_cold.
     fn integrands(
         t_hot_k: f64,
         t_cold_k: f64,
         heat_in_w: f64,
         work_w: f64,
         heat_out_w: Option<f64>,
-    ) -> [f64; 5] {
+    ) -> [f64; 6] {
         let q_out = heat_out_w.unwrap_or(heat_in_w - work_w);
         [
             heat_in_w,
@@ -63,6 +65,7 @@ impl Trapezoid {
             q_out,
             heat_in_w / t_hot_k,
             q_out / t_cold_k,
+            t_cold_k,
         ]
     }
 
@@ -84,6 +87,7 @@ impl Trapezoid {
             self.heat_out_j += 0.5 * dt * (a[2] + v[2]);
             self.entropy_in_j_per_k += 0.5 * dt * (a[3] + v[3]);
             self.entropy_out_j_per_k += 0.5 * dt * (a[4] + v[4]);
+            self.cold_temperature_integral_k_s += 0.5 * dt * (a[5] + v[5]);
         }
         self.prev = Some((s.t_ms, v));
     }
@@ -96,6 +100,11 @@ impl Trapezoid {
     /// `T_c = Q_out / ∫q_out/T_cold dt`.
     pub fn cold_mean_k(&self) -> f64 {
         self.heat_out_j / self.entropy_out_j_per_k
+    }
+
+    /// The default T0 with heat out measured: the time mean of `T_cold`.
+    pub fn cold_time_mean_k(&self) -> f64 {
+        self.cold_temperature_integral_k_s / self.duration_s
     }
 
     /// `η = W / Q_in`.
