@@ -11,10 +11,22 @@
 //! offline replay.
 //!
 //! ```text
-//! sensors --> sensor (ITS-90, IEC 60751, calorimetry, shaft power)
+//! sensors --> sensor (ITS-90, IEC 60751, calorimetry, shaft power, channel health)
 //!         --> monitor (window + run totals, O(1) per sample) --> alarm
+//!         --> wire (postcard + CRC-32 + COBS frames) --> UART --> host
+//! config:     rig settings, validated, with documented defaults
 //! design:     gas (ideal-gas processes, cycles, p-V loops)
 //! ```
+//!
+//! Module by module:
+//! - [`sensor`]: readings in, kelvin and watts out;
+//! - [`monitor`]: the figures of a sliding window and of the whole run, with
+//!   their GUM uncertainties;
+//! - [`alarm`]: the rules and their state machines;
+//! - [`wire`]: the frames the controller streams, and the host's decoder;
+//! - [`config`]: what the monitor and alarms need to know about a rig;
+//! - [`gas`]: ideal-gas reference cycles to compare a rig with;
+//! - [`num`]: the float type the monitor computes in, and its sums.
 //!
 //! Units are SI throughout and carried in names (`t_hot_k`, `heat_in_w`);
 //! temperatures are kelvin inside the library, with °C only at the sensor edge.

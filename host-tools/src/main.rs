@@ -4,6 +4,8 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod cmd;
+use heatbound_host::{ingest, store};
+mod sil;
 
 /// Cautions printed beside reports and in the help text.
 pub const SAFETY_NOTE: &str = "Caution: heat-engine rigs have hot surfaces, pressurised parts, \
@@ -26,6 +28,12 @@ enum Command {
     Convert(cmd::convert::Args),
     /// Replay a recorded run (CSV) through the monitor and alarms.
     Analyze(cmd::analyze::Args),
+    /// Decode a live stream, print a line per summary and log everything to SQLite.
+    Watch(cmd::watch::Args),
+    /// Run the simulated bench rig through the monitor and alarms and emit the wire stream.
+    Simulate(cmd::simulate::Args),
+    /// Re-check a capture or a log database; exit non-zero when it is not trustworthy.
+    Audit(cmd::audit::Args),
 }
 
 /// A usage error as one line: clap's message up to its first blank line,
@@ -70,6 +78,9 @@ fn main() -> ExitCode {
         Command::Cycle(args) => cmd::cycle::run(&args),
         Command::Convert(args) => cmd::convert::run(&args),
         Command::Analyze(args) => cmd::analyze::run(&args),
+        Command::Watch(args) => cmd::watch::run(&args),
+        Command::Simulate(args) => cmd::simulate::run(&args),
+        Command::Audit(args) => cmd::audit::run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

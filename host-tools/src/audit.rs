@@ -1,0 +1,1059 @@
+//! The audit engine: re-checks a received frame stream and decides whether
+//! the record can be trusted. Pure: frames in, [`Report`] out, no I/O.
+//!
+//! Data flow (DESIGN.md §2, host side):
+//!
+//! ```text
+//! capture bytes --wire::Decoder--> Received frames + DecoderStats --+
+//! log database  --store reader---> Received frames + link errors  --+--> audit() --> Report
+//! ```
+//!
+//! Four checks, each a section of the report:
+//!
+//! 1. **Integrity.** No frame lost (CRC, overlong, malformed, unknown
+//!    version), no summary missing, duplicated or reordered, no restart that
+//!    no Hello announced, no link error, and a Hello before the first
+//!    summary (without it the settings of the figures are unknown).
+//! 2. **Recomputation.** Each summary's figures are recomputed from its raw
+//!    integrals with the core's own [`Integrals::metrics`](heatbound::monitor::Integrals::metrics),
+//!    in f32 like the controller, with the latest Hello's settings, and
+//!    compared with the device's: T_h, T0, performance (η or COP), its bound
+//!    (η_C or Carnot COP) and σ̇. See [`REL_TOL`] for the tolerance.
+//! 3. **Second law.** A summary *violates* it when σ̇ < −k·u(σ̇) or
+//!    η − η_C > k·u(margin) (recomputed figures, the device's
+//!    uncertainties, k from the Hello). A violation is *flagged* when the
+//!    device had a second-law alarm (`beyond_carnot` or
+//!    `negative_entropy_production`) active in that summary, or the
+//!    violation began no longer ago than that alarm's on-delay plus one
+//!    summary period (the alarm is legitimately still pending). The
+//!    section fails on any unflagged violation: a record that claims an
+//!    impossible engine without saying so cannot be trusted. Flagged
+//!    violations are counted and reported, but the record is honest.
+//! 4. **Alarm consistency.** The two second-law rules are replayed at
+//!    summary granularity with [`Limits::verdicts`] on the recomputed
+//!    figures. An alarm that becomes active (alarm bit or `raised` event)
+//!    needs a summary with the rule's condition in the preceding on-delay
+//!    plus one summary period; a condition seen in consecutive summaries
+//!    for longer than on-delay plus one period needs the alarm active; a
+//!    non-latching alarm still active after its condition was clear for
+//!    longer than off-delay plus one period is stuck. Events and alarm bits
+//!    must agree. The device evaluates every sample and the host sees one
+//!    summary per period, so one period of slack is allowed each way.
+//!
+//! The delays, deadbands and latching come from the audit's configuration
+//! (defaults, or `--config`) with every setting the Hello carries taken
+//! from the Hello; the Hello's config digest says whether the result is
+//! the device's configuration.
+use heatbound::alarm::{AlarmInputs, EventKind, Limits, RuleId, Verdict};
+use heatbound::config::{RigConfig, Uncertainty};
+use heatbound::monitor::{AlarmFigures, Faults, FigureSettings, Metrics};
+use heatbound::wire::{DecoderStats, Frame, Hello, Link, LinkTracker, Summary};
+use serde::Serialize;
+
+/// Relative tolerance of the recomputation, against the larger of the two
+/// values and the magnitude of the terms that form the figure.
+///
+/// Device and host evaluate the same f32 formulas on the same integrals, so
+/// they normally agree to the last bit. They may differ by a few ulps where
+/// the host must rebuild an input (the default T0 travels as a value and is
+/// turned back into a time integral) and where a figure is a difference of
+/// large terms (σ̇ = (S_out + Q_loss/T0 − S_in)/Δt). 1e-5 is about 80 f32
+/// ulps of the largest term: well above rounding, far below any tampering
+/// or formula change that matters (≥ 1e-4 of a figure).
+pub const REL_TOL: f64 = 1e-5;
+
+/// Absolute floor of the recomputation tolerance, in the figure's unit, so
+/// that figures at zero compare.
+pub const ABS_TOL: f64 = 1e-9;
+
+/// How many findings each section lists (the counts are complete).
+pub const MAX_LISTED: usize = 5;
+
+/// One frame as received, with the host's receive time when known.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Received {
+    /// Host clock at reception, ms since the Unix epoch; `None` for a raw
+    /// capture.
+    pub host_ms: Option<i64>,
+    /// The frame.
+    pub frame: Frame,
+}
+
+/// A link error the logger recorded (port error, disconnect).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct LinkError {
+    /// Host clock, ms since the Unix epoch, when known.
+    pub host_ms: Option<i64>,
+    /// What happened.
+    pub message: String,
+}
+
+/// Everything the audit looks at.
+#[derive(Clone, Copy, Debug)]
+pub struct Input<'a> {
+    /// The frames, in the order received.
+    pub frames: &'a [Received],
+    /// The decoder's counts of frames and losses.
+    pub decoder: DecoderStats,
+    /// Link errors the logger recorded.
+    pub link_errors: &'a [LinkError],
+}
+
+/// The audit's verdict and its evidence.
+#[derive(Clone, Debug, Serialize)]
+pub struct Report {
+    /// Every section passed.
+    pub trustworthy: bool,
+    /// Frames, losses and sequence.
+    pub integrity: Integrity,
+    /// The device's figures against the host's.
+    pub recomputation: Recomputation,
+    /// σ̇ ≥ −k·u(σ̇) and η − η_C ≤ k·u(margin), or the device said otherwise.
+    pub second_law: SecondLaw,
+    /// The second-law alarms against their conditions.
+    pub alarm_consistency: AlarmConsistency,
+}
+
+/// The integrity section.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Integrity {
+    /// Section verdict.
+    pub pass: bool,
+    /// Frames accepted.
+    pub frames: u64,
+    /// Hello frames.
+    pub hellos: u64,
+    /// Summary frames.
+    pub summaries: u64,
+    /// Event frames.
+    pub events: u64,
+    /// Frames lost to CRC errors.
+    pub crc_errors: u64,
+    /// Frames lost for being too long.
+    pub overlong: u64,
+    /// Frames lost as malformed.
+    pub malformed: u64,
+    /// Frames of another protocol version.
+    pub unknown_version: u64,
+    /// Bytes not in any accepted frame.
+    pub bytes_discarded: u64,
+    /// Summaries missing from sequence gaps.
+    pub missing_summaries: u64,
+    /// Summaries repeating the previous sequence number.
+    pub duplicates: u64,
+    /// Controller restarts (sequence went back).
+    pub restarts: u64,
+    /// Restarts not announced by a Hello right before.
+    pub unannounced_restarts: u64,
+    /// Link errors the logger recorded.
+    pub link_errors: u64,
+    /// A Hello arrived before the first summary.
+    pub hello_before_first_summary: bool,
+    /// Whether the latest Hello's config digest matches the configuration
+    /// the alarm checks assume; `None` without a Hello.
+    pub config_digest_matches: Option<bool>,
+    /// What failed, one line each.
+    pub problems: Vec<String>,
+}
+
+/// One figure that did not recompute.
+#[derive(Clone, Debug, Serialize)]
+pub struct Mismatch {
+    /// Summary sequence number.
+    pub seq: u16,
+    /// Device sample time, s.
+    pub t_s: f64,
+    /// The figure's field name on the wire.
+    pub figure: &'static str,
+    /// The device's value (`None` = not available).
+    pub device: Option<f64>,
+    /// The host's value.
+    pub recomputed: Option<f64>,
+    /// The allowed difference.
+    pub tolerance: f64,
+}
+
+/// The recomputation section.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Recomputation {
+    /// Section verdict.
+    pub pass: bool,
+    /// Summaries recomputed.
+    pub summaries: u64,
+    /// Figures compared.
+    pub figures: u64,
+    /// Figures that disagree (value beyond tolerance, or availability).
+    pub mismatches: u64,
+    /// Summaries checked with the audit configuration's settings because no
+    /// Hello had arrived yet.
+    pub without_hello: u64,
+    /// See [`REL_TOL`].
+    pub relative_tolerance: f64,
+    /// See [`ABS_TOL`].
+    pub absolute_tolerance: f64,
+    /// The first few mismatches.
+    pub first_mismatches: Vec<Mismatch>,
+}
+
+/// A finding of the second-law or alarm sections.
+#[derive(Clone, Debug, Serialize)]
+pub struct Finding {
+    /// Summary sequence number, if the finding is about a summary.
+    pub seq: Option<u16>,
+    /// Device sample time, s.
+    pub t_s: f64,
+    /// The rule concerned, if any.
+    pub rule: Option<RuleId>,
+    /// What is wrong.
+    pub message: String,
+}
+
+/// The second-law section.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct SecondLaw {
+    /// Section verdict.
+    pub pass: bool,
+    /// The rule applied, in words.
+    pub rule: &'static str,
+    /// Summaries where σ̇ and u(σ̇), or the margin and u(margin), were available.
+    pub evaluable: u64,
+    /// Summaries that violate σ̇ ≥ −k·u(σ̇) or η − η_C ≤ k·u(margin).
+    pub violations: u64,
+    /// `violations / evaluable`, `None` when nothing was evaluable.
+    pub violation_fraction: Option<f64>,
+    /// Violations the device flagged (alarm active or legitimately pending).
+    pub flagged: u64,
+    /// Violations it did not.
+    pub unflagged: u64,
+    /// The first few unflagged violations.
+    pub first_unflagged: Vec<Finding>,
+}
+
+/// The alarm consistency section.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct AlarmConsistency {
+    /// Section verdict.
+    pub pass: bool,
+    /// The rule applied, in words.
+    pub rule: &'static str,
+    /// Alarm activations checked (bit transitions and raised events).
+    pub activations: u64,
+    /// Activations with no supporting condition.
+    pub unsupported: u64,
+    /// Conditions that held too long without the alarm.
+    pub missed: u64,
+    /// Non-latching alarms still active long after their condition cleared.
+    pub stuck: u64,
+    /// Events and alarm bits that disagree.
+    pub event_bit_disagreements: u64,
+    /// On-delay assumed per checked rule, s.
+    pub on_delay_s: Vec<(RuleId, f64)>,
+    /// The first few findings.
+    pub findings: Vec<Finding>,
+}
+
+const SECOND_LAW_RULE: &str = "a summary violates the second law when sigma < -k*u(sigma) or \
+eta - eta_C > k*u(margin) (recomputed figures, device uncertainties); each violation must be \
+flagged: beyond_carnot or negative_entropy_production active in that summary, or the \
+violation younger than that rule's on-delay plus one summary period";
+
+const ALARM_RULE: &str = "beyond_carnot and negative_entropy_production replayed per summary \
+on the recomputed figures: an activation needs its condition in a summary within the on-delay \
+plus one period before it; a condition held in consecutive summaries for longer than the \
+on-delay plus one period needs the alarm active; a non-latching alarm must clear within the \
+off-delay plus one period of its condition clearing; events and alarm bits must agree";
+
+/// The rules whose conditions the host can replay from a summary.
+const CHECKED: [RuleId; 2] = [RuleId::BeyondCarnot, RuleId::NegativeEntropyProduction];
+
+/// `x` as the f64 of its shortest decimal form: the value a person wrote.
+fn decimal_f64(x: f32) -> f64 {
+    x.to_string().parse().unwrap_or(f64::from(x))
+}
+
+/// `base` with every setting the Hello carries taken from the Hello. A
+/// setting that already rounds to the Hello's f32 is kept as it is, so a
+/// matching configuration reproduces the Hello's digest exactly.
+pub fn effective_config(base: &RigConfig, hello: &Hello) -> RigConfig {
+    let pick = |b: f64, h: f32| if b as f32 == h { b } else { decimal_f64(h) };
+    let mut c = *base;
+    c.mode = hello.mode;
+    if hello.window_samples != u16::MAX {
+        c.window_samples = u32::from(hello.window_samples);
+    }
+    c.coverage_factor = pick(base.coverage_factor, hello.coverage_factor);
+    c.ambient_k = hello
+        .ambient_k
+        .map(|h| base.ambient_k.map_or(decimal_f64(h), |b| pick(b, h)));
+    let (u, h) = (&base.uncertainty, &hello.uncertainty);
+    c.uncertainty = Uncertainty {
+        hot_k: pick(u.hot_k, h.hot_k),
+        cold_k: pick(u.cold_k, h.cold_k),
+        heat_in_rel: pick(u.heat_in_rel, h.heat_in_rel),
+        work_rel: pick(u.work_rel, h.work_rel),
+        heat_out_rel: pick(u.heat_out_rel, h.heat_out_rel),
+    };
+    c
+}
+
+/// The figure settings of a Hello, as f64.
+pub fn hello_settings(hello: &Hello) -> FigureSettings {
+    let u = &hello.uncertainty;
+    FigureSettings {
+        mode: hello.mode,
+        ambient_k: hello.ambient_k.map(f64::from),
+        uncertainty: Uncertainty {
+            hot_k: f64::from(u.hot_k),
+            cold_k: f64::from(u.cold_k),
+            heat_in_rel: f64::from(u.heat_in_rel),
+            work_rel: f64::from(u.work_rel),
+            heat_out_rel: f64::from(u.heat_out_rel),
+        },
+    }
+}
+
+/// What the audit currently assumes about the device.
+struct Context {
+    settings: FigureSettings,
+    limits: Limits,
+    coverage_factor: f64,
+    on_ms: [i64; RuleId::COUNT],
+    off_ms: [i64; RuleId::COUNT],
+    enabled: [bool; RuleId::COUNT],
+    latching: [bool; RuleId::COUNT],
+}
+
+impl Context {
+    fn new(config: &RigConfig) -> Self {
+        let ms = |s: f64| (s * 1000.0).round() as i64;
+        let rule = |id: RuleId| config.alarms.rule(id);
+        Self {
+            settings: FigureSettings::new(config),
+            limits: Limits::new(config),
+            coverage_factor: config.coverage_factor,
+            on_ms: RuleId::ALL.map(|id| ms(rule(id).on_delay_s)),
+            off_ms: RuleId::ALL.map(|id| ms(rule(id).off_delay_s)),
+            enabled: RuleId::ALL.map(|id| rule(id).enabled),
+            latching: RuleId::ALL.map(|id| rule(id).latching),
+        }
+    }
+}
+
+/// Replay state of one checked rule.
+#[derive(Clone, Debug, Default)]
+struct Track {
+    /// Start of the current run of summaries with the condition raised.
+    raise_since: Option<i64>,
+    /// Start of the current run of summaries with the condition clear.
+    clear_since: Option<i64>,
+    /// Latest summary with the condition raised.
+    last_raise: Option<i64>,
+    /// Alarm bit in the previous summary.
+    last_bit: bool,
+    /// The current raise run has been reported as missed.
+    missed_reported: bool,
+    /// The current clear run has been reported as stuck.
+    stuck_reported: bool,
+    /// Latest event kind for the rule since the previous summary.
+    event_since_summary: Option<EventKind>,
+    /// Raised events waiting for the next summary to judge their support.
+    pending_raises: Vec<(i64, u32)>,
+}
+
+/// Pushes `item` if fewer than [`MAX_LISTED`] are listed.
+fn list<T>(v: &mut Vec<T>, item: T) {
+    if v.len() < MAX_LISTED {
+        v.push(item);
+    }
+}
+
+fn seconds(t_ms: u32) -> f64 {
+    f64::from(t_ms) / 1000.0
+}
+
+/// Audits `input` against `config` (the defaults, or the user's `rig.toml`).
+///
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound::wire::DecoderStats;
+/// use heatbound_host::audit::{Input, audit};
+/// let input = Input { frames: &[], decoder: DecoderStats::default(), link_errors: &[] };
+/// let report = audit(&input, &RigConfig::default());
+/// assert!(!report.trustworthy); // nothing received, nothing to trust
+/// ```
+pub fn audit(input: &Input<'_>, config: &RigConfig) -> Report {
+    let mut auditor = Auditor::new(config);
+    for r in input.frames {
+        auditor.frame(&r.frame);
+    }
+    auditor.finish(input)
+}
+
+struct Auditor<'c> {
+    base: &'c RigConfig,
+    ctx: Context,
+    hello: Option<Hello>,
+    link: LinkTracker,
+    integrity: Integrity,
+    recomputation: Recomputation,
+    second_law: SecondLaw,
+    alarms: AlarmConsistency,
+    tracks: [Track; RuleId::COUNT],
+    /// Previous frame was a Hello (announces a restart).
+    after_hello: bool,
+    /// Unwrapped time of the previous summary, and its raw `t_ms`.
+    prev_t: Option<(i64, u32)>,
+    /// Largest in-order summary spacing seen, ms: the "one period" of slack.
+    period_ms: i64,
+    /// Start of the current run of second-law violations.
+    violation_since: Option<i64>,
+}
+
+impl<'c> Auditor<'c> {
+    fn new(base: &'c RigConfig) -> Self {
+        Self {
+            base,
+            ctx: Context::new(base),
+            hello: None,
+            link: LinkTracker::new(),
+            integrity: Integrity::default(),
+            recomputation: Recomputation {
+                relative_tolerance: REL_TOL,
+                absolute_tolerance: ABS_TOL,
+                ..Recomputation::default()
+            },
+            second_law: SecondLaw {
+                rule: SECOND_LAW_RULE,
+                ..SecondLaw::default()
+            },
+            alarms: AlarmConsistency {
+                rule: ALARM_RULE,
+                ..AlarmConsistency::default()
+            },
+            tracks: Default::default(),
+            after_hello: false,
+            prev_t: None,
+            period_ms: 1000,
+            violation_since: None,
+        }
+    }
+
+    fn frame(&mut self, frame: &Frame) {
+        let link = self.link.observe(frame);
+        match frame {
+            Frame::Hello(h) => {
+                self.integrity.hellos += 1;
+                let eff = effective_config(self.base, h);
+                self.integrity.config_digest_matches =
+                    Some(Hello::config_digest(&eff) == h.config_digest);
+                self.ctx = Context::new(&eff);
+                self.ctx.settings = hello_settings(h);
+                self.ctx.coverage_factor = f64::from(h.coverage_factor);
+                self.hello = Some(*h);
+                self.after_hello = true;
+            }
+            Frame::Event(e) => {
+                self.integrity.events += 1;
+                self.event(e.event);
+                self.after_hello = false;
+            }
+            Frame::Summary(s) => {
+                self.integrity.summaries += 1;
+                if self.integrity.summaries == 1 {
+                    self.integrity.hello_before_first_summary = self.hello.is_some();
+                }
+                self.summary(s, link);
+                self.after_hello = false;
+            }
+        }
+    }
+
+    /// The event's time on the audit's unwrapped timeline.
+    fn unwrap_time(&self, t_ms: u32) -> i64 {
+        match self.prev_t {
+            Some((prev, raw)) => prev + i64::from(t_ms.wrapping_sub(raw) as i32),
+            None => i64::from(t_ms),
+        }
+    }
+
+    fn event(&mut self, e: heatbound::alarm::Event) {
+        if !CHECKED.contains(&e.rule) {
+            return;
+        }
+        let t = self.unwrap_time(e.t_ms);
+        let track = &mut self.tracks[e.rule.index()];
+        if e.kind != EventKind::Acknowledged {
+            track.event_since_summary = Some(e.kind);
+        }
+        if e.kind == EventKind::Raised {
+            track.pending_raises.push((t, e.t_ms));
+        }
+    }
+
+    fn summary(&mut self, s: &Summary, link: Link) {
+        // The timeline and the continuity with the previous summary.
+        let (t, continuous) = match (link, self.prev_t) {
+            (Link::Restart, Some((prev, _))) => {
+                self.integrity.restarts += 1;
+                if !self.after_hello {
+                    self.integrity.unannounced_restarts += 1;
+                }
+                (prev + 1, false)
+            }
+            (Link::InOrder, Some(_)) => (self.unwrap_time(s.t_ms), true),
+            (_, Some(_)) => (self.unwrap_time(s.t_ms), false),
+            (_, None) => (i64::from(s.t_ms), false),
+        };
+        if continuous && let Some((prev, _)) = self.prev_t {
+            self.period_ms = self.period_ms.max(t - prev);
+        }
+        if matches!(link, Link::Restart) {
+            self.tracks = Default::default();
+            self.violation_since = None;
+        }
+        self.prev_t = Some((t, s.t_ms));
+
+        let m = self.recompute(s);
+        self.check_second_law(s, &m, t);
+        self.check_alarms(s, &m, t, continuous);
+    }
+
+    fn recompute(&mut self, s: &Summary) -> Metrics<f32> {
+        let rc = &mut self.recomputation;
+        rc.summaries += 1;
+        if self.hello.is_none() {
+            rc.without_hello += 1;
+        }
+        let m = s.integrals().metrics(&self.ctx.settings);
+        let reverse = self.ctx.settings.mode.is_reverse();
+        let pick = |fwd: Option<f32>, rev: Option<f32>| if reverse { rev } else { fwd };
+        let f = |x: Option<f32>| x.map(f64::from);
+        // Magnitude of the terms of σ̇: its tolerance scales with them.
+        let t0 = f(m.ambient_k.or(s.ambient_k));
+        let loss = if s.status.heat_out_measured {
+            let q = f64::from(s.heat_in_j) - f64::from(s.work_j) - f64::from(s.heat_out_j);
+            t0.map_or(0.0, |t0| if t0 > 0.0 { q.abs() / t0 } else { 0.0 })
+        } else {
+            0.0
+        };
+        let d = f64::from(s.duration_s);
+        let sigma_scale = if d > 0.0 {
+            (f64::from(s.entropy_in_j_per_k).abs() + f64::from(s.entropy_out_j_per_k).abs() + loss)
+                / d
+        } else {
+            0.0
+        };
+        let figures: [(&'static str, Option<f32>, Option<f32>, f64); 5] = [
+            ("hot_mean_k", s.hot_mean_k, m.hot_mean_k, 0.0),
+            ("ambient_k", s.ambient_k, m.ambient_k, 0.0),
+            ("performance", s.performance, pick(m.efficiency, m.cop), 0.0),
+            (
+                "bound",
+                s.bound,
+                pick(m.carnot_efficiency, m.carnot_cop),
+                1.0,
+            ),
+            (
+                "entropy_rate_w_per_k",
+                s.entropy_rate_w_per_k,
+                m.entropy_rate_w_per_k,
+                sigma_scale,
+            ),
+        ];
+        for (name, device, host, scale) in figures {
+            rc.figures += 1;
+            let (dv, hv) = (f(device), f(host));
+            let tolerance = match (dv, hv) {
+                (Some(a), Some(b)) => REL_TOL * a.abs().max(b.abs()).max(scale) + ABS_TOL,
+                _ => ABS_TOL,
+            };
+            let agree = match (dv, hv) {
+                (Some(a), Some(b)) => (a - b).abs() <= tolerance,
+                (None, None) => true,
+                _ => false,
+            };
+            if !agree {
+                rc.mismatches += 1;
+                list(
+                    &mut rc.first_mismatches,
+                    Mismatch {
+                        seq: s.seq,
+                        t_s: seconds(s.t_ms),
+                        figure: name,
+                        device: dv,
+                        recomputed: hv,
+                        tolerance,
+                    },
+                );
+            }
+        }
+        m
+    }
+
+    fn second_law_alarm_active(s: &Summary) -> bool {
+        CHECKED.iter().any(|r| s.alarms & (1 << r.index()) != 0)
+    }
+
+    fn check_second_law(&mut self, s: &Summary, m: &Metrics<f32>, t: i64) {
+        let k = self.ctx.coverage_factor;
+        let f = |x: Option<f32>| x.map(f64::from);
+        let sigma = match (f(m.entropy_rate_w_per_k), f(s.u_entropy_rate_w_per_k)) {
+            (Some(x), Some(u)) => Some(x < -k * u),
+            _ => None,
+        };
+        let carnot = match (f(m.carnot_margin), f(s.u_margin)) {
+            (Some(margin), Some(u)) => Some(-margin > k * u),
+            _ => None,
+        };
+        if sigma.is_none() && carnot.is_none() {
+            self.violation_since = None;
+            return;
+        }
+        let sl = &mut self.second_law;
+        sl.evaluable += 1;
+        let violated = sigma == Some(true) || carnot == Some(true);
+        if !violated {
+            self.violation_since = None;
+            return;
+        }
+        sl.violations += 1;
+        let since = *self.violation_since.get_or_insert(t);
+        let grace = CHECKED
+            .iter()
+            .filter(|r| self.ctx.enabled[r.index()])
+            .map(|r| self.ctx.on_ms[r.index()])
+            .max();
+        let pending = grace.is_some_and(|on| t - since <= on + self.period_ms);
+        if Self::second_law_alarm_active(s) || pending {
+            sl.flagged += 1;
+        } else {
+            sl.unflagged += 1;
+            let what = match (sigma, carnot) {
+                (Some(true), Some(true)) => "negative entropy production and beyond Carnot",
+                (Some(true), _) => "negative entropy production",
+                _ => "beyond Carnot",
+            };
+            list(
+                &mut sl.first_unflagged,
+                Finding {
+                    seq: Some(s.seq),
+                    t_s: seconds(s.t_ms),
+                    rule: None,
+                    message: format!(
+                        "{what} for {:.1} s with no second-law alarm active",
+                        (t - since) as f64 / 1000.0
+                    ),
+                },
+            );
+        }
+    }
+
+    fn check_alarms(&mut self, s: &Summary, m: &Metrics<f32>, t: i64, continuous: bool) {
+        let figures = AlarmFigures {
+            // The host cannot recompute uncertainties (the sensitivity
+            // integrals do not travel): use the device's.
+            u_carnot_margin: s.u_margin,
+            u_entropy_rate_w_per_k: s.u_entropy_rate_w_per_k,
+            ..AlarmFigures::from(m)
+        };
+        let inputs = AlarmInputs {
+            figures,
+            t_hot_k: None,
+            faults: Faults::default(),
+        };
+        let verdicts = self.ctx.limits.verdicts(&inputs);
+        let period = self.period_ms;
+        for rule in CHECKED {
+            let i = rule.index();
+            let (on, off) = (self.ctx.on_ms[i], self.ctx.off_ms[i]);
+            let (enabled, latching) = (self.ctx.enabled[i], self.ctx.latching[i]);
+            let track = &mut self.tracks[i];
+            if !continuous {
+                track.raise_since = None;
+                track.clear_since = None;
+            }
+            match verdicts[i] {
+                Verdict::Raise { .. } => {
+                    if track.raise_since.is_none() {
+                        track.raise_since = Some(t);
+                        track.missed_reported = false;
+                    }
+                    track.last_raise = Some(t);
+                    track.clear_since = None;
+                }
+                Verdict::Hold => {
+                    track.raise_since = None;
+                    track.clear_since = None;
+                }
+                Verdict::Clear => {
+                    track.raise_since = None;
+                    if track.clear_since.is_none() {
+                        track.clear_since = Some(t);
+                        track.stuck_reported = false;
+                    }
+                }
+            }
+            let bit = s.alarms & (1 << i) != 0;
+            // Activations: raised events since the previous summary, and a
+            // bit that turned on (judged once when both are present).
+            let raises = core::mem::take(&mut track.pending_raises);
+            let event = track.event_since_summary.take();
+            let last_raise = track.last_raise;
+            let supported = |at: i64| last_raise.is_some_and(|r| r >= at - on - period);
+            let mut findings: Vec<String> = Vec::new();
+            let newly = bit && !track.last_bit;
+            for &(te, raw) in &raises {
+                self.alarms.activations += 1;
+                if !supported(te) {
+                    self.alarms.unsupported += 1;
+                    findings.push(format!(
+                        "raised at {:.1} s with no supporting condition",
+                        seconds(raw)
+                    ));
+                }
+            }
+            if newly && raises.is_empty() {
+                self.alarms.activations += 1;
+                if !supported(t) {
+                    self.alarms.unsupported += 1;
+                    findings.push("alarm bit set with no supporting condition".to_owned());
+                }
+            }
+            // Events against bits (only where the previous summary is known).
+            if continuous {
+                let disagree = match event {
+                    Some(EventKind::Raised) => !bit,
+                    Some(EventKind::Cleared) => bit,
+                    _ => bit != track.last_bit,
+                };
+                if disagree {
+                    self.alarms.event_bit_disagreements += 1;
+                    findings.push(match event {
+                        Some(kind) => format!("{kind} event, but the alarm bit is {bit}"),
+                        None => format!(
+                            "alarm bit changed to {bit} with no event since the previous summary"
+                        ),
+                    });
+                }
+            }
+            if enabled
+                && !bit
+                && !track.missed_reported
+                && track
+                    .raise_since
+                    .is_some_and(|since| t - since > on + period)
+            {
+                track.missed_reported = true;
+                self.alarms.missed += 1;
+                findings.push(format!(
+                    "condition held for {:.1} s without the alarm",
+                    (t - track.raise_since.unwrap_or(t)) as f64 / 1000.0
+                ));
+            }
+            if bit
+                && !latching
+                && !track.stuck_reported
+                && track
+                    .clear_since
+                    .is_some_and(|since| t - since > off + period)
+            {
+                track.stuck_reported = true;
+                self.alarms.stuck += 1;
+                findings.push(format!(
+                    "still active {:.1} s after its condition cleared",
+                    (t - track.clear_since.unwrap_or(t)) as f64 / 1000.0
+                ));
+            }
+            track.last_bit = bit;
+            for message in findings {
+                list(
+                    &mut self.alarms.findings,
+                    Finding {
+                        seq: Some(s.seq),
+                        t_s: seconds(s.t_ms),
+                        rule: Some(rule),
+                        message,
+                    },
+                );
+            }
+        }
+    }
+
+    fn finish(mut self, input: &Input<'_>) -> Report {
+        // Raised events after the last summary: judge on what was seen.
+        let period = self.period_ms;
+        for rule in CHECKED {
+            let i = rule.index();
+            let on = self.ctx.on_ms[i];
+            let track = &mut self.tracks[i];
+            for (te, raw) in core::mem::take(&mut track.pending_raises) {
+                self.alarms.activations += 1;
+                if track.last_raise.is_none_or(|r| r < te - on - period) {
+                    self.alarms.unsupported += 1;
+                    list(
+                        &mut self.alarms.findings,
+                        Finding {
+                            seq: None,
+                            t_s: seconds(raw),
+                            rule: Some(rule),
+                            message: "raised with no supporting condition".to_owned(),
+                        },
+                    );
+                }
+            }
+        }
+        self.alarms.on_delay_s = CHECKED
+            .iter()
+            .map(|r| (*r, self.ctx.on_ms[r.index()] as f64 / 1000.0))
+            .collect();
+
+        let d = &input.decoder;
+        let link = self.link.stats();
+        let g = &mut self.integrity;
+        g.frames = g.hellos + g.summaries + g.events;
+        g.crc_errors = d.crc_errors;
+        g.overlong = d.overlong;
+        g.malformed = d.malformed;
+        g.unknown_version = d.unknown_version;
+        g.bytes_discarded = d.bytes_discarded;
+        g.missing_summaries = link.missing_summaries;
+        g.duplicates = link.duplicates;
+        g.link_errors = input.link_errors.len() as u64;
+        let mut problems = Vec::new();
+        if g.summaries == 0 {
+            problems.push("no summaries: nothing to check".to_owned());
+        } else if !g.hello_before_first_summary {
+            problems.push("no Hello before the first summary: its settings are unknown".to_owned());
+        }
+        if d.losses() > 0 {
+            problems.push(format!(
+                "{} frames lost ({} CRC, {} overlong, {} malformed, {} unknown version), \
+                 {} bytes discarded",
+                d.losses(),
+                d.crc_errors,
+                d.overlong,
+                d.malformed,
+                d.unknown_version,
+                d.bytes_discarded
+            ));
+        }
+        if g.missing_summaries > 0 {
+            problems.push(format!(
+                "{} summaries missing from sequence gaps",
+                g.missing_summaries
+            ));
+        }
+        if g.duplicates > 0 {
+            problems.push(format!("{} duplicate summaries", g.duplicates));
+        }
+        if g.unannounced_restarts > 0 {
+            problems.push(format!(
+                "{} restarts without a Hello",
+                g.unannounced_restarts
+            ));
+        }
+        if let Some(e) = input.link_errors.first() {
+            problems.push(format!(
+                "{} link errors, the first: {}",
+                input.link_errors.len(),
+                e.message
+            ));
+        }
+        g.problems = problems;
+        g.pass = g.problems.is_empty();
+
+        let rc = &mut self.recomputation;
+        rc.pass = rc.mismatches == 0 && rc.summaries > 0;
+        let sl = &mut self.second_law;
+        sl.violation_fraction =
+            (sl.evaluable > 0).then(|| sl.violations as f64 / sl.evaluable as f64);
+        sl.pass = sl.unflagged == 0;
+        let a = &mut self.alarms;
+        a.pass =
+            a.unsupported == 0 && a.missed == 0 && a.stuck == 0 && a.event_bit_disagreements == 0;
+
+        Report {
+            trustworthy: self.integrity.pass
+                && self.recomputation.pass
+                && self.second_law.pass
+                && self.alarms.pass,
+            integrity: self.integrity,
+            recomputation: self.recomputation,
+            second_law: self.second_law,
+            alarm_consistency: self.alarms,
+        }
+    }
+}
+
+fn verdict(pass: bool) -> &'static str {
+    if pass { "PASS" } else { "FAIL" }
+}
+
+fn opt(x: Option<f64>) -> String {
+    x.map_or_else(|| "n/a".to_owned(), |x| format!("{x:.7}"))
+}
+
+impl Report {
+    /// The readable report of an audit of `source`.
+    pub fn text(&self, source: &str) -> String {
+        use std::fmt::Write as _;
+        let mut o = String::new();
+        let g = &self.integrity;
+        let _ = writeln!(o, "heatbound audit: {source}");
+        let _ = writeln!(
+            o,
+            "integrity           {}  {} frames ({} hello, {} summary, {} event); lost: {} CRC, \
+             {} overlong, {} malformed, {} unknown version; {} missing, {} duplicate, \
+             {} restarts ({} unannounced); {} link errors",
+            verdict(g.pass),
+            g.frames,
+            g.hellos,
+            g.summaries,
+            g.events,
+            g.crc_errors,
+            g.overlong,
+            g.malformed,
+            g.unknown_version,
+            g.missing_summaries,
+            g.duplicates,
+            g.restarts,
+            g.unannounced_restarts,
+            g.link_errors
+        );
+        for p in &g.problems {
+            let _ = writeln!(o, "  - {p}");
+        }
+        match g.config_digest_matches {
+            Some(true) => {
+                let _ = writeln!(o, "  config digest matches the audited configuration");
+            }
+            Some(false) => {
+                let _ = writeln!(
+                    o,
+                    "  note: the device's config digest differs from the audited configuration: \
+                     alarm delays and deadbands are assumed (give --config rig.toml)"
+                );
+            }
+            None => {}
+        }
+        let r = &self.recomputation;
+        let _ = writeln!(
+            o,
+            "recomputation       {}  {} summaries, {} figures, {} mismatches (tolerance {:e} \
+             relative to the larger value or the figure's terms, + {:e})",
+            verdict(r.pass),
+            r.summaries,
+            r.figures,
+            r.mismatches,
+            r.relative_tolerance,
+            r.absolute_tolerance
+        );
+        if r.without_hello > 0 {
+            let _ = writeln!(
+                o,
+                "  - {} summaries before any Hello, checked with the audit configuration",
+                r.without_hello
+            );
+        }
+        for m in &r.first_mismatches {
+            let _ = writeln!(
+                o,
+                "  - seq {} at {:.1} s: {} device {} recomputed {} (tolerance {:.2e})",
+                m.seq,
+                m.t_s,
+                m.figure,
+                opt(m.device),
+                opt(m.recomputed),
+                m.tolerance
+            );
+        }
+        let s = &self.second_law;
+        let _ = writeln!(
+            o,
+            "second law          {}  {} evaluable summaries, {} violations ({}), {} flagged by \
+             the device, {} unflagged",
+            verdict(s.pass),
+            s.evaluable,
+            s.violations,
+            s.violation_fraction
+                .map_or_else(|| "n/a".to_owned(), |f| format!("{:.1} %", f * 100.0)),
+            s.flagged,
+            s.unflagged
+        );
+        let _ = writeln!(o, "  rule: {}", s.rule);
+        for f in &s.first_unflagged {
+            let _ = writeln!(
+                o,
+                "  - seq {} at {:.1} s: {}",
+                f.seq.unwrap_or_default(),
+                f.t_s,
+                f.message
+            );
+        }
+        let a = &self.alarm_consistency;
+        let _ = writeln!(
+            o,
+            "alarm consistency   {}  {} activations, {} unsupported, {} missed, {} stuck, {} \
+             event/bit disagreements",
+            verdict(a.pass),
+            a.activations,
+            a.unsupported,
+            a.missed,
+            a.stuck,
+            a.event_bit_disagreements
+        );
+        let delays: Vec<String> = a
+            .on_delay_s
+            .iter()
+            .map(|(r, d)| format!("{r} {d} s"))
+            .collect();
+        let _ = writeln!(o, "  rule: {} (on-delays: {})", a.rule, delays.join(", "));
+        for f in &a.findings {
+            let rule = f.rule.map_or("", RuleId::as_str);
+            let seq = f.seq.map_or_else(String::new, |s| format!("seq {s} "));
+            let _ = writeln!(o, "  - {seq}at {:.1} s: {rule}: {}", f.t_s, f.message);
+        }
+        let _ = writeln!(
+            o,
+            "verdict: {}",
+            if self.trustworthy {
+                "trustworthy"
+            } else {
+                "NOT trustworthy"
+            }
+        );
+        o
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use heatbound::wire::RigId;
+
+    #[test]
+    fn effective_config_reproduces_a_matching_digest() {
+        let c = RigConfig {
+            ambient_k: Some(293.15),
+            ..RigConfig::default()
+        };
+        let id = RigId::new("t").unwrap_or_default();
+        let hello = Hello::from_config(id, (0, 1, 0), 100, &c);
+        let eff = effective_config(&RigConfig::default(), &hello);
+        assert_eq!(Hello::config_digest(&eff), hello.config_digest);
+    }
+
+    #[test]
+    fn an_empty_stream_is_not_trustworthy() {
+        let r = audit(
+            &Input {
+                frames: &[],
+                decoder: DecoderStats::default(),
+                link_errors: &[],
+            },
+            &RigConfig::default(),
+        );
+        assert!(!r.trustworthy);
+        assert!(!r.integrity.pass);
+    }
+}

@@ -1,0 +1,216 @@
+//! `heatbound simulate`: run the simulated bench rig through the
+//! controller's monitor and alarms ([`crate::sil`]) and emit the wire
+//! stream a controller would send, to a file, stdout or a TCP peer.
+//!
+//! ```text
+//! options --> sil::Simulation --> frames --> wire::encode --> sink (file | stdout | TCP)
+//!                                                 (paced at F x real time if asked)
+//! run summary + caution --> stderr
+//! ```
+//!
+//! The stream is deterministic: the same options and seed give the same
+//! bytes, whatever the pacing or the sink.
+use std::fs::File;
+use std::io::{BufWriter, IsTerminal as _, Write};
+use std::net::{IpAddr, Ipv4Addr, TcpListener, TcpStream};
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+use anyhow::{Context, Result, bail};
+use heatbound::alarm::EventKind;
+use heatbound::wire::Frame;
+use heatbound_firmware_example::rig::{Rig, Scenario};
+
+use crate::sil::{self, SimOptions, Simulation};
+
+/// Arguments of `heatbound simulate`.
+#[derive(clap::Args)]
+#[command(
+    after_help = "Scenarios: steady, warm-up, thermocouple-drift, coolant-loss, \
+open-thermocouple, power-meter-scale-error (faults begin at 120 s).\n\
+Without --config the built-in defaults are used with ambient_k set to the rig's room \
+temperature (293.15 K): the rig measures heat out, so its balance residual is heat lost \
+to the room. With --config the file is used as written.\n\
+The stream goes to stdout unless --output, --listen or --connect is given; the run \
+summary goes to stderr."
+)]
+pub struct Args {
+    /// Rig scenario to run.
+    #[arg(long, value_name = "NAME", default_value = "steady", value_parser = parse_scenario)]
+    pub scenario: Scenario,
+    /// Sample rate, Hz.
+    #[arg(long, value_name = "R", default_value_t = 10.0)]
+    pub rate_hz: f64,
+    /// Simulated duration, seconds of sample time.
+    #[arg(long, value_name = "D", default_value_t = 600.0)]
+    pub duration_s: f64,
+    /// Noise seed: the same seed gives the same bytes.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub seed: u64,
+    /// Seconds of sample time between summaries.
+    #[arg(long, value_name = "P", default_value_t = 1.0)]
+    pub summary_period_s: f64,
+    /// Controller configuration (TOML), as for `analyze`.
+    #[arg(long, value_name = "RIG.toml")]
+    pub config: Option<PathBuf>,
+    /// Write the stream to FILE (`-` = stdout).
+    #[arg(long, short, value_name = "FILE", conflicts_with_all = ["listen", "connect"])]
+    pub output: Option<PathBuf>,
+    /// Accept one TCP client on PORT and stream to it (0 = any free port;
+    /// the address is printed on stderr).
+    #[arg(long, value_name = "PORT", conflicts_with = "connect")]
+    pub listen: Option<u16>,
+    /// Address to listen on with --listen.
+    #[arg(long, value_name = "ADDR", default_value_t = IpAddr::V4(Ipv4Addr::LOCALHOST), requires = "listen")]
+    pub bind: IpAddr,
+    /// Connect to HOST:PORT and stream to it.
+    #[arg(long, value_name = "HOST:PORT")]
+    pub connect: Option<String>,
+    /// Pace the output at F times real time (0 = as fast as possible).
+    #[arg(long, value_name = "F", default_value_t = 0.0)]
+    pub realtime_factor: f64,
+}
+
+fn parse_scenario(s: &str) -> Result<Scenario, String> {
+    Scenario::parse(s).map_err(|e| e.to_string())
+}
+
+/// Runs the subcommand.
+pub fn run(args: &Args) -> Result<()> {
+    let f = args.realtime_factor;
+    if !(f.is_finite() && f >= 0.0) {
+        bail!("--realtime-factor must be finite and at least 0 (got {f})");
+    }
+    let options = SimOptions {
+        scenario: args.scenario,
+        seed: args.seed,
+        rate_hz: args.rate_hz,
+        duration_s: args.duration_s,
+        summary_period_s: args.summary_period_s,
+    };
+    let config = match &args.config {
+        Some(path) => crate::cmd::analyze::load_config(Some(path))?,
+        None => sil::default_config(&Rig::bench_stirling(args.scenario, args.seed)),
+    };
+    let mut sim = Simulation::new(&options, &config)?;
+    let (mut sink, target) = open_sink(args)?;
+
+    let start = Instant::now();
+    let mut frames: Vec<Frame> = Vec::with_capacity(8);
+    let mut bytes: Vec<u8> = Vec::with_capacity(4096);
+    let mut written: u64 = 0;
+    while let Some(t_ms) = sim.next_tick(&mut frames) {
+        for frame in &frames {
+            sil::encode_into(frame, &mut bytes)?;
+        }
+        frames.clear();
+        if f > 0.0 {
+            let due = Duration::from_secs_f64(f64::from(t_ms) / 1000.0 / f);
+            if let Some(wait) = due.checked_sub(start.elapsed()) {
+                std::thread::sleep(wait);
+            }
+        }
+        if !bytes.is_empty() && (f > 0.0 || bytes.len() >= 4096) {
+            sink.write_all(&bytes)
+                .with_context(|| format!("writing the stream to {target}"))?;
+            if f > 0.0 {
+                sink.flush()
+                    .with_context(|| format!("writing the stream to {target}"))?;
+            }
+            written += bytes.len() as u64;
+            bytes.clear();
+        }
+    }
+    sink.write_all(&bytes)
+        .and_then(|()| sink.flush())
+        .with_context(|| format!("writing the stream to {target}"))?;
+    written += bytes.len() as u64;
+
+    eprint!("{}", run_summary(args, &sim, written, &target));
+    Ok(())
+}
+
+/// Opens the stream's destination; returns it with a name for messages.
+fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
+    if let Some(port) = args.listen {
+        let listener = TcpListener::bind((args.bind, port))
+            .with_context(|| format!("cannot listen on {}:{port}", args.bind))?;
+        let addr = listener.local_addr().context("listening socket")?;
+        eprintln!("heatbound simulate: listening on {addr}");
+        let (stream, peer) = listener
+            .accept()
+            .with_context(|| format!("accepting a client on {addr}"))?;
+        let _ = stream.set_nodelay(true);
+        return Ok((Box::new(BufWriter::new(stream)), format!("client {peer}")));
+    }
+    if let Some(peer) = &args.connect {
+        let stream = TcpStream::connect(peer.as_str())
+            .with_context(|| format!("cannot connect to {peer}"))?;
+        let _ = stream.set_nodelay(true);
+        return Ok((Box::new(BufWriter::new(stream)), peer.clone()));
+    }
+    match &args.output {
+        Some(path) if path.as_os_str() != "-" => {
+            let file = File::create(path)
+                .with_context(|| format!("{}: cannot create the file", path.display()))?;
+            Ok((Box::new(BufWriter::new(file)), path.display().to_string()))
+        }
+        explicit => {
+            let stdout = std::io::stdout();
+            if explicit.is_none() && stdout.is_terminal() {
+                bail!(
+                    "refusing to write the binary stream to a terminal: give --output FILE, \
+                     --output - or redirect stdout"
+                );
+            }
+            Ok((Box::new(BufWriter::new(stdout.lock())), "stdout".to_owned()))
+        }
+    }
+}
+
+/// The run summary printed on stderr.
+fn run_summary(args: &Args, sim: &Simulation, bytes: u64, target: &str) -> String {
+    use std::fmt::Write as _;
+    let s = sim.stats();
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "heatbound simulate: rig {}, scenario {}, seed {}, {} samples at {} Hz ({} invalid), \
+         config digest {:#010x}",
+        sim.hello().rig_id,
+        args.scenario,
+        args.seed,
+        s.samples,
+        args.rate_hz,
+        s.invalid_samples,
+        sim.hello().config_digest
+    );
+    let _ = writeln!(
+        out,
+        "  {} frames ({} hello, {} summary, {} event), {bytes} bytes to {target}",
+        s.frames(),
+        s.hellos,
+        s.summaries,
+        s.events
+    );
+    let raised: Vec<String> = s
+        .alarm_events
+        .iter()
+        .filter(|e| e.kind == EventKind::Raised)
+        .map(|e| {
+            format!(
+                "{} at {:.1} s ({})",
+                e.rule,
+                f64::from(e.t_ms) / 1000.0,
+                e.severity
+            )
+        })
+        .collect();
+    if raised.is_empty() {
+        let _ = writeln!(out, "  alarms raised: none");
+    } else {
+        let _ = writeln!(out, "  alarms raised: {}", raised.join(", "));
+    }
+    let _ = writeln!(out, "{}", crate::SAFETY_NOTE);
+    out
+}

@@ -1,0 +1,467 @@
+//! Ingest: bytes from the controller, in any chunking, to the SQLite log
+//! and a compact live line per frame.
+//!
+//! ```text
+//! bytes --> wire::Decoder<MAX_FRAME_LEN> --> Frame --> LinkTracker (gaps, duplicates, restarts)
+//!       --> store::Log (hellos, summaries, events, link_errors, outages) --> live lines
+//! ```
+//!
+//! Decoder losses are found by diffing [`DecoderStats`] after each
+//! [`Ingest::feed`]: one `link_errors` row per kind and feed, with the count.
+//! Sequence gaps, duplicates and restarts get one row each. Per frame, the
+//! only allocation is what SQLite's batch needs; the live line is written
+//! into one reused buffer.
+//!
+//! Shared by `heatbound watch` and `heatbound demo`.
+//!
+//! ```
+//! use heatbound::wire::{self, Frame, Summary};
+//! use heatbound_host::ingest::{Ingest, LineStyle};
+//! use heatbound_host::store::Log;
+//! let dir = tempfile::tempdir().unwrap();
+//! let log = Log::open(&dir.path().join("log.sqlite")).unwrap();
+//! let mut ingest = Ingest::new(log, "file:doc.bin", 0, LineStyle::Plain).unwrap();
+//!
+//! let mut bytes = [0u8; wire::MAX_FRAME_LEN];
+//! let n = wire::encode(&Frame::Summary(Summary { seq: 1, t_ms: 5000, ..Summary::default() }),
+//!                      &mut bytes).unwrap();
+//! let mut lines = Vec::new();
+//! for chunk in bytes[..n].chunks(5) {
+//!     ingest.feed(chunk, 10, |line| lines.push(line.to_string())).unwrap();
+//! }
+//! assert!(lines[0].starts_with("t=5.0s"));
+//! let totals = ingest.finish(20).unwrap();
+//! assert_eq!(totals.summaries, 1);
+//! ```
+use std::fmt::Write as _;
+
+use heatbound::alarm::{RuleId, Severity};
+use heatbound::config::Mode;
+use heatbound::wire::{
+    Decoder, DecoderStats, EventFrame, Frame, FrameError, Hello, Link, LinkTracker, MAX_FRAME_LEN,
+    Summary,
+};
+
+use crate::store::{LinkErrorKind, Log, RunId, StoreError};
+
+/// How live lines are written.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LineStyle {
+    /// No lines at all (the callback is never called).
+    Quiet,
+    /// Plain text: alarms as `ALARM beyond_carnot (trip)`.
+    Plain,
+    /// Plain text with ANSI highlighting of alarms (for a terminal).
+    Ansi,
+}
+
+/// What a run contained, for the closing summary.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Totals {
+    /// The run.
+    pub run_id: RunId,
+    /// Bytes fed.
+    pub bytes: u64,
+    /// Frames accepted (all kinds).
+    pub frames: u64,
+    /// Hellos.
+    pub hellos: u64,
+    /// Summaries logged.
+    pub summaries: u64,
+    /// Events logged.
+    pub events: u64,
+    /// Frames lost to CRC errors.
+    pub crc_errors: u64,
+    /// Frames lost as overlong.
+    pub overlong: u64,
+    /// Frames lost as malformed.
+    pub malformed: u64,
+    /// Frames lost to an unknown protocol version.
+    pub unknown_version: u64,
+    /// Sequence gaps.
+    pub gaps: u64,
+    /// Summaries missing in those gaps.
+    pub missing_summaries: u64,
+    /// Duplicate summaries.
+    pub duplicates: u64,
+    /// Controller restarts.
+    pub restarts: u64,
+    /// Link outages.
+    pub outages: u64,
+}
+
+impl Totals {
+    /// Frames lost by the decoder, of every kind.
+    pub const fn losses(&self) -> u64 {
+        self.crc_errors + self.overlong + self.malformed + self.unknown_version
+    }
+}
+
+/// One run being ingested: decoder, link tracker and the log.
+pub struct Ingest {
+    log: Log,
+    run: RunId,
+    decoder: Decoder<MAX_FRAME_LEN>,
+    link: LinkTracker,
+    /// Decoder counters at the end of the previous feed.
+    seen: DecoderStats,
+    /// The latest loss of each decoder kind in this feed, for the detail text.
+    last_loss: [Option<FrameError>; 4],
+    last_seq: Option<u16>,
+    coverage_k: f32,
+    mode: Mode,
+    severity: [Severity; RuleId::COUNT],
+    style: LineStyle,
+    line: String,
+    totals: Totals,
+    limit: Option<u64>,
+    outage: Option<i64>,
+}
+
+impl Ingest {
+    /// Starts a run from `source` at `host_ms` in `log`.
+    pub fn new(
+        mut log: Log,
+        source: &str,
+        host_ms: i64,
+        style: LineStyle,
+    ) -> Result<Ingest, StoreError> {
+        let run = log.begin_run(source, host_ms)?;
+        Ok(Ingest {
+            log,
+            run,
+            decoder: Decoder::new(),
+            link: LinkTracker::new(),
+            seen: DecoderStats::default(),
+            last_loss: [None; 4],
+            last_seq: None,
+            coverage_k: 2.0,
+            mode: Mode::Engine,
+            severity: RuleId::ALL.map(RuleId::default_severity),
+            style,
+            line: String::with_capacity(256),
+            totals: Totals {
+                run_id: run,
+                ..Totals::default()
+            },
+            limit: None,
+            outage: None,
+        })
+    }
+
+    /// Stops taking frames after `max` summaries: the rest of the bytes
+    /// are ignored (see [`Ingest::limit_reached`]).
+    pub fn set_summary_limit(&mut self, max: Option<u64>) {
+        self.limit = max;
+    }
+
+    /// Whether the summary limit has been reached.
+    pub fn limit_reached(&self) -> bool {
+        self.limit.is_some_and(|m| self.totals.summaries >= m)
+    }
+
+    /// The run's id.
+    pub fn run_id(&self) -> RunId {
+        self.run
+    }
+
+    /// The totals so far.
+    pub fn totals(&self) -> Totals {
+        self.totals
+    }
+
+    /// The log being written.
+    pub fn log(&self) -> &Log {
+        &self.log
+    }
+
+    /// Feeds bytes received at `host_ms`; `on_line` gets one live line per
+    /// frame (unless [`LineStyle::Quiet`]). Commits a batch when it is full.
+    pub fn feed(
+        &mut self,
+        bytes: &[u8],
+        host_ms: i64,
+        mut on_line: impl FnMut(&str),
+    ) -> Result<(), StoreError> {
+        for &b in bytes {
+            if self.limit_reached() {
+                break;
+            }
+            self.totals.bytes += 1;
+            match self.decoder.push_byte(b) {
+                None => {}
+                Some(Ok(frame)) => self.on_frame(&frame, host_ms, &mut on_line)?,
+                Some(Err(e)) => {
+                    let i = match e {
+                        FrameError::Crc => 0,
+                        FrameError::Overlong => 1,
+                        FrameError::Malformed(_) => 2,
+                        _ => 3,
+                    };
+                    self.last_loss[i] = Some(e);
+                }
+            }
+        }
+        self.record_losses(host_ms)
+    }
+
+    /// Commits the open batch if it is older than the batching age.
+    pub fn tick(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        self.log.commit_if_due(host_ms)
+    }
+
+    /// The link dropped at `host_ms` for `reason`: opens an outage (committed
+    /// at once). A second call before [`Ingest::link_up`] does nothing.
+    pub fn link_down(&mut self, host_ms: i64, reason: &str) -> Result<(), StoreError> {
+        if self.outage.is_none() {
+            self.outage = Some(self.log.begin_outage(self.run, host_ms, reason)?);
+            self.totals.outages += 1;
+        }
+        Ok(())
+    }
+
+    /// The link is back at `host_ms`: closes the open outage. A frame cut
+    /// off by the drop is ended here and counted as a loss.
+    pub fn link_up(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        if self.decoder.pending() > 0 {
+            self.feed(&[0], host_ms, |_| {})?;
+            self.totals.bytes = self.totals.bytes.saturating_sub(1);
+        }
+        if let Some(id) = self.outage.take() {
+            self.log.end_outage(id, host_ms)?;
+        }
+        Ok(())
+    }
+
+    /// Ends the run at `host_ms`: counts a frame left unfinished as a loss,
+    /// closes an open outage, commits, and returns the totals.
+    pub fn finish(mut self, host_ms: i64) -> Result<Totals, StoreError> {
+        // A frame cut off by the end of the input is a loss too.
+        if self.decoder.pending() > 0 && !self.limit_reached() {
+            self.feed(&[0], host_ms, |_| {})?;
+            self.totals.bytes = self.totals.bytes.saturating_sub(1);
+        }
+        self.record_losses(host_ms)?;
+        if let Some(id) = self.outage.take() {
+            self.log.end_outage(id, host_ms)?;
+        }
+        self.log.end_run(self.run, host_ms)?;
+        Ok(self.totals)
+    }
+
+    fn record_losses(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        let now = *self.decoder.stats();
+        let before = self.seen;
+        if now.losses() == before.losses() {
+            self.seen = now;
+            return Ok(());
+        }
+        let deltas = [
+            (LinkErrorKind::Crc, now.crc_errors - before.crc_errors),
+            (LinkErrorKind::Overlong, now.overlong - before.overlong),
+            (LinkErrorKind::Malformed, now.malformed - before.malformed),
+            (
+                LinkErrorKind::UnknownVersion,
+                now.unknown_version - before.unknown_version,
+            ),
+        ];
+        self.seen = now;
+        self.totals.crc_errors = now.crc_errors;
+        self.totals.overlong = now.overlong;
+        self.totals.malformed = now.malformed;
+        self.totals.unknown_version = now.unknown_version;
+        for (i, (kind, n)) in deltas.into_iter().enumerate() {
+            if n == 0 {
+                continue;
+            }
+            let last = self.last_loss[i].take();
+            self.line.clear();
+            match last {
+                Some(e) => {
+                    let _ = write!(self.line, "{e}");
+                }
+                None => self.line.push_str(kind.as_str()),
+            }
+            let detail = std::mem::take(&mut self.line);
+            let r = self
+                .log
+                .insert_link_error(self.run, host_ms, kind, n, &detail);
+            self.line = detail;
+            r?;
+        }
+        Ok(())
+    }
+
+    fn on_frame(
+        &mut self,
+        frame: &Frame,
+        host_ms: i64,
+        on_line: &mut impl FnMut(&str),
+    ) -> Result<(), StoreError> {
+        let link = self.link.observe(frame);
+        if let Frame::Summary(s) = frame {
+            self.link_event(link, s.seq, host_ms)?;
+            self.last_seq = Some(s.seq);
+        }
+        self.log.insert_frame(self.run, host_ms, frame)?;
+        self.totals.frames += 1;
+        match frame {
+            Frame::Hello(h) => {
+                self.totals.hellos += 1;
+                self.coverage_k = h.coverage_factor;
+                self.mode = h.mode;
+            }
+            Frame::Summary(_) => self.totals.summaries += 1,
+            Frame::Event(e) => {
+                self.totals.events += 1;
+                self.severity[e.event.rule.index()] = e.event.severity;
+            }
+        }
+        if self.style != LineStyle::Quiet {
+            self.line.clear();
+            match frame {
+                Frame::Hello(h) => write_hello(&mut self.line, h),
+                Frame::Summary(s) => self.write_summary(s),
+                Frame::Event(e) => write_event(&mut self.line, e, self.style),
+            }
+            on_line(&self.line);
+        }
+        Ok(())
+    }
+
+    fn link_event(&mut self, link: Link, seq: u16, host_ms: i64) -> Result<(), StoreError> {
+        let (kind, count) = match link {
+            Link::Gap { missing } => {
+                self.totals.gaps += 1;
+                self.totals.missing_summaries += u64::from(missing);
+                (LinkErrorKind::Gap, u64::from(missing))
+            }
+            Link::Duplicate => {
+                self.totals.duplicates += 1;
+                (LinkErrorKind::Duplicate, 1)
+            }
+            Link::Restart => {
+                self.totals.restarts += 1;
+                (LinkErrorKind::Restart, 1)
+            }
+            _ => return Ok(()),
+        };
+        self.line.clear();
+        let _ = match (kind, self.last_seq) {
+            (LinkErrorKind::Gap, Some(p)) => {
+                write!(self.line, "{count} missing between seq {p} and {seq}")
+            }
+            (_, Some(p)) => write!(self.line, "seq {seq} after {p}"),
+            (_, None) => write!(self.line, "seq {seq}"),
+        };
+        let detail = std::mem::take(&mut self.line);
+        let r = self
+            .log
+            .insert_link_error(self.run, host_ms, kind, count, &detail);
+        self.line = detail;
+        r
+    }
+
+    fn write_summary(&mut self, s: &Summary) {
+        let k = self.coverage_k;
+        let (perf, bound) = if self.mode.is_reverse() {
+            ("COP", "COP_C")
+        } else {
+            ("η", "η_C")
+        };
+        let out = &mut self.line;
+        let _ = write!(out, "t={:.1}s ", f64::from(s.t_ms) / 1000.0);
+        write_pm(out, perf, s.performance, s.u_performance, k);
+        write_pm(out, bound, s.bound, s.u_bound, k);
+        let margin = s.bound.zip(s.performance).map(|(b, p)| b - p);
+        write_pm(out, "margin", margin, None, k);
+        write_pm(
+            out,
+            "σ̇",
+            s.entropy_rate_w_per_k,
+            s.u_entropy_rate_w_per_k,
+            k,
+        );
+        out.push_str("W/K ");
+        match s.hot_mean_k {
+            Some(t) => {
+                let _ = write!(out, "T_h={t:.1}K ");
+            }
+            None => out.push_str("T_h=n/a "),
+        }
+        if s.entropy_out_j_per_k > 0.0 {
+            let _ = write!(out, "T_c={:.1}K", s.heat_out_j / s.entropy_out_j_per_k);
+        } else {
+            out.push_str("T_c=n/a");
+        }
+        if s.status.steady {
+            out.push_str(" steady");
+        }
+        for rule in RuleId::ALL {
+            if s.alarms & (1 << rule.index()) != 0 {
+                let sev = self.severity[rule.index()];
+                out.push(' ');
+                let (on, off) = highlight(self.style, sev);
+                let _ = write!(out, "{on}ALARM {rule} ({sev}){off}");
+            }
+        }
+    }
+}
+
+/// ANSI start and end codes for `severity` in `style`.
+fn highlight(style: LineStyle, severity: Severity) -> (&'static str, &'static str) {
+    match (style, severity) {
+        (LineStyle::Ansi, Severity::Trip) => ("\x1b[1;31m", "\x1b[0m"),
+        (LineStyle::Ansi, Severity::Warning) => ("\x1b[33m", "\x1b[0m"),
+        _ => ("", ""),
+    }
+}
+
+/// `name=value±k·u ` with a precision that suits the magnitude.
+fn write_pm(out: &mut String, name: &str, value: Option<f32>, u: Option<f32>, k: f32) {
+    let Some(v) = value else {
+        let _ = write!(out, "{name}=n/a ");
+        return;
+    };
+    let _ = write!(out, "{name}=");
+    write_num(out, v);
+    if let Some(u) = u {
+        out.push('±');
+        write_num(out, k * u);
+    }
+    out.push(' ');
+}
+
+/// About four significant digits, fixed-point where that reads well.
+fn write_num(out: &mut String, x: f32) {
+    let a = x.abs();
+    let _ = if a == 0.0 || (0.01..1e4).contains(&a) {
+        write!(out, "{x:.3}")
+    } else if (1e-3..0.01).contains(&a) {
+        write!(out, "{x:.4}")
+    } else {
+        write!(out, "{x:.2e}")
+    };
+}
+
+fn write_hello(out: &mut String, h: &Hello) {
+    let (a, b, c) = h.firmware_version;
+    let _ = write!(
+        out,
+        "hello from {} firmware {a}.{b}.{c}: {}, {} ms period, window {}, k={}",
+        h.rig_id, h.mode, h.sample_period_ms, h.window_samples, h.coverage_factor
+    );
+}
+
+fn write_event(out: &mut String, e: &EventFrame, style: LineStyle) {
+    let ev = &e.event;
+    let (on, off) = highlight(style, ev.severity);
+    let _ = write!(
+        out,
+        "{on}{} {} {} at t={:.1} s{off}",
+        ev.kind,
+        ev.rule,
+        ev.severity,
+        f64::from(ev.t_ms) / 1000.0
+    );
+}

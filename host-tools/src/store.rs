@@ -1,0 +1,1072 @@
+//! The SQLite log: every frame, link loss and outage of a run, with device
+//! time and host receive time.
+//!
+//! ```text
+//! bytes --> ingest (Decoder + LinkTracker) --> store::Log (write, batched) --> heatbound-log.sqlite
+//! heatbound-log.sqlite --> store::Log::open_read --> frames / link_errors / outages --> audit, charts
+//! ```
+//!
+//! The schema is versioned with `PRAGMA user_version` and documented in
+//! `docs/log-schema.md`. [`Log::open`] applies the numbered [`MIGRATIONS`]
+//! in order, inside one transaction; a log written by a newer tool is
+//! refused with [`StoreError::NewerSchema`].
+//!
+//! Writes are batched: one transaction stays open and is committed every
+//! [`Batching::max_rows`] rows, when [`Log::commit_if_due`] finds it older
+//! than [`Batching::max_age_ms`], and on [`Log::commit`]. The journal is WAL
+//! with `synchronous=NORMAL`, so a killed process leaves a database that
+//! opens with every committed batch.
+//!
+//! ```
+//! use heatbound::wire::{Frame, Summary};
+//! use heatbound_host::store::Log;
+//! let dir = tempfile::tempdir().unwrap();
+//! let path = dir.path().join("log.sqlite");
+//! let mut log = Log::open(&path).unwrap();
+//! let run = log.begin_run("file:capture.bin", 1_700_000_000_000).unwrap();
+//! let frame = Frame::Summary(Summary { seq: 7, ..Summary::default() });
+//! log.insert_frame(run, 1_700_000_000_100, &frame).unwrap();
+//! log.end_run(run, 1_700_000_000_200).unwrap();
+//! drop(log);
+//!
+//! let log = Log::open_read(&path).unwrap();
+//! let stored: Vec<_> = log.frames(run).unwrap().collect::<Result<_, _>>().unwrap();
+//! assert_eq!(stored[0].frame, frame);
+//! ```
+use std::collections::VecDeque;
+use std::path::{Path, PathBuf};
+
+use heatbound::alarm::{Event, EventKind, RuleId, Severity};
+use heatbound::config::Mode;
+use heatbound::wire::{EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Uncertainties};
+use rusqlite::{Connection, OpenFlags, Row, params};
+
+/// The schema version this tool writes (`PRAGMA user_version`).
+pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
+
+/// The default log file, in the current directory.
+pub const DEFAULT_DB: &str = "heatbound-log.sqlite";
+
+/// Migration `i` (0-based) takes the schema from version `i` to `i + 1`.
+/// Only ever append: a released migration never changes.
+pub const MIGRATIONS: &[&str] = &[
+    // 1: the first schema.
+    "CREATE TABLE runs (
+        id             INTEGER PRIMARY KEY,
+        started_host_ms INTEGER NOT NULL,
+        source         TEXT NOT NULL,
+        tool_version   TEXT NOT NULL,
+        ended_host_ms  INTEGER
+    );
+    CREATE TABLE hellos (
+        run_id          INTEGER NOT NULL REFERENCES runs(id),
+        ord             INTEGER NOT NULL,
+        host_ms         INTEGER NOT NULL,
+        protocol_version INTEGER NOT NULL,
+        rig_id          TEXT NOT NULL,
+        firmware_version TEXT NOT NULL,
+        sample_period_ms INTEGER NOT NULL,
+        window_samples  INTEGER NOT NULL,
+        mode            TEXT NOT NULL,
+        coverage_factor REAL NOT NULL,
+        ambient_k       REAL,
+        u_hot_k         REAL NOT NULL,
+        u_cold_k        REAL NOT NULL,
+        u_heat_in_rel   REAL NOT NULL,
+        u_work_rel      REAL NOT NULL,
+        u_heat_out_rel  REAL NOT NULL,
+        config_digest   INTEGER NOT NULL,
+        PRIMARY KEY (run_id, ord)
+    ) WITHOUT ROWID;
+    CREATE TABLE summaries (
+        run_id               INTEGER NOT NULL REFERENCES runs(id),
+        ord                  INTEGER NOT NULL,
+        host_ms              INTEGER NOT NULL,
+        seq                  INTEGER NOT NULL,
+        t_ms                 INTEGER NOT NULL,
+        duration_s           REAL NOT NULL,
+        heat_in_j            REAL NOT NULL,
+        work_j               REAL NOT NULL,
+        heat_out_j           REAL NOT NULL,
+        entropy_in_j_per_k   REAL NOT NULL,
+        entropy_out_j_per_k  REAL NOT NULL,
+        hot_mean_k           REAL,
+        ambient_k            REAL,
+        performance          REAL,
+        bound                REAL,
+        entropy_rate_w_per_k REAL,
+        u_performance        REAL,
+        u_bound              REAL,
+        u_margin             REAL,
+        u_entropy_rate_w_per_k REAL,
+        status               INTEGER NOT NULL,
+        faults               INTEGER NOT NULL,
+        alarms               INTEGER NOT NULL,
+        PRIMARY KEY (run_id, ord)
+    ) WITHOUT ROWID;
+    CREATE TABLE events (
+        run_id   INTEGER NOT NULL REFERENCES runs(id),
+        ord      INTEGER NOT NULL,
+        host_ms  INTEGER NOT NULL,
+        seq      INTEGER NOT NULL,
+        t_ms     INTEGER NOT NULL,
+        rule     TEXT NOT NULL,
+        kind     TEXT NOT NULL,
+        severity TEXT NOT NULL,
+        PRIMARY KEY (run_id, ord)
+    ) WITHOUT ROWID;
+    CREATE TABLE link_errors (
+        run_id  INTEGER NOT NULL REFERENCES runs(id),
+        ord     INTEGER NOT NULL,
+        host_ms INTEGER NOT NULL,
+        kind    TEXT NOT NULL,
+        count   INTEGER NOT NULL,
+        detail  TEXT NOT NULL,
+        PRIMARY KEY (run_id, ord)
+    ) WITHOUT ROWID;
+    CREATE TABLE outages (
+        id              INTEGER PRIMARY KEY,
+        run_id          INTEGER NOT NULL REFERENCES runs(id),
+        started_host_ms INTEGER NOT NULL,
+        ended_host_ms   INTEGER,
+        reason          TEXT NOT NULL
+    );
+    CREATE INDEX outages_run ON outages(run_id, started_host_ms);",
+];
+
+/// What went wrong with the log.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum StoreError {
+    /// An SQLite call failed.
+    #[error("{path}: {what}: {source}")]
+    Sqlite {
+        /// The database file.
+        path: PathBuf,
+        /// What was being done.
+        what: &'static str,
+        /// SQLite's error.
+        #[source]
+        source: rusqlite::Error,
+    },
+    /// The file was written by a newer heatbound with a schema this tool does not know.
+    #[error(
+        "{path}: log schema version {found} is newer than this tool's {known}; use a newer heatbound"
+    )]
+    NewerSchema {
+        /// The database file.
+        path: PathBuf,
+        /// Its `user_version`.
+        found: i64,
+        /// [`SCHEMA_VERSION`].
+        known: i64,
+    },
+    /// Opened for reading, but the file is not a heatbound log (or not yet migrated).
+    #[error("{path}: not a heatbound log of schema version {known} (user_version is {found})")]
+    NotALog {
+        /// The database file.
+        path: PathBuf,
+        /// Its `user_version`.
+        found: i64,
+        /// [`SCHEMA_VERSION`].
+        known: i64,
+    },
+    /// A stored row cannot be turned back into a frame.
+    #[error("{path}: run {run_id}, {table} row {ord}: {reason}")]
+    BadRow {
+        /// The database file.
+        path: PathBuf,
+        /// The run.
+        run_id: i64,
+        /// The table.
+        table: &'static str,
+        /// The row's `ord`.
+        ord: i64,
+        /// What is wrong.
+        reason: String,
+    },
+}
+
+/// When a batch is committed.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Batching {
+    /// Commit after this many rows.
+    pub max_rows: usize,
+    /// Commit a batch older than this, host milliseconds (checked by [`Log::commit_if_due`]).
+    pub max_age_ms: i64,
+}
+
+impl Default for Batching {
+    fn default() -> Self {
+        Batching {
+            max_rows: 1000,
+            max_age_ms: 250,
+        }
+    }
+}
+
+/// A run's id (`runs.id`).
+pub type RunId = i64;
+
+/// A row of `runs`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RunInfo {
+    /// `runs.id`.
+    pub id: RunId,
+    /// Host time the run began, Unix ms.
+    pub started_host_ms: i64,
+    /// Where the bytes came from: `serial:PATH`, `tcp:HOST:PORT`, `file:PATH`, `stdin`.
+    pub source: String,
+    /// The heatbound version that wrote the run.
+    pub tool_version: String,
+    /// Host time the run ended, Unix ms; `None` if the writer never closed it.
+    pub ended_host_ms: Option<i64>,
+    /// Summaries stored.
+    pub summaries: u64,
+}
+
+/// One frame as received.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Stored {
+    /// Host receive time, Unix ms.
+    pub host_ms: i64,
+    /// The frame, exactly as decoded.
+    pub frame: Frame,
+}
+
+/// Kinds of `link_errors` rows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum LinkErrorKind {
+    /// CRC mismatch.
+    Crc,
+    /// Frame longer than the decoder's buffer.
+    Overlong,
+    /// Bad COBS, postcard, kind, bits or values.
+    Malformed,
+    /// Another protocol version.
+    UnknownVersion,
+    /// Summaries missing from the sequence (`count` = how many).
+    Gap,
+    /// A repeated sequence number.
+    Duplicate,
+    /// The sequence went back: the controller restarted.
+    Restart,
+}
+
+impl LinkErrorKind {
+    /// Every kind.
+    pub const ALL: [LinkErrorKind; 7] = [
+        LinkErrorKind::Crc,
+        LinkErrorKind::Overlong,
+        LinkErrorKind::Malformed,
+        LinkErrorKind::UnknownVersion,
+        LinkErrorKind::Gap,
+        LinkErrorKind::Duplicate,
+        LinkErrorKind::Restart,
+    ];
+
+    /// The text stored in `link_errors.kind`.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            LinkErrorKind::Crc => "crc",
+            LinkErrorKind::Overlong => "overlong",
+            LinkErrorKind::Malformed => "malformed",
+            LinkErrorKind::UnknownVersion => "unknown_version",
+            LinkErrorKind::Gap => "gap",
+            LinkErrorKind::Duplicate => "duplicate",
+            LinkErrorKind::Restart => "restart",
+        }
+    }
+
+    /// The kind stored as `text`.
+    pub fn parse(text: &str) -> Option<LinkErrorKind> {
+        Self::ALL.into_iter().find(|k| k.as_str() == text)
+    }
+}
+
+impl std::fmt::Display for LinkErrorKind {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// A row of `link_errors`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct LinkErrorRow {
+    /// Position among the run's rows (shared with the frames).
+    pub ord: i64,
+    /// Host time, Unix ms.
+    pub host_ms: i64,
+    /// What was lost.
+    pub kind: LinkErrorKind,
+    /// How many frames (or, for a gap, missing summaries).
+    pub count: u64,
+    /// A readable detail.
+    pub detail: String,
+}
+
+/// A row of `outages`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct OutageRow {
+    /// `outages.id`.
+    pub id: i64,
+    /// Host time the link dropped, Unix ms.
+    pub started_host_ms: i64,
+    /// Host time it came back, Unix ms; `None` if it never did.
+    pub ended_host_ms: Option<i64>,
+    /// Why it dropped.
+    pub reason: String,
+}
+
+/// The log: one SQLite connection, writing in batches or reading.
+pub struct Log {
+    conn: Connection,
+    path: PathBuf,
+    batching: Batching,
+    /// Rows in the open transaction; `None` when none is open.
+    pending: Option<usize>,
+    batch_started_ms: i64,
+    /// The next `ord` of the run being written.
+    next_ord: i64,
+    ord_run: RunId,
+}
+
+const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
+    firmware_version, sample_period_ms, window_samples, mode, coverage_factor, ambient_k,
+    u_hot_k, u_cold_k, u_heat_in_rel, u_work_rel, u_heat_out_rel, config_digest)
+    VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)";
+
+const INSERT_SUMMARY: &str = "INSERT INTO summaries (run_id, ord, host_ms, seq, t_ms,
+    duration_s, heat_in_j, work_j, heat_out_j, entropy_in_j_per_k, entropy_out_j_per_k,
+    hot_mean_k, ambient_k, performance, bound, entropy_rate_w_per_k, u_performance, u_bound,
+    u_margin, u_entropy_rate_w_per_k, status, faults, alarms)
+    VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
+    ?19, ?20, ?21, ?22, ?23)";
+
+const INSERT_EVENT: &str = "INSERT INTO events (run_id, ord, host_ms, seq, t_ms, rule, kind,
+    severity) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)";
+
+const INSERT_LINK_ERROR: &str = "INSERT INTO link_errors (run_id, ord, host_ms, kind, count,
+    detail) VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
+
+/// Every frame table in one shape, ordered by `ord`: kind 0 = Hello,
+/// 1 = Summary, 2 = Event; columns `v0..` by kind as in the selects.
+const SELECT_FRAMES: &str = "
+    SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
+        window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
+        u_work_rel, u_heat_out_rel, config_digest, NULL, NULL, NULL, NULL, NULL, NULL
+        FROM hellos WHERE run_id = ?1 AND ord > ?2
+    UNION ALL
+    SELECT ord, host_ms, 1, seq, t_ms, duration_s, heat_in_j, work_j, heat_out_j,
+        entropy_in_j_per_k, entropy_out_j_per_k, hot_mean_k, ambient_k, performance, bound,
+        entropy_rate_w_per_k, u_performance, u_bound, u_margin, u_entropy_rate_w_per_k, status,
+        faults, alarms
+        FROM summaries WHERE run_id = ?1 AND ord > ?2
+    UNION ALL
+    SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, NULL, NULL, NULL, NULL, NULL,
+        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
+        FROM events WHERE run_id = ?1 AND ord > ?2
+    ORDER BY ord LIMIT ?3";
+
+/// One row of a [`Log::frames`] page: its `ord` and the rebuilt frame.
+type PageRow = (i64, Result<Stored, StoreError>);
+
+/// Rows fetched per page by [`Log::frames`].
+const FRAMES_PAGE: i64 = 4096;
+
+fn opt(x: Option<f32>) -> Option<f64> {
+    x.map(f64::from)
+}
+
+impl Log {
+    /// Opens (creating if needed) the log at `path` for writing, with the
+    /// default [`Batching`], and migrates it to [`SCHEMA_VERSION`].
+    pub fn open(path: &Path) -> Result<Log, StoreError> {
+        Self::open_with(path, Batching::default())
+    }
+
+    /// [`Log::open`] with explicit batching.
+    pub fn open_with(path: &Path, batching: Batching) -> Result<Log, StoreError> {
+        let conn = Connection::open(path).map_err(|e| sql_err(path, "cannot open", e))?;
+        let mut log = Log::from_conn(conn, path, batching);
+        log.configure()?;
+        log.migrate()?;
+        Ok(log)
+    }
+
+    /// Opens an existing log read-only. Refuses a file that is not a log of
+    /// this schema version (newer, older or empty).
+    pub fn open_read(path: &Path) -> Result<Log, StoreError> {
+        let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let conn = Connection::open_with_flags(path, flags)
+            .map_err(|e| sql_err(path, "cannot open", e))?;
+        let log = Log::from_conn(conn, path, Batching::default());
+        log.conn
+            .busy_timeout(std::time::Duration::from_secs(5))
+            .map_err(|e| log.err("cannot set the busy timeout", e))?;
+        let found = log.user_version()?;
+        if found > SCHEMA_VERSION {
+            return Err(StoreError::NewerSchema {
+                path: log.path.clone(),
+                found,
+                known: SCHEMA_VERSION,
+            });
+        }
+        if found != SCHEMA_VERSION {
+            return Err(StoreError::NotALog {
+                path: log.path.clone(),
+                found,
+                known: SCHEMA_VERSION,
+            });
+        }
+        Ok(log)
+    }
+
+    fn from_conn(conn: Connection, path: &Path, batching: Batching) -> Log {
+        conn.set_prepared_statement_cache_capacity(16);
+        Log {
+            conn,
+            path: path.to_path_buf(),
+            batching,
+            pending: None,
+            batch_started_ms: 0,
+            next_ord: 0,
+            ord_run: -1,
+        }
+    }
+
+    fn err(&self, what: &'static str, source: rusqlite::Error) -> StoreError {
+        sql_err(&self.path, what, source)
+    }
+
+    fn configure(&self) -> Result<(), StoreError> {
+        let c = &self.conn;
+        c.busy_timeout(std::time::Duration::from_secs(5))
+            .map_err(|e| self.err("cannot set the busy timeout", e))?;
+        let mode: String = c
+            .pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0))
+            .map_err(|e| self.err("cannot switch to WAL", e))?;
+        if !mode.eq_ignore_ascii_case("wal") {
+            return Err(self.err(
+                "cannot switch to WAL",
+                rusqlite::Error::InvalidParameterName(format!("journal_mode stayed {mode}")),
+            ));
+        }
+        c.pragma_update(None, "synchronous", "NORMAL")
+            .map_err(|e| self.err("cannot set synchronous=NORMAL", e))?;
+        c.pragma_update(None, "foreign_keys", "ON")
+            .map_err(|e| self.err("cannot enable foreign keys", e))?;
+        Ok(())
+    }
+
+    fn user_version(&self) -> Result<i64, StoreError> {
+        self.conn
+            .pragma_query_value(None, "user_version", |r| r.get(0))
+            .map_err(|e| self.err("cannot read user_version", e))
+    }
+
+    /// Brings the schema to [`SCHEMA_VERSION`], applying the missing
+    /// [`MIGRATIONS`] in order in one transaction. Returns the version found.
+    pub fn migrate(&mut self) -> Result<i64, StoreError> {
+        self.commit()?;
+        let found = self.user_version()?;
+        if found > SCHEMA_VERSION {
+            return Err(StoreError::NewerSchema {
+                path: self.path.clone(),
+                found,
+                known: SCHEMA_VERSION,
+            });
+        }
+        if found == SCHEMA_VERSION {
+            return Ok(found);
+        }
+        let path = self.path.clone();
+        let tx = self
+            .conn
+            .transaction()
+            .map_err(|e| sql_err(&path, "cannot begin the migration", e))?;
+        for sql in MIGRATIONS.iter().skip(usize::try_from(found).unwrap_or(0)) {
+            tx.execute_batch(sql)
+                .map_err(|e| sql_err(&path, "migration failed", e))?;
+        }
+        tx.pragma_update(None, "user_version", SCHEMA_VERSION)
+            .map_err(|e| sql_err(&path, "cannot set user_version", e))?;
+        tx.commit()
+            .map_err(|e| sql_err(&path, "cannot commit the migration", e))?;
+        Ok(found)
+    }
+
+    /// The file.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// The connection, for queries this API does not cover.
+    pub fn connection(&self) -> &Connection {
+        &self.conn
+    }
+
+    // -- writing ----------------------------------------------------------
+
+    /// Opens the batch transaction if none is open and counts one row.
+    fn row(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        match &mut self.pending {
+            Some(n) => *n += 1,
+            None => {
+                self.conn
+                    .execute_batch("BEGIN")
+                    .map_err(|e| sql_err(&self.path, "cannot begin a batch", e))?;
+                self.pending = Some(1);
+                self.batch_started_ms = host_ms;
+            }
+        }
+        Ok(())
+    }
+
+    fn after_row(&mut self) -> Result<(), StoreError> {
+        if self.pending.is_some_and(|n| n >= self.batching.max_rows) {
+            self.commit()?;
+        }
+        Ok(())
+    }
+
+    fn ord(&mut self, run: RunId) -> Result<i64, StoreError> {
+        if self.ord_run != run {
+            let max: Option<i64> = self
+                .conn
+                .query_row(
+                    "SELECT max(m) FROM (SELECT max(ord) AS m FROM hellos WHERE run_id = ?1
+                     UNION ALL SELECT max(ord) FROM summaries WHERE run_id = ?1
+                     UNION ALL SELECT max(ord) FROM events WHERE run_id = ?1
+                     UNION ALL SELECT max(ord) FROM link_errors WHERE run_id = ?1)",
+                    [run],
+                    |r| r.get(0),
+                )
+                .map_err(|e| self.err("cannot find the run's last row", e))?;
+            self.next_ord = max.map_or(0, |m| m + 1);
+            self.ord_run = run;
+        }
+        let ord = self.next_ord;
+        self.next_ord += 1;
+        Ok(ord)
+    }
+
+    /// Commits the open batch, if any.
+    pub fn commit(&mut self) -> Result<(), StoreError> {
+        if self.pending.take().is_some() {
+            self.conn
+                .execute_batch("COMMIT")
+                .map_err(|e| sql_err(&self.path, "cannot commit a batch", e))?;
+        }
+        Ok(())
+    }
+
+    /// Commits the open batch if it began more than [`Batching::max_age_ms`]
+    /// before `now_host_ms`.
+    pub fn commit_if_due(&mut self, now_host_ms: i64) -> Result<(), StoreError> {
+        if self.pending.is_some() && now_host_ms - self.batch_started_ms >= self.batching.max_age_ms
+        {
+            self.commit()?;
+        }
+        Ok(())
+    }
+
+    /// Starts a run from `source` (`serial:PATH`, `tcp:HOST:PORT`,
+    /// `file:PATH`, `stdin`) and commits it at once.
+    pub fn begin_run(&mut self, source: &str, started_host_ms: i64) -> Result<RunId, StoreError> {
+        self.commit()?;
+        self.conn
+            .execute(
+                "INSERT INTO runs (started_host_ms, source, tool_version) VALUES (?1, ?2, ?3)",
+                params![started_host_ms, source, env!("CARGO_PKG_VERSION")],
+            )
+            .map_err(|e| self.err("cannot start a run", e))?;
+        let id = self.conn.last_insert_rowid();
+        self.ord_run = id;
+        self.next_ord = 0;
+        Ok(id)
+    }
+
+    /// Ends `run` at `ended_host_ms` and commits everything.
+    pub fn end_run(&mut self, run: RunId, ended_host_ms: i64) -> Result<(), StoreError> {
+        self.commit()?;
+        self.conn
+            .execute(
+                "UPDATE runs SET ended_host_ms = ?2 WHERE id = ?1",
+                params![run, ended_host_ms],
+            )
+            .map_err(|e| self.err("cannot end the run", e))?;
+        Ok(())
+    }
+
+    /// Logs one frame of `run`, received at `host_ms`.
+    pub fn insert_frame(
+        &mut self,
+        run: RunId,
+        host_ms: i64,
+        frame: &Frame,
+    ) -> Result<(), StoreError> {
+        self.row(host_ms)?;
+        let ord = self.ord(run)?;
+        let result = match frame {
+            Frame::Hello(h) => self.conn.prepare_cached(INSERT_HELLO).and_then(|mut st| {
+                let (a, b, c) = h.firmware_version;
+                let u = &h.uncertainty;
+                st.execute(params![
+                    run,
+                    ord,
+                    host_ms,
+                    heatbound::wire::PROTOCOL_VERSION,
+                    h.rig_id.as_str(),
+                    format!("{a}.{b}.{c}"),
+                    h.sample_period_ms,
+                    h.window_samples,
+                    h.mode.as_str(),
+                    f64::from(h.coverage_factor),
+                    opt(h.ambient_k),
+                    f64::from(u.hot_k),
+                    f64::from(u.cold_k),
+                    f64::from(u.heat_in_rel),
+                    f64::from(u.work_rel),
+                    f64::from(u.heat_out_rel),
+                    h.config_digest,
+                ])
+            }),
+            Frame::Summary(s) => self.conn.prepare_cached(INSERT_SUMMARY).and_then(|mut st| {
+                st.execute(params![
+                    run,
+                    ord,
+                    host_ms,
+                    s.seq,
+                    s.t_ms,
+                    f64::from(s.duration_s),
+                    f64::from(s.heat_in_j),
+                    f64::from(s.work_j),
+                    f64::from(s.heat_out_j),
+                    f64::from(s.entropy_in_j_per_k),
+                    f64::from(s.entropy_out_j_per_k),
+                    opt(s.hot_mean_k),
+                    opt(s.ambient_k),
+                    opt(s.performance),
+                    opt(s.bound),
+                    opt(s.entropy_rate_w_per_k),
+                    opt(s.u_performance),
+                    opt(s.u_bound),
+                    opt(s.u_margin),
+                    opt(s.u_entropy_rate_w_per_k),
+                    status_bits(&s.status),
+                    fault_bits(&s.faults),
+                    s.alarms,
+                ])
+            }),
+            Frame::Event(e) => self.conn.prepare_cached(INSERT_EVENT).and_then(|mut st| {
+                st.execute(params![
+                    run,
+                    ord,
+                    host_ms,
+                    e.seq,
+                    e.event.t_ms,
+                    e.event.rule.as_str(),
+                    e.event.kind.as_str(),
+                    e.event.severity.as_str(),
+                ])
+            }),
+        };
+        result.map_err(|e| self.err("cannot log a frame", e))?;
+        self.after_row()
+    }
+
+    /// Logs `count` losses of `kind` on `run` at `host_ms`.
+    pub fn insert_link_error(
+        &mut self,
+        run: RunId,
+        host_ms: i64,
+        kind: LinkErrorKind,
+        count: u64,
+        detail: &str,
+    ) -> Result<(), StoreError> {
+        self.row(host_ms)?;
+        let ord = self.ord(run)?;
+        let count = i64::try_from(count).unwrap_or(i64::MAX);
+        self.conn
+            .prepare_cached(INSERT_LINK_ERROR)
+            .and_then(|mut st| st.execute(params![run, ord, host_ms, kind.as_str(), count, detail]))
+            .map_err(|e| self.err("cannot log a link error", e))?;
+        self.after_row()
+    }
+
+    /// Records that the link of `run` dropped at `host_ms`; commits at once.
+    /// Returns the outage's id for [`Log::end_outage`].
+    pub fn begin_outage(
+        &mut self,
+        run: RunId,
+        host_ms: i64,
+        reason: &str,
+    ) -> Result<i64, StoreError> {
+        self.commit()?;
+        self.conn
+            .execute(
+                "INSERT INTO outages (run_id, started_host_ms, reason) VALUES (?1, ?2, ?3)",
+                params![run, host_ms, reason],
+            )
+            .map_err(|e| self.err("cannot log an outage", e))?;
+        Ok(self.conn.last_insert_rowid())
+    }
+
+    /// Records that the link came back at `host_ms`; commits at once.
+    pub fn end_outage(&mut self, outage: i64, host_ms: i64) -> Result<(), StoreError> {
+        self.commit()?;
+        self.conn
+            .execute(
+                "UPDATE outages SET ended_host_ms = ?2 WHERE id = ?1",
+                params![outage, host_ms],
+            )
+            .map_err(|e| self.err("cannot end an outage", e))?;
+        Ok(())
+    }
+
+    // -- reading ----------------------------------------------------------
+
+    /// Every run, oldest first.
+    pub fn runs(&self) -> Result<Vec<RunInfo>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT id, started_host_ms, source, tool_version, ended_host_ms,
+                 (SELECT count(*) FROM summaries s WHERE s.run_id = runs.id)
+                 FROM runs ORDER BY id",
+            )
+            .map_err(|e| self.err("cannot list runs", e))?;
+        let rows = st
+            .query_map([], |r| {
+                Ok(RunInfo {
+                    id: r.get(0)?,
+                    started_host_ms: r.get(1)?,
+                    source: r.get(2)?,
+                    tool_version: r.get(3)?,
+                    ended_host_ms: r.get(4)?,
+                    summaries: r.get::<_, i64>(5)?.try_into().unwrap_or(0),
+                })
+            })
+            .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
+            .map_err(|e| self.err("cannot list runs", e))?;
+        Ok(rows)
+    }
+
+    /// The frames of `run` in receive order: Hellos, Summaries and Events
+    /// interleaved as they arrived, each rebuilt exactly as decoded. Reads in
+    /// pages, so memory does not grow with the run.
+    pub fn frames(
+        &self,
+        run: RunId,
+    ) -> Result<impl Iterator<Item = Result<Stored, StoreError>> + '_, StoreError> {
+        Ok(FramesIter {
+            log: self,
+            run,
+            after_ord: -1,
+            page: VecDeque::new(),
+            done: false,
+        })
+    }
+
+    fn frames_page(&self, run: RunId, after_ord: i64) -> Result<Vec<PageRow>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare_cached(SELECT_FRAMES)
+            .map_err(|e| self.err("cannot read frames", e))?;
+        let rows = st
+            .query_map(params![run, after_ord, FRAMES_PAGE], |r| {
+                let ord: i64 = r.get(0)?;
+                Ok((ord, self.frame_row(run, ord, r)))
+            })
+            .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
+            .map_err(|e| self.err("cannot read frames", e))?;
+        Ok(rows)
+    }
+
+    /// Rebuilds one row of [`SELECT_FRAMES`]; `Err` of rusqlite are column
+    /// type errors, mapped to [`StoreError::BadRow`].
+    fn frame_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Stored, StoreError> {
+        let kind: i64 = r.get(2).map_err(|e| self.bad(run, "frames", ord, e))?;
+        let host_ms: i64 = r.get(1).map_err(|e| self.bad(run, "frames", ord, e))?;
+        let frame = match kind {
+            0 => Frame::Hello(self.hello_row(run, ord, r)?),
+            1 => Frame::Summary(summary_row(r).map_err(|e| self.bad(run, "summaries", ord, e))?),
+            _ => Frame::Event(self.event_row(run, ord, r)?),
+        };
+        Ok(Stored { host_ms, frame })
+    }
+
+    fn bad(&self, run_id: RunId, table: &'static str, ord: i64, e: impl ToString) -> StoreError {
+        StoreError::BadRow {
+            path: self.path.clone(),
+            run_id,
+            table,
+            ord,
+            reason: e.to_string(),
+        }
+    }
+
+    fn hello_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Hello, StoreError> {
+        let bad = |e: &dyn std::fmt::Display| self.bad(run, "hellos", ord, e);
+        let get_f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
+        let rig: String = r.get(4).map_err(|e| bad(&e))?;
+        let fw: String = r.get(5).map_err(|e| bad(&e))?;
+        let mode: String = r.get(8).map_err(|e| bad(&e))?;
+        let Ok(rig_id) = RigId::new(&rig) else {
+            return Err(bad(&format!("bad rig_id {rig:?}")));
+        };
+        let firmware_version =
+            parse_version(&fw).ok_or_else(|| bad(&format!("bad firmware_version {fw:?}")))?;
+        let mode = parse_mode(&mode).ok_or_else(|| bad(&format!("bad mode {mode:?}")))?;
+        let u = (|| {
+            Ok::<_, rusqlite::Error>(Uncertainties {
+                hot_k: get_f(11)?,
+                cold_k: get_f(12)?,
+                heat_in_rel: get_f(13)?,
+                work_rel: get_f(14)?,
+                heat_out_rel: get_f(15)?,
+            })
+        })()
+        .map_err(|e| bad(&e))?;
+        (|| {
+            Ok::<_, rusqlite::Error>(Hello {
+                rig_id,
+                firmware_version,
+                sample_period_ms: r.get(6)?,
+                window_samples: r.get(7)?,
+                mode,
+                coverage_factor: get_f(9)?,
+                ambient_k: r.get::<_, Option<f64>>(10)?.map(|x| x as f32),
+                uncertainty: u,
+                config_digest: r.get(16)?,
+            })
+        })()
+        .map_err(|e| bad(&e))
+    }
+
+    fn event_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<EventFrame, StoreError> {
+        let bad = |e: &dyn std::fmt::Display| self.bad(run, "events", ord, e);
+        let seq: u16 = r.get(3).map_err(|e| bad(&e))?;
+        let t_ms: u32 = r.get(4).map_err(|e| bad(&e))?;
+        let rule: String = r.get(5).map_err(|e| bad(&e))?;
+        let kind: String = r.get(6).map_err(|e| bad(&e))?;
+        let severity: String = r.get(7).map_err(|e| bad(&e))?;
+        Ok(EventFrame {
+            seq,
+            event: Event {
+                t_ms,
+                rule: RuleId::parse(&rule).ok_or_else(|| bad(&format!("bad rule {rule:?}")))?,
+                kind: parse_event_kind(&kind).ok_or_else(|| bad(&format!("bad kind {kind:?}")))?,
+                severity: parse_severity(&severity)
+                    .ok_or_else(|| bad(&format!("bad severity {severity:?}")))?,
+            },
+        })
+    }
+
+    /// The link errors of `run`, in order.
+    pub fn link_errors(&self, run: RunId) -> Result<Vec<LinkErrorRow>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT ord, host_ms, kind, count, detail FROM link_errors
+                 WHERE run_id = ?1 ORDER BY ord",
+            )
+            .map_err(|e| self.err("cannot read link errors", e))?;
+        let rows = st
+            .query_map([run], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    r.get::<_, i64>(1)?,
+                    r.get::<_, String>(2)?,
+                    r.get::<_, i64>(3)?,
+                    r.get::<_, String>(4)?,
+                ))
+            })
+            .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
+            .map_err(|e| self.err("cannot read link errors", e))?;
+        rows.into_iter()
+            .map(|(ord, host_ms, kind, count, detail)| {
+                let kind = LinkErrorKind::parse(&kind).ok_or_else(|| {
+                    self.bad(run, "link_errors", ord, format!("bad kind {kind:?}"))
+                })?;
+                Ok(LinkErrorRow {
+                    ord,
+                    host_ms,
+                    kind,
+                    count: u64::try_from(count).unwrap_or(0),
+                    detail,
+                })
+            })
+            .collect()
+    }
+
+    /// The outages of `run`, in order.
+    pub fn outages(&self, run: RunId) -> Result<Vec<OutageRow>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT id, started_host_ms, ended_host_ms, reason FROM outages
+                 WHERE run_id = ?1 ORDER BY started_host_ms, id",
+            )
+            .map_err(|e| self.err("cannot read outages", e))?;
+        st.query_map([run], |r| {
+            Ok(OutageRow {
+                id: r.get(0)?,
+                started_host_ms: r.get(1)?,
+                ended_host_ms: r.get(2)?,
+                reason: r.get(3)?,
+            })
+        })
+        .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
+        .map_err(|e| self.err("cannot read outages", e))
+    }
+}
+
+impl Drop for Log {
+    fn drop(&mut self) {
+        // Best effort: an error here has nowhere to go, and WAL keeps every
+        // earlier batch either way.
+        let _ = self.commit();
+    }
+}
+
+/// Pages through [`SELECT_FRAMES`].
+struct FramesIter<'a> {
+    log: &'a Log,
+    run: RunId,
+    after_ord: i64,
+    page: VecDeque<Result<Stored, StoreError>>,
+    done: bool,
+}
+
+impl Iterator for FramesIter<'_> {
+    type Item = Result<Stored, StoreError>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        if self.page.is_empty() && !self.done {
+            match self.log.frames_page(self.run, self.after_ord) {
+                Ok(rows) => {
+                    self.done = (rows.len() as i64) < FRAMES_PAGE;
+                    if let Some((last, _)) = rows.last() {
+                        self.after_ord = *last;
+                    }
+                    self.page.extend(rows.into_iter().map(|(_, r)| r));
+                }
+                Err(e) => {
+                    self.done = true;
+                    return Some(Err(e));
+                }
+            }
+        }
+        self.page.pop_front()
+    }
+}
+
+fn sql_err(path: &Path, what: &'static str, source: rusqlite::Error) -> StoreError {
+    StoreError::Sqlite {
+        path: path.to_path_buf(),
+        what,
+        source,
+    }
+}
+
+fn summary_row(r: &Row<'_>) -> Result<Summary, rusqlite::Error> {
+    let f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
+    let o = |i: usize| r.get::<_, Option<f64>>(i).map(|x| x.map(|x| x as f32));
+    let status: u8 = r.get(20)?;
+    let faults: u8 = r.get(21)?;
+    Ok(Summary {
+        seq: r.get(3)?,
+        t_ms: r.get(4)?,
+        duration_s: f(5)?,
+        heat_in_j: f(6)?,
+        work_j: f(7)?,
+        heat_out_j: f(8)?,
+        entropy_in_j_per_k: f(9)?,
+        entropy_out_j_per_k: f(10)?,
+        hot_mean_k: o(11)?,
+        ambient_k: o(12)?,
+        performance: o(13)?,
+        bound: o(14)?,
+        entropy_rate_w_per_k: o(15)?,
+        u_performance: o(16)?,
+        u_bound: o(17)?,
+        u_margin: o(18)?,
+        u_entropy_rate_w_per_k: o(19)?,
+        status: Status {
+            steady: status & STATUS_STEADY != 0,
+            heat_out_measured: status & STATUS_HEAT_OUT_MEASURED != 0,
+            trip_active: status & STATUS_TRIP_ACTIVE != 0,
+            any_fault: status & STATUS_ANY_FAULT != 0,
+        },
+        faults: FaultBits {
+            channels: faults & FAULT_CHANNELS,
+            stale: faults & FAULT_STALE != 0,
+        },
+        alarms: r.get(22)?,
+    })
+}
+
+/// `summaries.status` bit 0: steady.
+pub const STATUS_STEADY: u8 = 1 << 0;
+/// `summaries.status` bit 1: heat out measured.
+pub const STATUS_HEAT_OUT_MEASURED: u8 = 1 << 1;
+/// `summaries.status` bit 2: trip output active.
+pub const STATUS_TRIP_ACTIVE: u8 = 1 << 2;
+/// `summaries.status` bit 3: some channel faulty.
+pub const STATUS_ANY_FAULT: u8 = 1 << 3;
+/// `summaries.faults` bits 0–4: the faulty channels.
+pub const FAULT_CHANNELS: u8 = 0x1F;
+/// `summaries.faults` bit 5: stale.
+pub const FAULT_STALE: u8 = 1 << 5;
+
+/// The status byte as on the wire (docs/wire-format.md §3.2, field 18).
+pub fn status_bits(s: &Status) -> u8 {
+    let mut b = 0;
+    for (on, bit) in [
+        (s.steady, STATUS_STEADY),
+        (s.heat_out_measured, STATUS_HEAT_OUT_MEASURED),
+        (s.trip_active, STATUS_TRIP_ACTIVE),
+        (s.any_fault, STATUS_ANY_FAULT),
+    ] {
+        if on {
+            b |= bit;
+        }
+    }
+    b
+}
+
+/// The faults byte as on the wire (docs/wire-format.md §3.2, field 19).
+pub fn fault_bits(f: &FaultBits) -> u8 {
+    (f.channels & FAULT_CHANNELS) | if f.stale { FAULT_STALE } else { 0 }
+}
+
+fn parse_version(text: &str) -> Option<(u8, u8, u8)> {
+    let mut it = text.split('.').map(str::parse::<u8>);
+    let v = (it.next()?.ok()?, it.next()?.ok()?, it.next()?.ok()?);
+    it.next().is_none().then_some(v)
+}
+
+fn parse_mode(text: &str) -> Option<Mode> {
+    [Mode::Engine, Mode::HeatPump, Mode::Cooler]
+        .into_iter()
+        .find(|m| m.as_str() == text)
+}
+
+fn parse_event_kind(text: &str) -> Option<EventKind> {
+    [
+        EventKind::Raised,
+        EventKind::Cleared,
+        EventKind::Acknowledged,
+    ]
+    .into_iter()
+    .find(|k| k.as_str() == text)
+}
+
+fn parse_severity(text: &str) -> Option<Severity> {
+    [Severity::Advisory, Severity::Warning, Severity::Trip]
+        .into_iter()
+        .find(|s| s.as_str() == text)
+}
