@@ -12,17 +12,30 @@
 //!     --> heatbound::monitor::Monitor --> heatbound::alarm::AlarmSet
 //! ```
 //!
-//! What is here now:
+//! ```text
+//! board or sim_bus --(SPI/I2C bytes, pulses)--> drivers --> app::App::tick
+//!     --> Sample --> Monitor --> AlarmSet --> trip pin, wire frames --> UART
+//! ```
+//!
+//! What is here:
+//! - [`drivers`]: embedded-hal 1.0 drivers, each a pure `conversion` module
+//!   plus the bus side: [`drivers::max31855`] (K-type thermocouple converter
+//!   on SPI, with ITS-90 cold-junction compensation), [`drivers::ina226`]
+//!   (current/voltage monitor on I2C) and [`drivers::flow`] (pulse-counting
+//!   flow meter and coolant calorimetry);
+//! - [`app`]: the [`App`](app::App), generic over `SpiDevice`, `I2c`,
+//!   `OutputPin`, `embedded_io::Write` and a heat-out channel, with time as an
+//!   argument: `start(t_ms)`, `tick(t_ms)`, `acknowledge_all(t_ms)`;
 //! - [`rig`]: a simulated bench heat engine (an electrically heated
 //!   Stirling-type engine with a water-cooled cold side), with seeded,
 //!   bit-exact measurement noise and the fault scenarios the alarms must
-//!   catch. No heap, no clock: time is always an argument.
+//!   catch. No heap, no clock: time is always an argument;
+//! - [`sim_bus`]: the rig behind the same traits, answering with the bytes
+//!   the real chips would send, with fault injection.
 //!
-//! What arrives later: the embedded-hal 1.0 drivers (thermocouple and RTD
-//! converters, power meters, the flow counter), an `App` generic over the HAL
-//! traits, and bus-level implementations of those traits on top of [`rig`]
-//! (fed by [`rig::Rig::measured`]), so that the same application code runs on a
-//! board, in the emulator and on a PC.
+//! The bare-metal binary (memory map, linker scripts, runner) arrives later;
+//! it only has to build the HAL devices, call [`app::App::start`] and then
+//! [`app::App::tick`] from a SysTick-paced loop.
 //!
 //! ```
 //! use heatbound_firmware_example::rig::{Rig, Scenario};
@@ -38,4 +51,7 @@
 
 pub use heatbound;
 
+pub mod app;
+pub mod drivers;
 pub mod rig;
+pub mod sim_bus;

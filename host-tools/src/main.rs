@@ -34,6 +34,8 @@ enum Command {
     Simulate(cmd::simulate::Args),
     /// Re-check a capture or a log database; exit non-zero when it is not trustworthy.
     Audit(cmd::audit::Args),
+    /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited.
+    Demo(cmd::demo::Args),
 }
 
 /// A usage error as one line: clap's message up to its first blank line,
@@ -81,6 +83,7 @@ fn main() -> ExitCode {
         Command::Watch(args) => cmd::watch::run(&args),
         Command::Simulate(args) => cmd::simulate::run(&args),
         Command::Audit(args) => cmd::audit::run(&args),
+        Command::Demo(args) => cmd::demo::run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

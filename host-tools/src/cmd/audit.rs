@@ -137,7 +137,7 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats)> {
 /// the audit's decoder counts. Gap, duplicate and restart rows are not
 /// counted again: the audit re-derives them from the stored frames. Each
 /// outage (the link dropped) is a link error.
-fn read_database(
+pub(crate) fn read_database(
     path: &Path,
     run: Option<i64>,
 ) -> Result<(Vec<Received>, DecoderStats, Vec<LinkError>)> {

@@ -3,5 +3,6 @@ pub mod analyze;
 pub mod audit;
 pub mod convert;
 pub mod cycle;
-pub mod watch;
+pub mod demo;
 pub mod simulate;
+pub mod watch;

@@ -66,7 +66,8 @@ pub struct Args {
     pub quiet: bool,
 }
 
-fn now_ms() -> i64 {
+/// Host time, Unix milliseconds.
+pub(crate) fn now_ms() -> i64 {
     SystemTime::now()
         .duration_since(UNIX_EPOCH)
         .map_or(0, |d| i64::try_from(d.as_millis()).unwrap_or(i64::MAX))
@@ -74,7 +75,7 @@ fn now_ms() -> i64 {
 
 /// Why the read loop ended.
 #[derive(Clone, Copy, PartialEq, Eq)]
-enum End {
+pub(crate) enum End {
     Eof,
     Signal,
     Duration,
@@ -82,8 +83,8 @@ enum End {
 }
 
 /// The bounds of the run.
-struct Bounds {
-    deadline: Option<Instant>,
+pub(crate) struct Bounds {
+    pub(crate) deadline: Option<Instant>,
 }
 
 impl Bounds {
@@ -199,7 +200,12 @@ fn feed(ingest: &mut Ingest, bytes: &[u8], db: &str) -> Result<()> {
 }
 
 /// Reads a capture (file or stdin) to its end.
-fn read_to_end(ingest: &mut Ingest, bounds: &Bounds, mut r: impl Read, name: &str) -> Result<End> {
+pub(crate) fn read_to_end(
+    ingest: &mut Ingest,
+    bounds: &Bounds,
+    mut r: impl Read,
+    name: &str,
+) -> Result<End> {
     let db = ingest.log().path().display().to_string();
     let mut buf = vec![0u8; CHUNK];
     loop {
@@ -294,7 +300,7 @@ fn wait(bounds: &Bounds, ingest: &Ingest, delay: Duration) {
     }
 }
 
-fn closing_line(t: &Totals, end: End, db: &std::path::Path) -> String {
+pub(crate) fn closing_line(t: &Totals, end: End, db: &std::path::Path) -> String {
     let why = match end {
         End::Eof => "end of input",
         End::Signal => "interrupted",

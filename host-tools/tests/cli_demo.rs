@@ -1,0 +1,79 @@
+//! `heatbound demo`: the whole chain, end to end, as the README's main command.
+use assert_cmd::Command;
+
+#[test]
+fn demo_raises_beyond_carnot_and_its_log_passes_the_audit() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("demo.sqlite");
+    // --speed 0 plays the same ten minutes of rig time as fast as possible.
+    let out = Command::cargo_bin("heatbound")
+        .unwrap()
+        .args(["demo", "--speed", "0", "--db"])
+        .arg(&db)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        out.status.success(),
+        "{text}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // The alarm is shown as it is raised, in the live stream...
+    assert!(
+        text.lines()
+            .any(|l| l.contains("raised") && l.contains("beyond_carnot")),
+        "{text}"
+    );
+    assert!(text.contains("ALARM beyond_carnot (trip)"), "{text}");
+    // ...and the run ends with the audit and the place of the log.
+    assert!(text.contains("verdict: trustworthy"), "{text}");
+    assert!(text.contains("log written to"), "{text}");
+    assert!(text.contains("not a safety-rated"), "{text}");
+    assert!(db.exists());
+
+    // The log it wrote audits clean on its own, too.
+    let audit = Command::cargo_bin("heatbound")
+        .unwrap()
+        .arg("audit")
+        .arg(&db)
+        .output()
+        .unwrap();
+    assert_eq!(
+        audit.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&audit.stdout)
+    );
+}
+
+#[test]
+fn demo_replaces_a_previous_log_instead_of_appending() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("demo.sqlite");
+    for _ in 0..2 {
+        Command::cargo_bin("heatbound")
+            .unwrap()
+            .args(["demo", "--speed", "0", "--quiet", "--db"])
+            .arg(&db)
+            .assert()
+            .success();
+    }
+    let conn = rusqlite::Connection::open(&db).unwrap();
+    let runs: i64 = conn
+        .query_row("SELECT COUNT(*) FROM runs", [], |r| r.get(0))
+        .unwrap();
+    assert_eq!(runs, 1);
+}
+
+#[test]
+fn demo_rejects_a_bad_speed_in_one_line() {
+    let out = Command::cargo_bin("heatbound")
+        .unwrap()
+        .args(["demo", "--speed=-1"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("--speed"), "{err}");
+}
