@@ -97,6 +97,8 @@ pub fn run(args: &Args) -> Result<()> {
 
     let style = if args.quiet {
         LineStyle::Quiet
+    } else if std::io::stdout().is_terminal() {
+        LineStyle::Ansi
     } else {
         LineStyle::Plain
     };
