@@ -55,6 +55,21 @@ pub enum LineStyle {
     Ansi,
 }
 
+impl LineStyle {
+    /// Quiet if asked; else highlighted when stdout is a terminal, plain
+    /// when it is a file or a pipe.
+    pub fn for_stdout(quiet: bool) -> LineStyle {
+        use std::io::IsTerminal as _;
+        if quiet {
+            LineStyle::Quiet
+        } else if std::io::stdout().is_terminal() {
+            LineStyle::Ansi
+        } else {
+            LineStyle::Plain
+        }
+    }
+}
+
 /// What a run contained, for the closing summary.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct Totals {

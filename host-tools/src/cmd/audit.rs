@@ -17,7 +17,8 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result, bail};
 use heatbound::wire::{self, Decoder, DecoderStats};
 
-use heatbound_host::audit::{self, Input, LinkError, Received};
+use heatbound::config::RigConfig;
+use heatbound_host::audit::{self, Input, LinkError, Received, Report};
 use heatbound_host::store::{LinkErrorKind, Log};
 
 /// The first 16 bytes of every SQLite 3 database file.
@@ -51,23 +52,22 @@ pub struct Args {
 pub fn run(args: &Args) -> Result<()> {
     let config = crate::cmd::analyze::load_config(args.config.as_deref())?;
     let name = args.input.display().to_string();
-    let (frames, decoder, link_errors) = if is_database(&args.input)? {
-        read_database(&args.input, args.run)?
+    let report = if is_database(&args.input)? {
+        audit_database(&args.input, args.run, &config)?
     } else {
         if args.run.is_some() {
             bail!("{name}: --run applies to a log database, and this is a raw capture");
         }
-        let (frames, stats) = read_capture(&args.input)?;
-        (frames, stats, Vec::new())
+        let (frames, decoder) = read_capture(&args.input)?;
+        audit::audit(
+            &Input {
+                frames: &frames,
+                decoder,
+                link_errors: &[],
+            },
+            &config,
+        )
     };
-    let report = audit::audit(
-        &Input {
-            frames: &frames,
-            decoder,
-            link_errors: &link_errors,
-        },
-        &config,
-    );
     let mut stdout = std::io::stdout().lock();
     if args.json {
         let text = serde_json::to_string_pretty(&report).context("encoding the report")?;
@@ -131,13 +131,26 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats)> {
     Ok((frames, stats))
 }
 
+/// Audits a run (the latest unless `run` is given) of the log database at `path`.
+pub(crate) fn audit_database(path: &Path, run: Option<i64>, config: &RigConfig) -> Result<Report> {
+    let (frames, decoder, link_errors) = read_database(path, run)?;
+    Ok(audit::audit(
+        &Input {
+            frames: &frames,
+            decoder,
+            link_errors: &link_errors,
+        },
+        config,
+    ))
+}
+
 /// Reads a run (the latest unless `run` is given) from the log database.
 ///
 /// The logger stores the decoder's losses as link-error rows; they become
 /// the audit's decoder counts. Gap, duplicate and restart rows are not
 /// counted again: the audit re-derives them from the stored frames. Each
 /// outage (the link dropped) is a link error.
-pub(crate) fn read_database(
+fn read_database(
     path: &Path,
     run: Option<i64>,
 ) -> Result<(Vec<Received>, DecoderStats, Vec<LinkError>)> {

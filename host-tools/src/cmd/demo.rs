@@ -11,7 +11,7 @@
 //! time play in about 20 s: the hot thermocouple starts to read low at
 //! 120 s, the apparent efficiency climbs past the Carnot bound of the
 //! readings, and `beyond_carnot` is raised.
-use std::io::{IsTerminal as _, Write as _};
+use std::io::Write as _;
 use std::net::{Ipv4Addr, TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
 use std::thread;
@@ -20,7 +20,6 @@ use std::time::{Duration, Instant};
 use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
 use heatbound_firmware_example::rig::{Rig, Scenario};
-use heatbound_host::audit::{self, Input};
 use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::store::Log;
 
@@ -95,13 +94,7 @@ pub fn run(args: &Args) -> Result<()> {
         .accept()
         .context("the simulated controller did not connect")?;
 
-    let style = if args.quiet {
-        LineStyle::Quiet
-    } else if std::io::stdout().is_terminal() {
-        LineStyle::Ansi
-    } else {
-        LineStyle::Plain
-    };
+    let style = LineStyle::for_stdout(args.quiet);
     let mut ingest = Ingest::new(log, &format!("tcp:{addr}"), now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
     let started = Instant::now();
@@ -138,15 +131,7 @@ pub fn run(args: &Args) -> Result<()> {
     }
 
     // Re-check what was logged, from the database, as `heatbound audit` would.
-    let (frames, decoder, link_errors) = crate::cmd::audit::read_database(&args.db, None)?;
-    let report = audit::audit(
-        &Input {
-            frames: &frames,
-            decoder,
-            link_errors: &link_errors,
-        },
-        &config,
-    );
+    let report = crate::cmd::audit::audit_database(&args.db, None, &config)?;
     println!();
     print!("{}", report.text(&args.db.display().to_string()));
     let shown = std::fs::canonicalize(&args.db).unwrap_or_else(|_| args.db.clone());

@@ -12,7 +12,7 @@
 //! SIGINT and SIGTERM end the run cleanly: the loop notices within one read
 //! timeout, commits and closes the run. A second signal exits at once; the
 //! batches already committed survive (WAL).
-use std::io::{ErrorKind, IsTerminal as _, Read};
+use std::io::{ErrorKind, Read};
 use std::net::TcpStream;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -121,13 +121,7 @@ pub fn run(args: &Args) -> Result<()> {
     });
 
     let log = Log::open(&args.db).with_context(|| "cannot open the log".to_string())?;
-    let style = if args.quiet {
-        LineStyle::Quiet
-    } else if std::io::stdout().is_terminal() {
-        LineStyle::Ansi
-    } else {
-        LineStyle::Plain
-    };
+    let style = LineStyle::for_stdout(args.quiet);
     let source = if let Some(path) = &args.serial {
         format!("serial:{path}")
     } else if let Some(addr) = &args.tcp {
