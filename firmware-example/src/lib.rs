@@ -33,9 +33,10 @@
 //! - [`sim_bus`]: the rig behind the same traits, answering with the bytes
 //!   the real chips would send, with fault injection.
 //!
-//! The bare-metal binary (memory map, linker scripts, runner) arrives later;
-//! it only has to build the HAL devices, call [`app::App::start`] and then
-//! [`app::App::tick`] from a SysTick-paced loop.
+//! The bare-metal binary for QEMU mps2-an386 (`src/bin/mps2_an386`, feature
+//! `bare-metal`; `memory.x`, `build.rs`, the runner in `.cargo/config.toml`)
+//! builds the devices, calls [`app::App::start`] and then [`app::App::tick`]
+//! once per sample; `scripts/` runs it in the emulator.
 //!
 //! ```
 //! use heatbound_firmware_example::rig::{Rig, Scenario};

@@ -237,7 +237,11 @@ impl RigParams {
     /// load, `f(load)`.
     pub fn carnot_fraction(&self) -> f32 {
         let d = self.load - 1.0;
-        (self.peak_carnot_fraction * (1.0 - d * d)).clamp(0.0, self.peak_carnot_fraction)
+        // max/min, not clamp: `f32::clamp`'s bound check drags float
+        // formatting (its panic message) into the firmware's flash.
+        (self.peak_carnot_fraction * (1.0 - d * d))
+            .max(0.0)
+            .min(self.peak_carnot_fraction)
     }
 }
 

@@ -260,7 +260,9 @@ fn count(value: f64, lsb: f64, range: (i16, i16)) -> i16 {
     if c.is_nan() {
         return 0;
     }
-    c.clamp(f64::from(range.0), f64::from(range.1)) as i16
+    // max/min, not clamp: `f64::clamp`'s bound check would bring float
+    // formatting (its panic message) into the firmware.
+    c.max(f64::from(range.0)).min(f64::from(range.1)) as i16
 }
 
 /// The 14-bit thermocouple count for a temperature `t_c` (°C), rounded to

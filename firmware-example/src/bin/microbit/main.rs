@@ -1,0 +1,37 @@
+//! heatbound's per-sample instruction count on a Cortex-M0 with soft float:
+//! QEMU `-M microbit` (nRF51822, 256 KiB flash, 16 KiB RAM).
+//!
+//! Where it sits: beside the mps2-an386 firmware, for the DESIGN §6 budget
+//! of ≤ 20,000 instructions per sample on Cortex-M0. It runs only the
+//! [`measure`] mode (no App, no UART) and prints to semihosting stderr.
+//! The window is the firmware's 64 samples: `Monitor<64>` and the alarms fit
+//! the 16 KiB of RAM with room for the stack.
+#![no_std]
+#![no_main]
+#![deny(unsafe_code)]
+
+#[path = "../shared/hw.rs"]
+mod hw;
+#[path = "../shared/measure.rs"]
+mod measure;
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::debug::{self, EXIT_FAILURE, EXIT_SUCCESS};
+use cortex_m_semihosting::heprintln;
+use panic_semihosting as _;
+
+#[entry]
+fn main() -> ! {
+    hw::paint_stack();
+    let Some(cp) = cortex_m::Peripherals::take() else {
+        debug::exit(EXIT_FAILURE);
+        #[allow(clippy::empty_loop)]
+        loop {}
+    };
+    let report = measure::run::<64>(cp.SYST);
+    measure::print("microbit", &report);
+    heprintln!("stack.high_water_bytes={}", hw::stack_high_water_bytes());
+    debug::exit(EXIT_SUCCESS);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}

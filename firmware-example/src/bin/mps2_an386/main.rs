@@ -1,0 +1,242 @@
+//! heatbound firmware for the emulated Arm MPS2 board with a Cortex-M4F
+//! (QEMU `-M mps2-an386`), with the simulated rig compiled in.
+//!
+//! Where it sits: the board end of the data flow. The [`App`] runs
+//! unchanged over the [simulated bus](heatbound_firmware_example::sim_bus)
+//! devices and streams wire frames out of UART0; diagnostics go to
+//! semihosting stderr, never to the UART.
+//!
+//! ```text
+//! SimBench (rig, RefCell) --SPI/I2C bytes, pulses--> App::tick(t_ms) --> wire frames --> UART0 (0x4000_4000)
+//!                                                      \--> heprintln!: run summary, stack high-water mark
+//! ```
+//!
+//! Modes (cargo features):
+//! - default: simulate `HEATBOUND_DURATION_S` (600) s of rig time at 10 Hz
+//!   as fast as the emulator runs (`t_ms` is rig time, 100 ms per tick),
+//!   then exit QEMU with status 0;
+//! - `endless`: run until stopped, paced by SysTick to 10 Hz ×
+//!   `HEATBOUND_SPEEDUP` of emulated time (real time without `-icount`);
+//! - `measure`: no App; instruction counts of the per-sample work
+//!   ([`measure`]), then exit.
+//!
+//! The scenario and seed are fixed at build time ([`build_env`]).
+//!
+//! The trip output here is a simulated pin: it is a monitoring aid, not a
+//! safety interlock.
+#![no_std]
+#![no_main]
+#![deny(unsafe_code)]
+
+#[cfg(not(feature = "measure"))]
+#[path = "../shared/build_env.rs"]
+mod build_env;
+#[path = "../shared/hw.rs"]
+mod hw;
+#[cfg(feature = "measure")]
+#[path = "../shared/measure.rs"]
+mod measure;
+#[cfg_attr(feature = "measure", allow(dead_code))]
+mod uart;
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::debug::{self, EXIT_FAILURE, EXIT_SUCCESS};
+use cortex_m_semihosting::heprintln;
+use panic_semihosting as _;
+
+#[cfg(not(feature = "measure"))]
+use run::run;
+
+/// Fails the run: a message on semihosting stderr, QEMU exits with 1.
+fn fail(why: &str) -> ! {
+    heprintln!("heatbound-mps2-an386: {}", why);
+    debug::exit(EXIT_FAILURE);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}
+
+/// Ends the run: QEMU exits with 0.
+fn finish() -> ! {
+    heprintln!("stack.high_water_bytes={}", hw::stack_high_water_bytes());
+    debug::exit(EXIT_SUCCESS);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}
+
+#[entry]
+fn main() -> ! {
+    hw::paint_stack();
+    let Some(cp) = cortex_m::Peripherals::take() else {
+        fail("core peripherals already taken");
+    };
+    #[cfg(feature = "measure")]
+    {
+        let report = measure::run::<64>(cp.SYST);
+        measure::print("mps2-an386", &report);
+        finish()
+    }
+    #[cfg(not(feature = "measure"))]
+    run(cp.SYST)
+}
+
+#[cfg(not(feature = "measure"))]
+mod run {
+    //! The App over the simulated bench, streaming to UART0.
+
+    use core::cell::RefCell;
+
+    use cortex_m::peripheral::SYST;
+    use cortex_m_semihosting::heprintln;
+    use heatbound::alarm::RuleId;
+    use heatbound::config::RigConfig;
+    use heatbound::wire::RigId;
+    use heatbound_firmware_example::app::{App, AppConfig, Devices};
+    use heatbound_firmware_example::rig::Scenario;
+    use heatbound_firmware_example::sim_bus::{
+        SimBench, SimCalorimeter, SimI2c, SimThermocouple, SimTripPin, sim_devices,
+    };
+
+    use crate::build_env;
+    use crate::uart::Uart0;
+
+    /// Monitor window, samples.
+    const WINDOW: usize = 64;
+
+    /// Sample period, ms of rig time.
+    const DT_MS: u32 = 100;
+
+    /// UART0 divider: 115,200 baud from the 25 MHz peripheral clock.
+    const BAUDDIV: u32 = 217;
+
+    /// The rig identifier sent in the Hello.
+    const RIG_ID: &str = "qemu-mps2-an386";
+
+    /// The App on this board.
+    type BoardApp = App<
+        SimThermocouple<'static>,
+        SimThermocouple<'static>,
+        SimI2c<'static>,
+        SimTripPin,
+        Uart0,
+        SimCalorimeter<'static>,
+        WINDOW,
+    >;
+
+    /// Builds the bench and the App in statics, boots it at t = 0 and runs
+    /// the sample loop.
+    pub fn run(syst: SYST) -> ! {
+        let Ok(scenario) = Scenario::parse(build_env::SCENARIO) else {
+            crate::fail("unknown HEATBOUND_SCENARIO");
+        };
+        let Some(bench) = cortex_m::singleton!(
+            BENCH: RefCell<SimBench> =
+                RefCell::new(SimBench::bench_stirling(scenario, build_env::SEED))
+        ) else {
+            crate::fail("bench already built");
+        };
+        let bench: &'static RefCell<SimBench> = bench;
+        let sim = sim_devices::<0>(bench);
+        let devices = Devices {
+            hot_spi: sim.hot_spi,
+            cold_spi: sim.cold_spi,
+            i2c: sim.i2c,
+            trip: sim.trip,
+            uart: Uart0::new(BAUDDIV),
+            heat_out: sim.heat_out,
+        };
+        let Ok(rig_id) = RigId::new(RIG_ID) else {
+            crate::fail("bad rig id");
+        };
+        let config = AppConfig::bench(RigConfig::default(), rig_id);
+        let Ok(app) = App::new(&config, devices) else {
+            crate::fail("the configuration does not suit the monitor");
+        };
+        let Some(app) = cortex_m::singleton!(APP: BoardApp = app) else {
+            crate::fail("app already built");
+        };
+        heprintln!(
+            "heatbound-mps2-an386: scenario {} seed {}",
+            scenario.name(),
+            build_env::SEED
+        );
+        #[cfg(feature = "defmt")]
+        defmt::info!("boot: scenario {=str}", scenario.name());
+
+        let mut pacer = Pacer::new(syst);
+        if let Ok(mut b) = bench.try_borrow_mut() {
+            b.advance_to(0);
+        }
+        app.start(0);
+        let mut t_ms: u32 = 0;
+        loop {
+            pacer.wait();
+            t_ms = t_ms.wrapping_add(DT_MS);
+            if let Ok(mut b) = bench.try_borrow_mut() {
+                b.advance_to(t_ms);
+            }
+            app.tick(t_ms);
+            if !cfg!(feature = "endless") && t_ms >= build_env::DURATION_S.saturating_mul(1000) {
+                break;
+            }
+        }
+        report(app, t_ms);
+        crate::finish()
+    }
+
+    /// The run's summary on semihosting stderr.
+    fn report(app: &BoardApp, t_ms: u32) {
+        let stats = app.stats();
+        heprintln!(
+            "run.t_ms={} ticks={} frames_sent={} uart_errors={} encode_errors={}",
+            t_ms,
+            stats.ticks,
+            stats.frames_sent,
+            stats.uart_errors,
+            stats.encode_errors
+        );
+        heprintln!(
+            "run.invalid_samples={} trip={} beyond_carnot_active={}",
+            app.monitor().invalid_samples(),
+            app.trip_output(),
+            app.alarms().is_active(RuleId::BeyondCarnot)
+        );
+        #[cfg(feature = "defmt")]
+        defmt::info!("done: {=u32} frames", stats.frames_sent);
+    }
+
+    /// Paces the loop in `endless` mode: SysTick wraps once per sample
+    /// period of emulated time (25 MHz core clock). Without `-icount`
+    /// QEMU's emulated clock follows real time. In bounded mode it does
+    /// nothing: rig time is not real time.
+    struct Pacer {
+        #[cfg_attr(not(feature = "endless"), allow(dead_code))]
+        syst: SYST,
+    }
+
+    impl Pacer {
+        /// mps2-an386's core clock, Hz.
+        #[cfg_attr(not(feature = "endless"), allow(dead_code))]
+        const CORE_HZ: u32 = 25_000_000;
+
+        fn new(#[allow(unused_mut)] mut syst: SYST) -> Self {
+            #[cfg(feature = "endless")]
+            {
+                use cortex_m::peripheral::syst::SystClkSource;
+                let per_sample = Self::CORE_HZ / (1000 / DT_MS) / build_env::SPEEDUP.max(1);
+                syst.disable_interrupt();
+                syst.set_clock_source(SystClkSource::Core);
+                syst.set_reload(per_sample.clamp(1, 0x00FF_FFFF) - 1);
+                syst.clear_current();
+                syst.enable_counter();
+            }
+            Pacer { syst }
+        }
+
+        fn wait(&mut self) {
+            #[cfg(feature = "endless")]
+            while !self.syst.has_wrapped() {
+                core::hint::spin_loop();
+            }
+        }
+    }
+}

@@ -1,0 +1,52 @@
+//! Build-time settings of the bare-metal binaries, read from the environment
+//! of `cargo build` (`option_env!`), so one ELF is one reproducible run.
+//!
+//! | variable | default | meaning |
+//! |---|---|---|
+//! | `HEATBOUND_SCENARIO` | `thermocouple-drift` | the rig's scenario ([`Scenario::parse`](heatbound_firmware_example::rig::Scenario::parse) names) |
+//! | `HEATBOUND_SEED` | 1 | the rig's noise seed |
+//! | `HEATBOUND_DURATION_S` | 600 | rig time simulated before exiting (bounded mode) |
+//! | `HEATBOUND_SPEEDUP` | 1 | `endless` mode: rig seconds per real second |
+//!
+//! A malformed number fails the build (const evaluation).
+
+/// The scenario's name.
+pub const SCENARIO: &str = match option_env!("HEATBOUND_SCENARIO") {
+    Some(s) => s,
+    None => "thermocouple-drift",
+};
+
+/// The rig's noise seed.
+pub const SEED: u64 = parse_u32(option_env!("HEATBOUND_SEED"), 1) as u64;
+
+/// Rig time simulated in bounded mode, s.
+#[cfg_attr(feature = "endless", allow(dead_code))]
+pub const DURATION_S: u32 = parse_u32(option_env!("HEATBOUND_DURATION_S"), 600);
+
+/// Rig seconds per real second in `endless` mode (at least 1).
+#[cfg_attr(not(feature = "endless"), allow(dead_code))]
+pub const SPEEDUP: u32 = parse_u32(option_env!("HEATBOUND_SPEEDUP"), 1);
+
+/// A decimal `u32`, or `default` when unset; anything else stops the build.
+const fn parse_u32(s: Option<&str>, default: u32) -> u32 {
+    let Some(s) = s else {
+        return default;
+    };
+    let bytes = s.as_bytes();
+    assert!(!bytes.is_empty(), "empty HEATBOUND_* number");
+    let mut value: u32 = 0;
+    let mut i = 0;
+    while i < bytes.len() {
+        let d = bytes[i];
+        assert!(d.is_ascii_digit(), "HEATBOUND_* numbers are decimal digits");
+        value = match value.checked_mul(10) {
+            Some(v) => match v.checked_add((d - b'0') as u32) {
+                Some(v) => v,
+                None => panic!("HEATBOUND_* number too large"),
+            },
+            None => panic!("HEATBOUND_* number too large"),
+        };
+        i += 1;
+    }
+    value
+}
