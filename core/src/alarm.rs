@@ -338,6 +338,9 @@ fn level<R: Real>(x: Option<R>, deadband: R) -> Verdict {
 }
 
 /// The limits the rules compare against, taken from the configuration.
+///
+/// Kept in `f64` and, rounded once, in `f32`, so that neither precision
+/// converts a setting on every sample.
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Limits {
@@ -349,57 +352,110 @@ pub struct Limits {
     pub hot_max_k: f64,
     /// Deadband of each rule, in its unit.
     pub deadband: [f64; RuleId::COUNT],
+    /// The same four, in `f32`.
+    single: SingleLimits,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct SingleLimits {
+    coverage_factor: f32,
+    near_carnot_fraction: f32,
+    hot_max_k: f32,
+    deadband: [f32; RuleId::COUNT],
 }
 
 impl Limits {
     /// The limits of `config`.
     pub fn new(config: &RigConfig) -> Self {
         let a: &AlarmConfig = &config.alarms;
+        let deadband = RuleId::ALL.map(|id| a.rule(id).deadband);
         Self {
             coverage_factor: config.coverage_factor,
             near_carnot_fraction: a.near_carnot_fraction,
             hot_max_k: a.hot_max_k,
-            deadband: RuleId::ALL.map(|id| a.rule(id).deadband),
+            deadband,
+            single: SingleLimits {
+                coverage_factor: config.coverage_factor as f32,
+                near_carnot_fraction: a.near_carnot_fraction as f32,
+                hot_max_k: a.hot_max_k as f32,
+                deadband: deadband.map(|d| d as f32),
+            },
         }
     }
 
     /// Each rule's verdict on `inputs`.
     ///
-    /// `x` for each rule is the distance beyond its limit, in the rule's
-    /// deadband unit ([`RuleId::deadband_unit`]).
+    /// For each rule, `x` is the distance beyond its limit, in the rule's
+    /// deadband unit ([`RuleId::deadband_unit`]): raise when `x > 0`, hold
+    /// while `x ≥ −deadband`, clear below.
     pub fn verdicts<R: Real>(&self, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
         verdicts(self, inputs)
     }
 }
 
+/// The verdict on `a − k·u > 0` with deadband `d` (in the unit of `a`),
+/// given `k²·u²`: `a − k·u > 0 ⇔ a > 0 ∧ a² > k²u²`, and the hold test
+/// `a − k·u ≥ −d` likewise, so no square root is taken.
+fn beyond_uncertainty<R: Real>(a: R, k2_var: R, d: R) -> Verdict {
+    if a > R::ZERO && a * a > k2_var {
+        return Verdict::Raise { since_ms: None };
+    }
+    let held = a + d;
+    if held >= R::ZERO && held * held >= k2_var {
+        Verdict::Hold
+    } else {
+        Verdict::Clear
+    }
+}
+
 fn verdicts<R: Real>(limits: &Limits, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
-    let k = R::from_f64(limits.coverage_factor);
-    let db = |id: RuleId| R::from_f64(limits.deadband[id.index()]);
+    let single = &limits.single;
+    let k = R::pick(single.coverage_factor, limits.coverage_factor);
+    let k2 = k * k;
+    let db = |id: RuleId| {
+        let i = id.index();
+        R::pick(single.deadband[i], limits.deadband[i])
+    };
     let m = &inputs.figures;
 
-    // η − η_C − k·u(margin), with margin = η_C − η (or COP_C − COP).
-    let beyond = match (m.carnot_margin, m.u_carnot_margin) {
-        (Some(margin), Some(u)) => Some(-margin - k * u),
-        _ => None,
+    // η − η_C > k·u(margin), with margin = η_C − η (or COP_C − COP).
+    let beyond = match (m.carnot_margin, m.var_carnot_margin) {
+        (Some(margin), Some(var)) => {
+            beyond_uncertainty(-margin, k2 * var, db(RuleId::BeyondCarnot))
+        }
+        _ => Verdict::Clear,
     };
-    // (−σ̇ − k·u(σ̇)) relative to the entropy inflow rate, so the deadband is
-    // rig-independent.
+    // σ̇ < −k·u(σ̇); the deadband is a fraction of the entropy inflow rate,
+    // so it does not depend on the size of the rig.
     let negative_entropy = match (
         m.entropy_rate_w_per_k,
-        m.u_entropy_rate_w_per_k,
+        m.var_entropy_rate_w_per_k,
         m.entropy_in_rate_w_per_k,
     ) {
-        (Some(s), Some(u), Some(inflow)) if inflow > R::ZERO => Some((-s - k * u) / inflow),
-        _ => None,
+        (Some(s), Some(var), Some(inflow)) if inflow > R::ZERO => {
+            beyond_uncertainty(-s, k2 * var, db(RuleId::NegativeEntropyProduction) * inflow)
+        }
+        _ => Verdict::Clear,
     };
-    let near = m
-        .second_law_efficiency
-        .map(|f| f - R::from_f64(limits.near_carnot_fraction));
-    let balance = match (m.balance_residual_j, m.u_balance_residual_j) {
-        (Some(l), Some(u)) if m.heat_in_j > R::ZERO => Some((-l - k * u) / m.heat_in_j),
-        _ => None,
+    let near = level(
+        m.second_law_efficiency
+            .map(|f| f - R::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
+        db(RuleId::NearCarnot),
+    );
+    // Q_loss < −k·u(Q_loss); the deadband is a fraction of Q_in.
+    let balance = match (m.balance_residual_j, m.var_balance_residual_j) {
+        (Some(l), Some(var)) if m.heat_in_j > R::ZERO => {
+            beyond_uncertainty(-l, k2 * var, db(RuleId::EnergyBalance) * m.heat_in_j)
+        }
+        _ => Verdict::Clear,
     };
-    let over = inputs.t_hot_k.map(|t| t - R::from_f64(limits.hot_max_k));
+    let over = level(
+        inputs
+            .t_hot_k
+            .map(|t| t - R::pick(single.hot_max_k, limits.hot_max_k)),
+        db(RuleId::OverTemperature),
+    );
 
     let sensor = match inputs.faults.since_ms {
         Some(since) => Verdict::Raise {
@@ -408,14 +464,7 @@ fn verdicts<R: Real>(limits: &Limits, inputs: &AlarmInputs<R>) -> [Verdict; Rule
         None => Verdict::Clear,
     };
 
-    [
-        level(beyond, db(RuleId::BeyondCarnot)),
-        level(negative_entropy, db(RuleId::NegativeEntropyProduction)),
-        level(near, db(RuleId::NearCarnot)),
-        level(balance, db(RuleId::EnergyBalance)),
-        level(over, db(RuleId::OverTemperature)),
-        sensor,
-    ]
+    [beyond, negative_entropy, near, balance, over, sensor]
 }
 
 /// Seconds to whole milliseconds, saturating.

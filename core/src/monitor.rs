@@ -362,18 +362,44 @@ impl<R: Real> Partials<R> {
         }
     }
 
-    /// `√(Σ (∂f/∂x_i · u_i)²)`, GUM eq. (10) for uncorrelated inputs.
-    fn combine(self, u: &Uncertainty) -> Option<R> {
-        let t = |d: R, ui: f64| {
-            let x = d * R::from_f64(ui);
+    /// `Σ (∂f/∂x_i · u_i)²`, GUM eq. (10) for uncorrelated inputs: the
+    /// squared combined standard uncertainty.
+    fn variance(self, u: &[R; 5]) -> Option<R> {
+        let t = |d: R, ui: R| {
+            let x = d * ui;
             x * x
         };
-        fin((t(self.hot, u.hot_k)
-            + t(self.cold, u.cold_k)
-            + t(self.heat_in, u.heat_in_rel)
-            + t(self.work, u.work_rel)
-            + t(self.heat_out, u.heat_out_rel))
-        .sqrt())
+        fin(t(self.hot, u[0])
+            + t(self.cold, u[1])
+            + t(self.heat_in, u[2])
+            + t(self.work, u[3])
+            + t(self.heat_out, u[4]))
+    }
+
+    /// `√(Σ (∂f/∂x_i · u_i)²)`: the combined standard uncertainty.
+    fn combine(self, u: &[R; 5]) -> Option<R> {
+        self.variance(u).and_then(|v| fin(v.sqrt()))
+    }
+}
+
+/// [`FigureSettings`] in `R`, converted once rather than on every sample.
+#[derive(Clone, Copy, Debug)]
+struct Prepared<R> {
+    mode: Mode,
+    ambient: Option<R>,
+    /// Standard uncertainties: hot and cold offsets (K), then the relative
+    /// scale errors of heat in, work and heat out.
+    u: [R; 5],
+}
+
+impl<R: Real> Prepared<R> {
+    fn new(s: &FigureSettings) -> Self {
+        let u = &s.uncertainty;
+        Self {
+            mode: s.mode,
+            ambient: s.ambient_k.map(R::from_f64),
+            u: [u.hot_k, u.cold_k, u.heat_in_rel, u.work_rel, u.heat_out_rel].map(R::from_f64),
+        }
     }
 }
 
@@ -398,8 +424,9 @@ impl<R: Real> Integrals<R> {
     /// assert_eq!(m.carnot_efficiency, Some(0.5));
     /// ```
     pub fn metrics(&self, settings: &FigureSettings) -> Metrics<R> {
-        let c = self.second_law(settings);
-        let u = &settings.uncertainty;
+        let p = Prepared::new(settings);
+        let c = self.second_law(&p);
+        let u = &p.u;
         let mut m = Metrics {
             duration_s: self.duration_s,
             heat_in_j: self.heat_in_j,
@@ -409,13 +436,16 @@ impl<R: Real> Integrals<R> {
             cold_mean_k: c.tc,
             carnot_margin: c.margin(),
             second_law_efficiency: c.second_law_efficiency(),
-            u_carnot_margin: c.u_margin(u),
+            u_carnot_margin: c.var_margin(u).and_then(|v| fin(v.sqrt())),
             balance_residual_j: c.loss,
-            u_balance_residual_j: c.u_loss,
+            u_balance_residual_j: c.var_loss.and_then(|v| fin(v.sqrt())),
             entropy_generated_j_per_k: c.s_gen,
-            u_entropy_generated_j_per_k: c.u_s_gen(u),
+            u_entropy_generated_j_per_k: c.var_s_gen(u).and_then(|v| fin(v.sqrt())),
             entropy_rate_w_per_k: c.s_gen.and_then(|s| ratio(s, self.duration_s)),
-            u_entropy_rate_w_per_k: c.u_s_gen(u).and_then(|s| ratio(s, self.duration_s)),
+            u_entropy_rate_w_per_k: c
+                .var_s_gen(u)
+                .and_then(|v| fin(v.sqrt()))
+                .and_then(|s| ratio(s, self.duration_s)),
             entropy_in_rate_w_per_k: ratio(self.entropy_in_j_per_k, self.duration_s),
             ambient_k: c.t0,
             exergy_destroyed_j: match (c.s_gen, c.t0) {
@@ -447,19 +477,24 @@ impl<R: Real> Integrals<R> {
     /// Only the figures the alarm rules read: the per-sample path, which
     /// skips everything [`Integrals::metrics`] adds for reports.
     pub fn alarm_figures(&self, settings: &FigureSettings) -> AlarmFigures<R> {
-        let c = self.second_law(settings);
-        let u = &settings.uncertainty;
-        let u_s = c.u_s_gen(u);
+        self.alarm_figures_with(&Prepared::new(settings))
+    }
+
+    /// [`Integrals::alarm_figures`] with the settings already in `R`. No
+    /// square roots: the rules compare squares of the uncertainties.
+    fn alarm_figures_with(&self, p: &Prepared<R>) -> AlarmFigures<R> {
+        let c = self.second_law(p);
+        let dur2 = self.duration_s * self.duration_s;
         AlarmFigures {
             heat_in_j: self.heat_in_j,
             carnot_margin: c.margin(),
-            u_carnot_margin: c.u_margin(u),
+            var_carnot_margin: c.var_margin(&p.u),
             second_law_efficiency: c.second_law_efficiency(),
             entropy_rate_w_per_k: c.s_gen.and_then(|s| ratio(s, self.duration_s)),
-            u_entropy_rate_w_per_k: u_s.and_then(|s| ratio(s, self.duration_s)),
+            var_entropy_rate_w_per_k: c.var_s_gen(&p.u).and_then(|v| ratio(v, dur2)),
             entropy_in_rate_w_per_k: ratio(self.entropy_in_j_per_k, self.duration_s),
             balance_residual_j: c.loss,
-            u_balance_residual_j: c.u_loss,
+            var_balance_residual_j: c.var_loss,
         }
     }
 
@@ -468,9 +503,9 @@ impl<R: Real> Integrals<R> {
     // Inlined so that the shared struct dissolves into registers on the
     // per-sample path.
     #[inline(always)]
-    fn second_law(&self, settings: &FigureSettings) -> SecondLaw<R> {
-        let u = &settings.uncertainty;
-        let mode = settings.mode;
+    fn second_law(&self, p: &Prepared<R>) -> SecondLaw<R> {
+        let u = &p.u;
+        let mode = p.mode;
         let measured = self.heat_out_measured;
         let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
         let (si, so) = (self.entropy_in_j_per_k, self.entropy_out_j_per_k);
@@ -560,19 +595,16 @@ impl<R: Real> Integrals<R> {
         // T0: the configured ambient, else the cold-side mean. With heat out
         // measured that is the time mean of T_cold: a heat-weighted mean
         // would be undefined once the coolant stops carrying heat away.
-        let t0 = match settings.ambient_k {
-            Some(t) => Some(R::from_f64(t)),
+        let t0 = match p.ambient {
+            Some(t) => Some(t),
             None if measured => ratio(self.cold_temperature_integral_k_s, self.duration_s),
             None => tc,
         };
         let sign = if mode.is_reverse() { -R::ONE } else { R::ONE };
-        let (loss, u_loss, s_gen, d_s) = if measured {
+        let (loss, var_loss, s_gen, d_s) = if measured {
             let loss = qi - w - qo;
             let t = |x: R| x * x;
-            let u_loss = fin((t(qi * R::from_f64(u.heat_in_rel))
-                + t(w * R::from_f64(u.work_rel))
-                + t(qo * R::from_f64(u.heat_out_rel)))
-            .sqrt());
+            let var_loss = fin(t(qi * u[2]) + t(w * u[3]) + t(qo * u[4]));
             let (s_gen, d_s) = match t0 {
                 Some(t0) if t0 > zero => {
                     let mut d = Partials {
@@ -582,7 +614,7 @@ impl<R: Real> Integrals<R> {
                         work: -w / t0,
                         heat_out: so - qo / t0,
                     };
-                    if settings.ambient_k.is_none() {
+                    if p.ambient.is_none() {
                         // The default T0 is the time mean of T_cold, which a
                         // cold-side offset moves one for one: so does Q_loss/T0.
                         d.cold = d.cold - loss / (t0 * t0);
@@ -591,7 +623,7 @@ impl<R: Real> Integrals<R> {
                 }
                 _ => (None, None),
             };
-            (fin(loss * sign), u_loss, s_gen, d_s)
+            (fin(loss * sign), var_loss, s_gen, d_s)
         } else {
             let d = Partials {
                 hot: si2,
@@ -611,7 +643,7 @@ impl<R: Real> Integrals<R> {
             d_bound,
             t0,
             loss,
-            u_loss,
+            var_loss,
             s_gen: s_gen.map(|s| s * sign),
             d_s,
         }
@@ -632,7 +664,8 @@ struct SecondLaw<R> {
     t0: Option<R>,
     /// Balance residual in the mode's convention (heat out measured only).
     loss: Option<R>,
-    u_loss: Option<R>,
+    /// u²(loss).
+    var_loss: Option<R>,
     s_gen: Option<R>,
     /// Partials of the engine-convention S_gen; the sign does not matter for u.
     d_s: Option<Partials<R>>,
@@ -653,15 +686,15 @@ impl<R: Real> SecondLaw<R> {
         }
     }
 
-    fn u_margin(&self, u: &Uncertainty) -> Option<R> {
+    fn var_margin(&self, u: &[R; 5]) -> Option<R> {
         match (self.d_perf, self.d_bound) {
-            (Some(dp), Some(db)) => db.sub(dp).combine(u),
+            (Some(dp), Some(db)) => db.sub(dp).variance(u),
             _ => None,
         }
     }
 
-    fn u_s_gen(&self, u: &Uncertainty) -> Option<R> {
-        self.d_s.and_then(|d| d.combine(u))
+    fn var_s_gen(&self, u: &[R; 5]) -> Option<R> {
+        self.d_s.and_then(|d| d.variance(u))
     }
 }
 
@@ -672,34 +705,35 @@ pub struct AlarmFigures<R> {
     pub heat_in_j: R,
     /// `η_C − η` (or `COP_C − COP`).
     pub carnot_margin: Option<R>,
-    /// u(margin).
-    pub u_carnot_margin: Option<R>,
+    /// u²(margin): the rules compare squares, which needs no square root.
+    pub var_carnot_margin: Option<R>,
     /// `η/η_C` (or `COP/COP_C`).
     pub second_law_efficiency: Option<R>,
     /// σ̇, W/K.
     pub entropy_rate_w_per_k: Option<R>,
-    /// u(σ̇), W/K.
-    pub u_entropy_rate_w_per_k: Option<R>,
+    /// u²(σ̇), (W/K)².
+    pub var_entropy_rate_w_per_k: Option<R>,
     /// Entropy inflow rate, W/K.
     pub entropy_in_rate_w_per_k: Option<R>,
     /// Balance residual, joules (heat out measured only).
     pub balance_residual_j: Option<R>,
-    /// u(balance residual), joules.
-    pub u_balance_residual_j: Option<R>,
+    /// u²(balance residual), J².
+    pub var_balance_residual_j: Option<R>,
 }
 
-impl<R: Copy> From<&Metrics<R>> for AlarmFigures<R> {
+impl<R: Real> From<&Metrics<R>> for AlarmFigures<R> {
     fn from(m: &Metrics<R>) -> Self {
+        let sq = |u: Option<R>| u.map(|u| u * u);
         Self {
             heat_in_j: m.heat_in_j,
             carnot_margin: m.carnot_margin,
-            u_carnot_margin: m.u_carnot_margin,
+            var_carnot_margin: sq(m.u_carnot_margin),
             second_law_efficiency: m.second_law_efficiency,
             entropy_rate_w_per_k: m.entropy_rate_w_per_k,
-            u_entropy_rate_w_per_k: m.u_entropy_rate_w_per_k,
+            var_entropy_rate_w_per_k: sq(m.u_entropy_rate_w_per_k),
             entropy_in_rate_w_per_k: m.entropy_in_rate_w_per_k,
             balance_residual_j: m.balance_residual_j,
-            u_balance_residual_j: m.u_balance_residual_j,
+            var_balance_residual_j: sq(m.u_balance_residual_j),
         }
     }
 }
@@ -772,7 +806,7 @@ fn integrals_of<R: Real>(v: &Terms<R>, duration_ms: u64, measured: bool) -> Inte
         )
     };
     Integrals {
-        duration_s: R::from_f64(duration_ms as f64 * 1e-3),
+        duration_s: R::from_ms(duration_ms),
         heat_in_j: v[QI],
         work_j: v[W],
         heat_out_j,
@@ -825,6 +859,23 @@ impl<R: Real> Span<R> {
             *hi = greater(*hi, *x);
         }
     }
+
+    /// Includes one sample; returns whether it widened the span.
+    #[inline]
+    fn include(&mut self, v: &[R; STEADY_CHANNELS]) -> bool {
+        let mut widened = false;
+        for ((lo, hi), x) in self.min.iter_mut().zip(self.max.iter_mut()).zip(v) {
+            if *x < *lo {
+                *lo = *x;
+                widened = true;
+            }
+            if *x > *hi {
+                *hi = *x;
+                widened = true;
+            }
+        }
+        widened
+    }
 }
 
 /// Steady-state test over time buckets: amortised O(1) per sample.
@@ -847,6 +898,9 @@ struct SteadyTracker<R> {
     band_abs: [R; STEADY_CHANNELS],
     band_rel: [R; STEADY_CHANNELS],
     started: bool,
+    /// The last verdict: a sample inside the spans seen so far cannot change
+    /// it, which spares the band test on most samples.
+    steady: bool,
 }
 
 impl<R: Real> SteadyTracker<R> {
@@ -872,6 +926,7 @@ impl<R: Real> SteadyTracker<R> {
             ]
             .map(R::from_f64),
             started: false,
+            steady: false,
         }
     }
 
@@ -883,6 +938,7 @@ impl<R: Real> SteadyTracker<R> {
         self.done_merged = Span::empty();
         self.completed = 0;
         self.next = 0;
+        self.steady = false;
     }
 
     /// Adds a sample at `t_ms`; returns whether every channel has stayed in
@@ -892,6 +948,7 @@ impl<R: Real> SteadyTracker<R> {
             self.restart(t_ms);
         }
         let mut elapsed = t_ms.wrapping_sub(self.bucket_start_ms);
+        let mut rotated = false;
         if elapsed >= self.bucket_ms {
             // Close the current bucket, and any empty ones after it.
             let mut closed = 0;
@@ -914,10 +971,14 @@ impl<R: Real> SteadyTracker<R> {
                 merged.merge(&b.min, &b.max);
             }
             self.done_merged = merged;
+            rotated = true;
         }
-        self.current.merge(v, v);
+        let widened = self.current.include(v);
         if self.completed < BUCKETS {
             return false;
+        }
+        if !rotated && !widened {
+            return self.steady;
         }
         let mut all = self.done_merged;
         all.merge(&self.current.min, &self.current.max);
@@ -927,6 +988,7 @@ impl<R: Real> SteadyTracker<R> {
             let scale = greater(hi.abs(), lo.abs());
             steady &= hi - lo <= self.band_abs[i] + self.band_rel[i] * scale;
         }
+        self.steady = steady;
         steady
     }
 }
@@ -1001,6 +1063,7 @@ impl core::error::Error for MonitorError {}
 #[derive(Clone, Debug)]
 pub struct Monitor<const N: usize, R: Real = f32> {
     settings: FigureSettings,
+    prepared: Prepared<R>,
     window_len: usize,
     max_gap_ms: u32,
     stale_ms: u32,
@@ -1061,6 +1124,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         let to_ms = |s: f64| (s * 1000.0).clamp(0.0, u32::MAX as f64 / 2.0) as u32;
         Ok(Self {
             settings: FigureSettings::new(config),
+            prepared: Prepared::new(&FigureSettings::new(config)),
             window_len,
             max_gap_ms: to_ms(config.max_gap_s),
             stale_ms: to_ms(config.health.stale_s),
@@ -1166,7 +1230,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         let slice = match &self.prev {
             Some((t_prev, p)) if s.t_ms.wrapping_sub(*t_prev) <= self.max_gap_ms => {
                 let dt_ms = s.t_ms.wrapping_sub(*t_prev);
-                let dt = R::from_f64(f64::from(dt_ms) * 1e-3);
+                let dt = R::from_ms(u64::from(dt_ms));
                 Some((trapezoid(p, &point, dt), dt_ms))
             }
             _ => None,
@@ -1268,7 +1332,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// What the alarm rules need now.
     pub fn alarm_inputs(&self) -> AlarmInputs<R> {
         AlarmInputs {
-            figures: self.window_integrals().alarm_figures(&self.settings),
+            figures: self.window_integrals().alarm_figures_with(&self.prepared),
             t_hot_k: self.last_t_hot_k,
             faults: self.faults,
         }

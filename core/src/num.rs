@@ -40,6 +40,13 @@ pub trait Real:
     fn from_f64(x: f64) -> Self;
     /// Converts from `f32` (exact).
     fn from_f32(x: f32) -> Self;
+    /// The one of two precomputed copies of a setting that suits this type:
+    /// `single` for `f32`, `double` for `f64`. Settings are kept in both so
+    /// the per-sample path never converts an `f64` (a software routine on a
+    /// Cortex-M4F).
+    fn pick(single: f32, double: f64) -> Self;
+    /// Milliseconds to seconds.
+    fn from_ms(ms: u64) -> Self;
     /// Converts to `f64` (exact).
     fn to_f64(self) -> f64;
     /// Converts to `f32` (rounding for `f64`).
@@ -64,6 +71,18 @@ impl Real for f32 {
     #[inline]
     fn from_f32(x: f32) -> Self {
         x
+    }
+    #[inline]
+    fn pick(single: f32, _double: f64) -> Self {
+        single
+    }
+    #[inline]
+    fn from_ms(ms: u64) -> Self {
+        // u32 to f32 is one instruction on an FPU; u64 is a library call.
+        match u32::try_from(ms) {
+            Ok(ms) => ms as f32 * 1e-3,
+            Err(_) => (ms as f64 * 1e-3) as f32,
+        }
     }
     #[inline]
     fn to_f64(self) -> f64 {
@@ -99,6 +118,14 @@ impl Real for f64 {
     #[inline]
     fn from_f32(x: f32) -> Self {
         x as f64
+    }
+    #[inline]
+    fn pick(_single: f32, double: f64) -> Self {
+        double
+    }
+    #[inline]
+    fn from_ms(ms: u64) -> Self {
+        ms as f64 * 1e-3
     }
     #[inline]
     fn to_f64(self) -> f64 {
@@ -190,7 +217,12 @@ impl<R: Real, const K: usize> CompensatedSums<R, K> {
     /// Subtracts `x[i]` from sum `i`.
     #[inline]
     pub fn sub(&mut self, x: &[R; K]) {
-        self.add(&x.map(|v| -v));
+        for ((s, c), &x) in self.sum.iter_mut().zip(self.compensation.iter_mut()).zip(x) {
+            let y = -x - *c;
+            let t = *s + y;
+            *c = (t - *s) - y;
+            *s = t;
+        }
     }
 
     /// The compensated sums.

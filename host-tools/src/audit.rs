@@ -652,8 +652,8 @@ impl<'c> Auditor<'c> {
         let figures = AlarmFigures {
             // The host cannot recompute uncertainties (the sensitivity
             // integrals do not travel): use the device's.
-            u_carnot_margin: s.u_margin,
-            u_entropy_rate_w_per_k: s.u_entropy_rate_w_per_k,
+            var_carnot_margin: s.u_margin.map(|u| u * u),
+            var_entropy_rate_w_per_k: s.u_entropy_rate_w_per_k.map(|u| u * u),
             ..AlarmFigures::from(m)
         };
         let inputs = AlarmInputs {
