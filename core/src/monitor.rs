@@ -131,6 +131,11 @@ impl core::fmt::Display for Channel {
     }
 }
 
+/// The largest power magnitude a sample may carry, watts: a terawatt, far
+/// beyond any bench rig, so a reading past it is a converter or scaling
+/// fault. It also keeps every `f32` sum of a run (weeks at 10 Hz) finite.
+pub const MAX_POWER_W: f32 = 1.0e12;
+
 /// Why a sample was not integrated.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -138,7 +143,8 @@ impl core::fmt::Display for Channel {
 pub enum Invalid {
     /// A reading is NaN or infinite.
     NonFinite(Channel),
-    /// A temperature is outside the configured plausible range.
+    /// A temperature is outside the configured plausible range, or a power
+    /// beyond ±[`MAX_POWER_W`].
     OutOfRange(Channel),
     /// Heat out is measured in this run, but the sample has none.
     MissingHeatOut,
@@ -150,7 +156,10 @@ impl core::fmt::Display for Invalid {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         match self {
             Invalid::NonFinite(c) => write!(f, "{c} is not a finite number"),
-            Invalid::OutOfRange(c) => write!(f, "{c} is outside the plausible temperature range"),
+            Invalid::OutOfRange(c @ (Channel::Hot | Channel::Cold)) => {
+                write!(f, "{c} is outside the plausible temperature range")
+            }
+            Invalid::OutOfRange(c) => write!(f, "{c} is beyond ±{MAX_POWER_W:e} W"),
             Invalid::MissingHeatOut => {
                 f.write_str("heat_out_w is missing in a run that measures it")
             }
@@ -782,13 +791,11 @@ fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
 }
 
 /// The trapezoid between integrands `a` and `b`, `dt` seconds apart.
-fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt: R) -> Terms<R> {
+fn trapezoid<R: Real>(out: &mut Terms<R>, a: &Terms<R>, b: &Terms<R>, dt: R) {
     let h = dt * R::from_f64(0.5);
-    let mut out = [R::ZERO; TERMS];
     for ((o, x), y) in out.iter_mut().zip(a).zip(b) {
         *o = h * (*x + *y);
     }
-    out
 }
 
 /// The integrals from summed terms over `duration_ms`.
@@ -1071,8 +1078,10 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     t_max_k: R,
     /// Whether this run measures heat out; fixed by the first valid sample.
     measured: Option<bool>,
-    /// Time and integrands of the previous valid sample.
-    prev: Option<(u32, Terms<R>)>,
+    /// Time of the previous valid sample.
+    prev_ms: Option<u32>,
+    /// Integrands of the previous valid sample.
+    prev_point: Terms<R>,
     /// `ring[i]` and `ring_ms[i]` are the trapezoid that ends at the i-th
     /// sample of the window and its length
     /// (zero for a sample that starts integration).
@@ -1131,7 +1140,8 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             t_min_k: R::from_f64(config.health.min_temperature_k),
             t_max_k: R::from_f64(config.health.max_temperature_k),
             measured: None,
-            prev: None,
+            prev_ms: None,
+            prev_point: [R::ZERO; TERMS],
             ring: [[R::ZERO; TERMS]; N],
             ring_ms: [0; N],
             head: 0,
@@ -1176,12 +1186,21 @@ impl<const N: usize, R: Real> Monitor<N, R> {
                 return Err(Invalid::OutOfRange(c));
             }
         }
+        let max_power = R::from_f32(MAX_POWER_W);
+        for (v, c) in [(s.heat_in_w, Channel::HeatIn), (s.work_w, Channel::Work)] {
+            if v.abs() > max_power {
+                return Err(Invalid::OutOfRange(c));
+            }
+        }
         match (self.measured, s.heat_out_w) {
             (_, Some(q)) if !q.is_finite() => return Err(Invalid::NonFinite(Channel::HeatOut)),
+            (_, Some(q)) if q.abs() > max_power => {
+                return Err(Invalid::OutOfRange(Channel::HeatOut));
+            }
             (Some(true), None) => return Err(Invalid::MissingHeatOut),
             _ => {}
         }
-        if self.prev.is_some_and(|(t, _)| t == s.t_ms) {
+        if self.prev_ms == Some(s.t_ms) {
             return Err(Invalid::RepeatedTime);
         }
         Ok(())
@@ -1227,20 +1246,17 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         self.faults.stuck = self.stuck.update(&values, present);
         self.update_fault_since(s.t_ms, since_last);
 
-        let slice = match &self.prev {
-            Some((t_prev, p)) if s.t_ms.wrapping_sub(*t_prev) <= self.max_gap_ms => {
-                let dt_ms = s.t_ms.wrapping_sub(*t_prev);
-                let dt = R::from_ms(u64::from(dt_ms));
-                Some((trapezoid(p, &point, dt), dt_ms))
+        // The spacing to the previous valid sample, if it is bridged.
+        let dt_ms = match self.prev_ms {
+            Some(t_prev) if s.t_ms.wrapping_sub(t_prev) <= self.max_gap_ms => {
+                Some(s.t_ms.wrapping_sub(t_prev))
             }
             _ => None,
         };
-        self.prev = Some((s.t_ms, point));
         self.valid += 1;
 
         // Slide the window: the new sample's trapezoid enters; when full, the
         // oldest sample leaves and with it the trapezoid to its successor.
-        let (entry, entry_ms) = slice.unwrap_or(([R::ZERO; TERMS], 0));
         if self.filled == self.window_len {
             self.head = if self.head + 1 == self.window_len {
                 0
@@ -1259,29 +1275,35 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         if newest >= self.window_len {
             newest -= self.window_len;
         }
+        let entry_ms = dt_ms.unwrap_or(0);
         if let (Some(slot), Some(ms)) = (self.ring.get_mut(newest), self.ring_ms.get_mut(newest)) {
-            *slot = entry;
-            *ms = entry_ms;
-        }
-        // The oldest sample's own trapezoid reaches outside the window.
-        if self.filled > 1 {
-            self.window.add(&entry);
-            self.window_ms += u64::from(entry_ms);
-        }
-
-        let outcome = match slice {
-            Some((slice, _)) => {
-                self.totals.add(&slice);
-                self.totals_ms += u64::from(entry_ms);
-                Pushed::Integrated
-            }
-            None => {
-                if self.valid > 1 {
-                    self.restarts += 1;
+            // The trapezoid is built in its ring slot and summed from there.
+            match dt_ms {
+                Some(dt_ms) => {
+                    trapezoid(slot, &self.prev_point, &point, R::from_ms(u64::from(dt_ms)));
+                    self.totals.add(slot);
+                    self.totals_ms += u64::from(dt_ms);
                 }
-                self.steady.restart(s.t_ms);
-                Pushed::Started
+                None => *slot = [R::ZERO; TERMS],
             }
+            *ms = entry_ms;
+            // The oldest sample's own trapezoid reaches outside the window.
+            if self.filled > 1 {
+                self.window.add(slot);
+                self.window_ms += u64::from(entry_ms);
+            }
+        }
+        self.prev_ms = Some(s.t_ms);
+        self.prev_point = point;
+
+        let outcome = if dt_ms.is_some() {
+            Pushed::Integrated
+        } else {
+            if self.valid > 1 {
+                self.restarts += 1;
+            }
+            self.steady.restart(s.t_ms);
+            Pushed::Started
         };
         self.is_steady = self.steady.push(s.t_ms, &values);
         if self.is_steady {
