@@ -387,8 +387,14 @@ impl<R: Real> Partials<R> {
 
     /// `√(Σ (∂f/∂x_i · u_i)²)`: the combined standard uncertainty.
     fn combine(self, u: &[R; 5]) -> Option<R> {
-        self.variance(u).and_then(|v| fin(v.sqrt()))
+        std_uncertainty(self.variance(u))
     }
+}
+
+/// The standard uncertainty from a variance, if finite.
+#[inline]
+fn std_uncertainty<R: Real>(var: Option<R>) -> Option<R> {
+    var.and_then(|v| fin(v.sqrt()))
 }
 
 /// [`FigureSettings`] in `R`, converted once rather than on every sample.
@@ -436,6 +442,7 @@ impl<R: Real> Integrals<R> {
         let p = Prepared::new(settings);
         let c = self.second_law(&p);
         let u = &p.u;
+        let u_s_gen = std_uncertainty(c.var_s_gen(u));
         let mut m = Metrics {
             duration_s: self.duration_s,
             heat_in_j: self.heat_in_j,
@@ -445,16 +452,13 @@ impl<R: Real> Integrals<R> {
             cold_mean_k: c.tc,
             carnot_margin: c.margin(),
             second_law_efficiency: c.second_law_efficiency(),
-            u_carnot_margin: c.var_margin(u).and_then(|v| fin(v.sqrt())),
+            u_carnot_margin: std_uncertainty(c.var_margin(u)),
             balance_residual_j: c.loss,
-            u_balance_residual_j: c.var_loss.and_then(|v| fin(v.sqrt())),
+            u_balance_residual_j: std_uncertainty(c.var_loss),
             entropy_generated_j_per_k: c.s_gen,
-            u_entropy_generated_j_per_k: c.var_s_gen(u).and_then(|v| fin(v.sqrt())),
+            u_entropy_generated_j_per_k: u_s_gen,
             entropy_rate_w_per_k: c.s_gen.and_then(|s| ratio(s, self.duration_s)),
-            u_entropy_rate_w_per_k: c
-                .var_s_gen(u)
-                .and_then(|v| fin(v.sqrt()))
-                .and_then(|s| ratio(s, self.duration_s)),
+            u_entropy_rate_w_per_k: u_s_gen.and_then(|s| ratio(s, self.duration_s)),
             entropy_in_rate_w_per_k: ratio(self.entropy_in_j_per_k, self.duration_s),
             ambient_k: c.t0,
             exergy_destroyed_j: match (c.s_gen, c.t0) {
@@ -1131,9 +1135,10 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             });
         }
         let to_ms = |s: f64| (s * 1000.0).clamp(0.0, u32::MAX as f64 / 2.0) as u32;
+        let settings = FigureSettings::new(config);
         Ok(Self {
-            settings: FigureSettings::new(config),
-            prepared: Prepared::new(&FigureSettings::new(config)),
+            settings,
+            prepared: Prepared::new(&settings),
             window_len,
             max_gap_ms: to_ms(config.max_gap_s),
             stale_ms: to_ms(config.health.stale_s),
