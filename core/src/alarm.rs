@@ -245,8 +245,135 @@ pub struct Event {
     pub severity: Severity,
 }
 
-/// The events of one update or acknowledge: at most two per rule.
-pub type Events = heapless::Vec<Event, { RuleId::COUNT * 2 }>;
+/// The events of one update or acknowledge, in rule order: at most two per
+/// rule, all at the same sample time.
+///
+/// Packed into 20 bytes, because it is returned by value on every sample: a
+/// vector of [`Event`]s would be copied whole, 100 bytes, each time.
+///
+/// ```
+/// use heatbound::alarm::{AlarmSet, EventKind, RuleId};
+/// use heatbound::config::RigConfig;
+/// let mut alarms = AlarmSet::new(&RigConfig::default());
+/// let events = alarms.acknowledge(RuleId::BeyondCarnot, 1000);
+/// assert!(events.is_empty()); // nothing was active
+/// for e in &events {
+///     assert_eq!(e.kind, EventKind::Acknowledged);
+/// }
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Events {
+    t_ms: u32,
+    len: u8,
+    /// `(rule · 3 + kind) · 3 + severity`, by their declaration order.
+    packed: [u8; Events::CAPACITY],
+}
+
+const KINDS: [EventKind; 3] = [
+    EventKind::Raised,
+    EventKind::Cleared,
+    EventKind::Acknowledged,
+];
+const SEVERITIES: [Severity; 3] = [Severity::Advisory, Severity::Warning, Severity::Trip];
+
+impl Events {
+    /// Two per rule: an acknowledge that also clears.
+    pub const CAPACITY: usize = RuleId::COUNT * 2;
+
+    /// No events, at `t_ms`.
+    const fn at(t_ms: u32) -> Self {
+        Self {
+            t_ms,
+            len: 0,
+            packed: [0; Events::CAPACITY],
+        }
+    }
+
+    /// Appends an event at this set's time; beyond the capacity, which the
+    /// callers cannot reach, it is dropped.
+    fn push(&mut self, rule: RuleId, kind: EventKind, severity: Severity) {
+        let code = (rule.index() * 3 + kind as usize) * 3 + severity as usize;
+        if let Some(slot) = self.packed.get_mut(usize::from(self.len)) {
+            *slot = code as u8;
+            self.len += 1;
+        }
+    }
+
+    /// How many events.
+    pub const fn len(&self) -> usize {
+        self.len as usize
+    }
+
+    /// Whether there are none.
+    pub const fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    /// The `i`-th event.
+    pub fn get(&self, i: usize) -> Option<Event> {
+        let code = usize::from(*self.packed.get(..self.len())?.get(i)?);
+        Some(Event {
+            t_ms: self.t_ms,
+            rule: *RuleId::ALL.get(code / 9)?,
+            kind: *KINDS.get(code / 3 % 3)?,
+            severity: *SEVERITIES.get(code % 3)?,
+        })
+    }
+
+    /// The first event.
+    pub fn first(&self) -> Option<Event> {
+        self.get(0)
+    }
+
+    /// The events in order.
+    pub fn iter(&self) -> EventsIter {
+        EventsIter {
+            events: *self,
+            next: 0,
+        }
+    }
+}
+
+/// The events of an [`Events`], in order.
+#[derive(Clone, Debug)]
+pub struct EventsIter {
+    events: Events,
+    next: usize,
+}
+
+impl Iterator for EventsIter {
+    type Item = Event;
+
+    fn next(&mut self) -> Option<Event> {
+        let e = self.events.get(self.next)?;
+        self.next += 1;
+        Some(e)
+    }
+
+    fn size_hint(&self) -> (usize, Option<usize>) {
+        let left = self.events.len().saturating_sub(self.next);
+        (left, Some(left))
+    }
+}
+
+impl ExactSizeIterator for EventsIter {}
+
+impl IntoIterator for Events {
+    type Item = Event;
+    type IntoIter = EventsIter;
+    fn into_iter(self) -> EventsIter {
+        self.iter()
+    }
+}
+
+impl IntoIterator for &Events {
+    type Item = Event;
+    type IntoIter = EventsIter;
+    fn into_iter(self) -> EventsIter {
+        self.iter()
+    }
+}
 
 /// The state of one rule.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -328,6 +455,44 @@ pub struct AlarmInputs<R: Real> {
     pub faults: Faults,
 }
 
+/// Where the rules read their inputs.
+///
+/// [`AlarmInputs`] holds every figure up front. The monitor's
+/// [`WindowAlarmInputs`](crate::monitor::WindowAlarmInputs) leaves the
+/// uncertainties until a rule asks for them, which it does only within its
+/// deadband of a second-law limit: each such rule tests `a − k·u` with
+/// `k·u ≥ 0`, so a reading that clears with `u = 0` clears whatever `u` is,
+/// and the usual reading, far from the bound, costs no uncertainty work. The
+/// verdicts are the same either way.
+pub trait RuleInputs {
+    /// The type the figures are in.
+    type Real: Real;
+    /// The figures; the `var_*` fields may be `None` here.
+    fn figures(&self) -> AlarmFigures<Self::Real>;
+    /// The figures with their variances.
+    fn figures_with_variances(&self) -> AlarmFigures<Self::Real>;
+    /// Latest valid hot-side temperature, kelvin.
+    fn t_hot_k(&self) -> Option<Self::Real>;
+    /// Channel faults.
+    fn faults(&self) -> Faults;
+}
+
+impl<R: Real> RuleInputs for AlarmInputs<R> {
+    type Real = R;
+    fn figures(&self) -> AlarmFigures<R> {
+        self.figures
+    }
+    fn figures_with_variances(&self) -> AlarmFigures<R> {
+        self.figures
+    }
+    fn t_hot_k(&self) -> Option<R> {
+        self.t_hot_k
+    }
+    fn faults(&self) -> Faults {
+        self.faults
+    }
+}
+
 /// Turns `x` (positive = beyond the limit) into a verdict with `deadband`.
 fn level<R: Real>(x: Option<R>, deadband: R) -> Verdict {
     match x {
@@ -389,7 +554,7 @@ impl Limits {
     /// For each rule, `x` is the distance beyond its limit, in the rule's
     /// deadband unit ([`RuleId::deadband_unit`]): raise when `x > 0`, hold
     /// while `x ≥ −deadband`, clear below.
-    pub fn verdicts<R: Real>(&self, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
+    pub fn verdicts<I: RuleInputs>(&self, inputs: &I) -> [Verdict; RuleId::COUNT] {
         verdicts(self, inputs)
     }
 }
@@ -409,55 +574,61 @@ fn beyond_uncertainty<R: Real>(a: R, k2_var: R, d: R) -> Verdict {
     }
 }
 
-fn verdicts<R: Real>(limits: &Limits, inputs: &AlarmInputs<R>) -> [Verdict; RuleId::COUNT] {
+fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COUNT] {
+    type R<I> = <I as RuleInputs>::Real;
     let single = &limits.single;
-    let k = R::pick(single.coverage_factor, limits.coverage_factor);
+    let k = R::<I>::pick(single.coverage_factor, limits.coverage_factor);
     let k2 = k * k;
     let db = |id: RuleId| {
         let i = id.index();
-        R::pick(single.deadband[i], limits.deadband[i])
+        R::<I>::pick(single.deadband[i], limits.deadband[i])
     };
-    let m = &inputs.figures;
+    let m = inputs.figures();
+    let zero = R::<I>::ZERO;
 
+    // The three second-law rules as (a, d): raise when a − k·u > 0, hold
+    // while a − k·u ≥ −d.
     // η − η_C > k·u(margin), with margin = η_C − η (or COP_C − COP).
-    let beyond = match (m.carnot_margin, m.var_carnot_margin) {
-        (Some(margin), Some(var)) => {
-            beyond_uncertainty(-margin, k2 * var, db(RuleId::BeyondCarnot))
-        }
-        _ => Verdict::Clear,
-    };
+    let beyond = m.carnot_margin.map(|x| (-x, db(RuleId::BeyondCarnot)));
     // σ̇ < −k·u(σ̇); the deadband is a fraction of the entropy inflow rate,
     // so it does not depend on the size of the rig.
-    let negative_entropy = match (
-        m.entropy_rate_w_per_k,
-        m.var_entropy_rate_w_per_k,
-        m.entropy_in_rate_w_per_k,
-    ) {
-        (Some(s), Some(var), Some(inflow)) if inflow > R::ZERO => {
-            beyond_uncertainty(-s, k2 * var, db(RuleId::NegativeEntropyProduction) * inflow)
+    let negative_entropy = match (m.entropy_rate_w_per_k, m.entropy_in_rate_w_per_k) {
+        (Some(s), Some(inflow)) if inflow > zero => {
+            Some((-s, db(RuleId::NegativeEntropyProduction) * inflow))
         }
+        _ => None,
+    };
+    // Q_loss < −k·u(Q_loss); the deadband is a fraction of Q_in.
+    let balance = match m.balance_residual_j {
+        Some(l) if m.heat_in_j > zero => Some((-l, db(RuleId::EnergyBalance) * m.heat_in_j)),
+        _ => None,
+    };
+    // Only a rule with a > 0 or a + d ≥ 0 can do anything but clear.
+    let open =
+        |rule: Option<(R<I>, R<I>)>| matches!(rule, Some((a, d)) if a > zero || a + d >= zero);
+    let variances = (open(beyond) || open(negative_entropy) || open(balance))
+        .then(|| inputs.figures_with_variances());
+    let judge = |rule: Option<(R<I>, R<I>)>, var: Option<R<I>>| match (rule, var) {
+        (Some((a, d)), Some(var)) => beyond_uncertainty(a, k2 * var, d),
         _ => Verdict::Clear,
     };
+    let v = variances.as_ref();
+    let beyond = judge(beyond, v.and_then(|v| v.var_carnot_margin));
+    let negative_entropy = judge(negative_entropy, v.and_then(|v| v.var_entropy_rate_w_per_k));
+    let balance = judge(balance, v.and_then(|v| v.var_balance_residual_j));
     let near = level(
         m.second_law_efficiency
-            .map(|f| f - R::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
+            .map(|f| f - R::<I>::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
         db(RuleId::NearCarnot),
     );
-    // Q_loss < −k·u(Q_loss); the deadband is a fraction of Q_in.
-    let balance = match (m.balance_residual_j, m.var_balance_residual_j) {
-        (Some(l), Some(var)) if m.heat_in_j > R::ZERO => {
-            beyond_uncertainty(-l, k2 * var, db(RuleId::EnergyBalance) * m.heat_in_j)
-        }
-        _ => Verdict::Clear,
-    };
     let over = level(
         inputs
-            .t_hot_k
-            .map(|t| t - R::pick(single.hot_max_k, limits.hot_max_k)),
+            .t_hot_k()
+            .map(|t| t - R::<I>::pick(single.hot_max_k, limits.hot_max_k)),
         db(RuleId::OverTemperature),
     );
 
-    let sensor = match inputs.faults.since_ms {
+    let sensor = match inputs.faults().since_ms {
         Some(since) => Verdict::Raise {
             since_ms: Some(since),
         },
@@ -534,7 +705,7 @@ impl AlarmSet {
     /// assert_eq!(raised, Some(6000));
     /// assert!(alarms.trip_active());
     /// ```
-    pub fn update<R: Real>(&mut self, t_ms: u32, inputs: &AlarmInputs<R>) -> Events {
+    pub fn update<I: RuleInputs>(&mut self, t_ms: u32, inputs: &I) -> Events {
         let verdicts = verdicts(&self.limits, inputs);
         self.apply(t_ms, &verdicts)
     }
@@ -547,7 +718,7 @@ impl AlarmSet {
     /// Advances the rules with verdicts computed elsewhere (for example by
     /// [`Limits::verdicts`] on recomputed figures); returns the events.
     pub fn apply(&mut self, t_ms: u32, verdicts: &[Verdict; RuleId::COUNT]) -> Events {
-        let mut events = Events::new();
+        let mut events = Events::at(t_ms);
         for id in RuleId::ALL {
             let verdict = verdicts[id.index()];
             // The common case, a quiet rule that stays quiet, costs nothing.
@@ -556,19 +727,10 @@ impl AlarmSet {
             }
             if let Some(kind) = self.step(id, t_ms, verdict) {
                 // Capacity is two per rule; one step emits at most one.
-                let _ = events.push(self.event(id, t_ms, kind));
+                events.push(id, kind, self.severity[id.index()]);
             }
         }
         events
-    }
-
-    fn event(&self, rule: RuleId, t_ms: u32, kind: EventKind) -> Event {
-        Event {
-            t_ms,
-            rule,
-            kind,
-            severity: self.severity[rule.index()],
-        }
     }
 
     fn step(&mut self, id: RuleId, t: u32, verdict: Verdict) -> Option<EventKind> {
@@ -641,7 +803,7 @@ impl AlarmSet {
     /// does nothing.
     pub fn acknowledge(&mut self, rule: RuleId, t_ms: u32) -> Events {
         let i = rule.index();
-        let mut events = Events::new();
+        let mut events = Events::at(t_ms);
         let (next, reset) = match self.states[i] {
             AlarmState::Active { acked: false } => (AlarmState::Active { acked: true }, false),
             AlarmState::Clearing {
@@ -658,19 +820,20 @@ impl AlarmSet {
             _ => return events,
         };
         self.states[i] = next;
-        let _ = events.push(self.event(rule, t_ms, EventKind::Acknowledged));
+        let severity = self.severity[i];
+        events.push(rule, EventKind::Acknowledged, severity);
         if reset {
-            let _ = events.push(self.event(rule, t_ms, EventKind::Cleared));
+            events.push(rule, EventKind::Cleared, severity);
         }
         events
     }
 
     /// Acknowledges every active alarm.
     pub fn acknowledge_all(&mut self, t_ms: u32) -> Events {
-        let mut all = Events::new();
+        let mut all = Events::at(t_ms);
         for id in RuleId::ALL {
             for e in self.acknowledge(id, t_ms) {
-                let _ = all.push(e);
+                all.push(e.rule, e.kind, e.severity);
             }
         }
         all
@@ -699,5 +862,50 @@ impl AlarmSet {
         RuleId::ALL
             .iter()
             .any(|id| self.is_active(*id) && self.severity[id.index()] == Severity::Trip)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn events_unpack_what_was_packed() {
+        let mut all = [(RuleId::BeyondCarnot, EventKind::Raised, Severity::Advisory); 54];
+        let mut n = 0;
+        for rule in RuleId::ALL {
+            for kind in KINDS {
+                for severity in SEVERITIES {
+                    all[n] = (rule, kind, severity);
+                    n += 1;
+                }
+            }
+        }
+        for chunk in all.chunks(Events::CAPACITY) {
+            let mut events = Events::at(4321);
+            for &(rule, kind, severity) in chunk {
+                events.push(rule, kind, severity);
+            }
+            assert_eq!(events.len(), chunk.len());
+            assert_eq!(events.iter().len(), chunk.len());
+            for (e, &(rule, kind, severity)) in events.iter().zip(chunk) {
+                assert_eq!(
+                    e,
+                    Event {
+                        t_ms: 4321,
+                        rule,
+                        kind,
+                        severity
+                    }
+                );
+            }
+            assert_eq!(events.get(chunk.len()), None);
+        }
+        // Beyond the capacity, pushes are dropped, never a panic.
+        let mut full = Events::at(0);
+        for _ in 0..Events::CAPACITY + 3 {
+            full.push(RuleId::SensorFault, EventKind::Cleared, Severity::Trip);
+        }
+        assert_eq!(full.len(), Events::CAPACITY);
     }
 }

@@ -43,9 +43,10 @@
 //!
 //! ## Cost and precision
 //! [`Monitor::push`] adds one interval to the window and to the run totals
-//! and subtracts the interval that leaves the window: no rescan. Sums are
-//! compensated ([`CompensatedSums`], [`RunningTotals`]) so a run of weeks at 10 Hz does not
-//! drift. The steady-state test keeps min/max per channel in 8 time buckets
+//! and subtracts the interval that leaves the window: no rescan. The
+//! window's sums are rebuilt from fresh ones every window and the run totals
+//! are folded into `f64` ([`WindowSums`]), so a run of weeks at 10 Hz does
+//! not drift. The steady-state test keeps min/max per channel in 8 time buckets
 //! of `duration_s/8`, amortised O(1). The monitor is generic over the
 //! [`Real`] it computes in: `f32` on a controller, `f64` on the host.
 //!
@@ -56,9 +57,9 @@
 
 use serde::Serialize;
 
-use crate::alarm::AlarmInputs;
+use crate::alarm::{AlarmInputs, RuleInputs};
 use crate::config::{Mode, RigConfig, Uncertainty};
-use crate::num::{Accumulator, CompensatedSums, Real, RunningTotals};
+use crate::num::{Real, WindowSums};
 
 /// One reading of every channel, already converted to SI units.
 ///
@@ -440,7 +441,7 @@ impl<R: Real> Integrals<R> {
     /// ```
     pub fn metrics(&self, settings: &FigureSettings) -> Metrics<R> {
         let p = Prepared::new(settings);
-        let c = self.second_law(&p);
+        let c = self.second_law::<true>(&p);
         let u = &p.u;
         let u_s_gen = std_uncertainty(c.var_s_gen(u));
         let mut m = Metrics {
@@ -490,13 +491,15 @@ impl<R: Real> Integrals<R> {
     /// Only the figures the alarm rules read: the per-sample path, which
     /// skips everything [`Integrals::metrics`] adds for reports.
     pub fn alarm_figures(&self, settings: &FigureSettings) -> AlarmFigures<R> {
-        self.alarm_figures_with(&Prepared::new(settings))
+        self.alarm_figures_with::<true>(&Prepared::new(settings))
     }
 
-    /// [`Integrals::alarm_figures`] with the settings already in `R`. No
-    /// square roots: the rules compare squares of the uncertainties.
-    fn alarm_figures_with(&self, p: &Prepared<R>) -> AlarmFigures<R> {
-        let c = self.second_law(p);
+    /// [`Integrals::alarm_figures`] with the settings already in `R`, and
+    /// the variances only if `VARIANCES` (else `None`). No square roots: the
+    /// rules compare squares of the uncertainties.
+    #[inline]
+    fn alarm_figures_with<const VARIANCES: bool>(&self, p: &Prepared<R>) -> AlarmFigures<R> {
+        let c = self.second_law::<VARIANCES>(p);
         let dur2 = self.duration_s * self.duration_s;
         AlarmFigures {
             heat_in_j: self.heat_in_j,
@@ -512,11 +515,13 @@ impl<R: Real> Integrals<R> {
     }
 
     /// The mean temperatures, the figure of merit and its bound, the entropy
-    /// account and the partial derivatives behind their uncertainties.
+    /// account and, if `PARTIALS`, the partial derivatives behind their
+    /// uncertainties (else those are `None`). The values do not depend on
+    /// `PARTIALS`: they are the same operations either way.
     // Inlined so that the shared struct dissolves into registers on the
-    // per-sample path.
+    // per-sample path, and the partials vanish where they are not asked for.
     #[inline(always)]
-    fn second_law(&self, p: &Prepared<R>) -> SecondLaw<R> {
+    fn second_law<const PARTIALS: bool>(&self, p: &Prepared<R>) -> SecondLaw<R> {
         let u = &p.u;
         let mode = p.mode;
         let measured = self.heat_out_measured;
@@ -530,10 +535,19 @@ impl<R: Real> Integrals<R> {
         let th = ratio(qi, si);
         let tc = ratio(qo, so);
         let d_th = Partials {
-            hot: ratio(qi * si2, si * si).unwrap_or(zero),
+            hot: if PARTIALS {
+                ratio(qi * si2, si * si).unwrap_or(zero)
+            } else {
+                zero
+            },
             ..Partials::default()
         };
-        let d_tc = match ratio(R::ONE, so * so) {
+        let inv_so2 = if PARTIALS {
+            ratio(R::ONE, so * so)
+        } else {
+            None
+        };
+        let d_tc = match inv_so2 {
             Some(inv) if measured => Partials {
                 cold: qo * so2 * inv,
                 ..Partials::default()
@@ -551,15 +565,16 @@ impl<R: Real> Integrals<R> {
         let (perf, d_perf, bound, d_bound) = match mode {
             Mode::Engine => {
                 let eta = ratio(w, qi);
-                let d_eta = eta.map(|e| Partials {
+                let d_eta = eta.filter(|_| PARTIALS).map(|e| Partials {
                     heat_in: -e,
                     work: e,
                     ..Partials::default()
                 });
                 let (carnot, d_carnot) = match (th, tc) {
                     (Some(th), Some(tc)) if above(th, tc) => {
-                        let d = d_tc.scale(-R::ONE / th).sub(d_th.scale(-tc / (th * th)));
-                        (fin(R::ONE - tc / th), Some(d))
+                        let d = PARTIALS
+                            .then(|| d_tc.scale(-R::ONE / th).sub(d_th.scale(-tc / (th * th))));
+                        (fin(R::ONE - tc / th), d)
                     }
                     _ => (None, None),
                 };
@@ -570,7 +585,7 @@ impl<R: Real> Integrals<R> {
                     Mode::HeatPump => ratio(qi, w),
                     _ => ratio(qo, w),
                 };
-                let d_cop = cop.map(|c| match (mode, measured) {
+                let d_cop = cop.filter(|_| PARTIALS).map(|c| match (mode, measured) {
                     (Mode::HeatPump, _) => Partials {
                         heat_in: c,
                         work: -c,
@@ -595,8 +610,9 @@ impl<R: Real> Integrals<R> {
                         let dt = th - tc;
                         let top = if mode == Mode::HeatPump { th } else { tc };
                         // d(T_h/ΔT) = d(T_c/ΔT) = (T_h dT_c − T_c dT_h)/ΔT².
-                        let d = d_tc.scale(th / (dt * dt)).sub(d_th.scale(tc / (dt * dt)));
-                        (fin(top / dt), Some(d))
+                        let d = PARTIALS
+                            .then(|| d_tc.scale(th / (dt * dt)).sub(d_th.scale(tc / (dt * dt))));
+                        (fin(top / dt), d)
                     }
                     _ => (None, None),
                 };
@@ -617,8 +633,13 @@ impl<R: Real> Integrals<R> {
         let (loss, var_loss, s_gen, d_s) = if measured {
             let loss = qi - w - qo;
             let t = |x: R| x * x;
-            let var_loss = fin(t(qi * u[2]) + t(w * u[3]) + t(qo * u[4]));
+            let var_loss = if PARTIALS {
+                fin(t(qi * u[2]) + t(w * u[3]) + t(qo * u[4]))
+            } else {
+                None
+            };
             let (s_gen, d_s) = match t0 {
+                Some(t0) if t0 > zero && !PARTIALS => (fin(so + loss / t0 - si), None),
                 Some(t0) if t0 > zero => {
                     let mut d = Partials {
                         hot: si2,
@@ -645,7 +666,7 @@ impl<R: Real> Integrals<R> {
                 work: -cb,
                 heat_out: zero,
             };
-            (None, None, fin(so - si), Some(d))
+            (None, None, fin(so - si), PARTIALS.then_some(d))
         };
         SecondLaw {
             th,
@@ -708,6 +729,44 @@ impl<R: Real> SecondLaw<R> {
 
     fn var_s_gen(&self, u: &[R; 5]) -> Option<R> {
         self.d_s.and_then(|d| d.variance(u))
+    }
+}
+
+/// The window's alarm inputs, from [`Monitor::alarm_inputs`]: its integrals,
+/// from which the figures follow when the rules ask.
+#[derive(Clone, Copy, Debug)]
+pub struct WindowAlarmInputs<'a, R> {
+    integrals: Integrals<R>,
+    prepared: &'a Prepared<R>,
+    t_hot_k: Option<R>,
+    faults: Faults,
+}
+
+impl<R: Real> WindowAlarmInputs<'_, R> {
+    /// Every figure, uncertainties included, for inspection or logging.
+    pub fn resolve(&self) -> AlarmInputs<R> {
+        AlarmInputs {
+            figures: self.figures_with_variances(),
+            t_hot_k: self.t_hot_k,
+            faults: self.faults,
+        }
+    }
+}
+
+impl<R: Real> RuleInputs for WindowAlarmInputs<'_, R> {
+    type Real = R;
+    #[inline]
+    fn figures(&self) -> AlarmFigures<R> {
+        self.integrals.alarm_figures_with::<false>(self.prepared)
+    }
+    fn figures_with_variances(&self) -> AlarmFigures<R> {
+        self.integrals.alarm_figures_with::<true>(self.prepared)
+    }
+    fn t_hot_k(&self) -> Option<R> {
+        self.t_hot_k
+    }
+    fn faults(&self) -> Faults {
+        self.faults
     }
 }
 
@@ -1093,9 +1152,9 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     ring_ms: [u32; N],
     head: usize,
     filled: usize,
-    window: CompensatedSums<R, TERMS>,
+    /// The window's sums and the run totals of the trapezoids.
+    sums: WindowSums<R, TERMS>,
     window_ms: u64,
-    totals: RunningTotals<R, TERMS>,
     totals_ms: u64,
     steady_ms: u64,
     steady: SteadyTracker<R>,
@@ -1151,8 +1210,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             ring_ms: [0; N],
             head: 0,
             filled: 0,
-            window: CompensatedSums::new(),
-            totals: RunningTotals::new(),
+            sums: WindowSums::new(),
             window_ms: 0,
             totals_ms: 0,
             steady_ms: 0,
@@ -1262,6 +1320,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
         // Slide the window: the new sample's trapezoid enters; when full, the
         // oldest sample leaves and with it the trapezoid to its successor.
+        let mut leaving = [R::ZERO; TERMS];
         if self.filled == self.window_len {
             self.head = if self.head + 1 == self.window_len {
                 0
@@ -1270,7 +1329,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             };
             if let (Some(link), Some(ms)) = (self.ring.get(self.head), self.ring_ms.get(self.head))
             {
-                self.window.sub(link);
+                leaving = *link;
                 self.window_ms -= u64::from(*ms);
             }
         } else {
@@ -1286,15 +1345,16 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             match dt_ms {
                 Some(dt_ms) => {
                     trapezoid(slot, &self.prev_point, &point, R::from_ms(u64::from(dt_ms)));
-                    self.totals.add(slot);
                     self.totals_ms += u64::from(dt_ms);
                 }
                 None => *slot = [R::ZERO; TERMS],
             }
             *ms = entry_ms;
-            // The oldest sample's own trapezoid reaches outside the window.
+            // The oldest sample's own trapezoid reaches outside the window,
+            // which therefore holds `window_len − 1` trapezoids when full.
+            // Every trapezoid enters it, so the run totals are kept there too.
             if self.filled > 1 {
-                self.window.add(slot);
+                self.sums.slide(slot, &leaving, self.window_len as u32 - 1);
                 self.window_ms += u64::from(entry_ms);
             }
         }
@@ -1331,7 +1391,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// The window's raw integrals.
     pub fn window_integrals(&self) -> Integrals<R> {
         integrals_of(
-            &self.window.values(),
+            &self.sums.window(),
             self.window_ms,
             self.measured.unwrap_or(false),
         )
@@ -1340,7 +1400,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// The run's raw integrals.
     pub fn totals_integrals(&self) -> Integrals<R> {
         integrals_of(
-            &self.totals.values(),
+            &self.sums.totals_f64().map(R::from_f64),
             self.totals_ms,
             self.measured.unwrap_or(false),
         )
@@ -1356,10 +1416,15 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         self.totals_integrals().metrics(&self.settings)
     }
 
-    /// What the alarm rules need now.
-    pub fn alarm_inputs(&self) -> AlarmInputs<R> {
-        AlarmInputs {
-            figures: self.window_integrals().alarm_figures_with(&self.prepared),
+    /// What the alarm rules need now, for [`AlarmSet::update`]: the
+    /// uncertainties are worked out only if a rule needs them (see
+    /// [`RuleInputs`]).
+    ///
+    /// [`AlarmSet::update`]: crate::alarm::AlarmSet::update
+    pub fn alarm_inputs(&self) -> WindowAlarmInputs<'_, R> {
+        WindowAlarmInputs {
+            integrals: self.window_integrals(),
+            prepared: &self.prepared,
             t_hot_k: self.last_t_hot_k,
             faults: self.faults,
         }

@@ -4,9 +4,10 @@
 //! ends of the data flow:
 //! - `f32` on the controller: a Cortex-M4F has a single-precision FPU, while
 //!   `f64` there is software-emulated at tens of instructions per operation.
-//!   Sensor readings carry far fewer than 7 significant digits, and the run
-//!   totals use compensated (Kahan) summation folded into `f64` blocks, so `f32` loses nothing a
-//!   bench engineer could see.
+//!   Sensor readings carry far fewer than 7 significant digits, the window
+//!   sums are refreshed every window so their rounding cannot build up, and
+//!   the run totals are folded into `f64` once per window ([`WindowSums`]),
+//!   so `f32` loses nothing a bench engineer could see.
 //! - `f64` on the host, where the offline replay (`heatbound analyze`) should
 //!   agree with an independent double-precision recomputation of the same
 //!   definitions to many more digits.
@@ -149,204 +150,103 @@ impl Real for f64 {
     }
 }
 
-/// Something that keeps `K` running sums side by side: the window and the
-/// run totals of the monitor use different ones.
-pub trait Accumulator<R, const K: usize>: Copy {
-    /// An empty accumulator.
-    fn empty() -> Self;
-    /// Adds `x[i]` to sum `i`.
-    fn add(&mut self, x: &[R; K]);
-    /// Subtracts `x[i]` from sum `i`.
-    fn sub(&mut self, x: &[R; K]);
-    /// The current sums.
-    fn values(&self) -> [R; K];
-}
-
-/// `K` running sums with Kahan compensation.
+/// `K` sliding-window sums and run totals that do not drift, at three
+/// additions per sum and entry.
 ///
-/// The lost low-order bits of every addition are kept in a second word, so
-/// a sliding-window sum that adds and later subtracts the same terms comes
-/// back to the true remainder instead of accumulating rounding. Its
-/// magnitude must stay bounded, as a window's does: for sums that grow
-/// without bound over a long run, use [`RunningTotals`].
+/// The window's sums take each entering term and lose each leaving one,
+/// `window += entering − leaving`, where `entering − leaving` is small and
+/// nearly exact for a steady signal. Beside them, `fresh` sums the entries
+/// since the last refresh; once it holds a whole window, it replaces the
+/// window's sums, so their rounding never outlives two windows. At that
+/// moment `fresh` is also folded into `f64` run totals, which carry 53 bits:
+/// the rounding of one block of entries does not accumulate against a
+/// growing total. On a Cortex-M4F the fold costs one software `f64`
+/// addition per sum per window.
 ///
-/// The sums sit in arrays and the update has no branches, so the compiler
-/// can keep all `K` in vector registers.
+/// `refresh_after` must be the number of entries a full window holds, and
+/// the caller must pass the entry leaving the window (zeros while none
+/// does), so that `fresh` and the window agree at each refresh.
 ///
 /// ```
-/// use heatbound::num::CompensatedSums;
-/// let mut s = CompensatedSums::<f32, 1>::new();
-/// for _ in 0..100_000 {
-///     s.add(&[0.1]);
+/// use heatbound::num::WindowSums;
+/// let mut s = WindowSums::<f32, 1>::new();
+/// let mut ring = [[0.0f32; 1]; 10];
+/// let mut exact = 0.0f64;
+/// for i in 0..10_000_000usize {
+///     let entering = [0.1 + (i % 7) as f32];
+///     let leaving = if i >= 10 { ring[i % 10] } else { [0.0] };
+///     s.slide(&entering, &leaving, 10);
+///     ring[i % 10] = entering;
+///     exact += f64::from(entering[0]);
 /// }
-/// assert!((s.values()[0] - 10_000.0).abs() < 0.01); // a plain f32 sum ends at 9998.56
+/// let window: f64 = ring.iter().map(|e| f64::from(e[0])).sum();
+/// assert!((f64::from(s.window()[0]) - window).abs() / window < 1e-6);
+/// // A plain f32 total would be off by several per cent here.
+/// assert!((s.totals_f64()[0] - exact).abs() / exact < 1e-7);
 /// ```
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct CompensatedSums<R, const K: usize> {
-    sum: [R; K],
-    compensation: [R; K],
-}
-
-impl<R: Real, const K: usize> Default for CompensatedSums<R, K> {
-    fn default() -> Self {
-        Self::new()
-    }
-}
-
-impl<R: Real, const K: usize> CompensatedSums<R, K> {
-    /// Empty sums.
-    pub const fn new() -> Self {
-        Self {
-            sum: [R::ZERO; K],
-            compensation: [R::ZERO; K],
-        }
-    }
-
-    /// Adds `x[i]` to sum `i`.
-    #[inline]
-    pub fn add(&mut self, x: &[R; K]) {
-        // Kahan's update: branch-free, so all K lanes vectorise.
-        for ((s, c), &x) in self.sum.iter_mut().zip(self.compensation.iter_mut()).zip(x) {
-            let y = x - *c;
-            let t = *s + y;
-            *c = (t - *s) - y;
-            *s = t;
-        }
-    }
-
-    /// Subtracts `x[i]` from sum `i`.
-    #[inline]
-    pub fn sub(&mut self, x: &[R; K]) {
-        for ((s, c), &x) in self.sum.iter_mut().zip(self.compensation.iter_mut()).zip(x) {
-            let y = -x - *c;
-            let t = *s + y;
-            *c = (t - *s) - y;
-            *s = t;
-        }
-    }
-
-    /// The compensated sums.
-    #[inline]
-    pub fn values(&self) -> [R; K] {
-        let mut out = self.sum;
-        for (o, c) in out.iter_mut().zip(&self.compensation) {
-            *o = *o - *c;
-        }
-        out
-    }
-
-    /// The sums and their compensations (to be subtracted), each exact in `R`.
-    #[inline]
-    pub fn parts(&self) -> (&[R; K], &[R; K]) {
-        (&self.sum, &self.compensation)
-    }
-}
-
-impl<R: Real, const K: usize> Accumulator<R, K> for CompensatedSums<R, K> {
-    fn empty() -> Self {
-        Self::new()
-    }
-    #[inline]
-    fn add(&mut self, x: &[R; K]) {
-        CompensatedSums::add(self, x)
-    }
-    #[inline]
-    fn sub(&mut self, x: &[R; K]) {
-        CompensatedSums::sub(self, x)
-    }
-    #[inline]
-    fn values(&self) -> [R; K] {
-        CompensatedSums::values(self)
-    }
-}
-
-/// Terms summed in `R` before the block is folded into the `f64` totals.
-const BLOCK: u16 = 32;
-
-/// `K` run totals that do not drift over weeks of samples.
-///
-/// Terms are summed plainly in `R` over blocks of 32, and each block is
-/// folded into `f64` totals, which carry 53 bits: the rounding of one block,
-/// at most 32 units in the last place of a block sum, no longer accumulates
-/// against a growing total. Even in the worst case of identical terms, whose
-/// roundings all lean the same way, the total stays within about 3e-7 of
-/// the exact sum, while a plain `f32` total of 0.1 s steps is off by 9 %
-/// after 10 million samples and even a compensated one by 0.2 %. On a
-/// Cortex-M4F the fold costs one software `f64` addition per sum per 32
-/// samples.
-///
-/// ```
-/// use heatbound::num::RunningTotals;
-/// let mut s = RunningTotals::<f32, 1>::new();
-/// for _ in 0..10_000_000 {
-///     s.add(&[0.1]);
-/// }
-/// // 0.1_f32 is 0.100000001490116…, so the exact sum is 1 000 000.0149.
-/// let exact = 1_000_000.0149;
-/// assert!((s.values_f64()[0] - exact).abs() / exact < 1e-6);
-/// ```
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct RunningTotals<R, const K: usize> {
-    block: [R; K],
-    count: u16,
+pub struct WindowSums<R, const K: usize> {
+    window: [R; K],
+    fresh: [R; K],
+    fresh_count: u32,
     total: [f64; K],
 }
 
-impl<R: Real, const K: usize> Default for RunningTotals<R, K> {
+impl<R: Real, const K: usize> Default for WindowSums<R, K> {
     fn default() -> Self {
         Self::new()
     }
 }
 
-impl<R: Real, const K: usize> RunningTotals<R, K> {
-    /// Empty totals.
+impl<R: Real, const K: usize> WindowSums<R, K> {
+    /// Empty sums.
     pub const fn new() -> Self {
         Self {
-            block: [R::ZERO; K],
-            count: 0,
+            window: [R::ZERO; K],
+            fresh: [R::ZERO; K],
+            fresh_count: 0,
             total: [0.0; K],
         }
     }
 
-    /// Adds `x[i]` to total `i`.
+    /// Adds `entering[i]` to window sum `i` and run total `i`, and removes
+    /// `leaving[i]` from window sum `i`.
     #[inline]
-    pub fn add(&mut self, x: &[R; K]) {
-        for (b, x) in self.block.iter_mut().zip(x) {
-            *b = *b + *x;
+    pub fn slide(&mut self, entering: &[R; K], leaving: &[R; K], refresh_after: u32) {
+        for i in 0..K {
+            self.window[i] = self.window[i] + (entering[i] - leaving[i]);
+            self.fresh[i] = self.fresh[i] + entering[i];
         }
-        self.count += 1;
-        if self.count >= BLOCK {
-            self.total = self.values_f64();
-            self.block = [R::ZERO; K];
-            self.count = 0;
+        self.fresh_count += 1;
+        if self.fresh_count >= refresh_after {
+            self.refresh();
         }
     }
 
-    /// The totals in `f64`.
+    /// `fresh` holds the window: it replaces the window's sums and joins the
+    /// run totals.
+    #[cold]
+    fn refresh(&mut self) {
+        for (t, f) in self.total.iter_mut().zip(&self.fresh) {
+            *t += f.to_f64();
+        }
+        self.window = self.fresh;
+        self.fresh = [R::ZERO; K];
+        self.fresh_count = 0;
+    }
+
+    /// The window's sums.
     #[inline]
-    pub fn values_f64(&self) -> [f64; K] {
+    pub fn window(&self) -> [R; K] {
+        self.window
+    }
+
+    /// The run totals, in `f64`.
+    pub fn totals_f64(&self) -> [f64; K] {
         let mut out = self.total;
-        for (o, b) in out.iter_mut().zip(&self.block) {
-            *o += b.to_f64();
+        for (o, f) in out.iter_mut().zip(&self.fresh) {
+            *o += f.to_f64();
         }
         out
-    }
-}
-
-impl<R: Real, const K: usize> Accumulator<R, K> for RunningTotals<R, K> {
-    fn empty() -> Self {
-        Self::new()
-    }
-    #[inline]
-    fn add(&mut self, x: &[R; K]) {
-        RunningTotals::add(self, x)
-    }
-    #[inline]
-    fn sub(&mut self, x: &[R; K]) {
-        RunningTotals::add(self, &x.map(|v| -v))
-    }
-    #[inline]
-    fn values(&self) -> [R; K] {
-        self.values_f64().map(R::from_f64)
     }
 }

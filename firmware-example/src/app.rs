@@ -548,7 +548,7 @@ where
         for e in events {
             let frame = Frame::Event(EventFrame {
                 seq: self.last_seq.unwrap_or(0),
-                event: *e,
+                event: e,
             });
             self.send(&frame);
         }

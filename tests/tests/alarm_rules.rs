@@ -12,7 +12,7 @@ mod common;
 
 use common::{SplitMix, config, sample};
 use heatbound::alarm::{
-    AlarmInputs, AlarmSet, AlarmState, Event, EventKind, Limits, RuleId, Severity, Verdict,
+    AlarmInputs, AlarmSet, AlarmState, Event, EventKind, Events, Limits, RuleId, Severity, Verdict,
 };
 use heatbound::config::{AlarmsFile, RigConfig, RigFile, RuleFile};
 use heatbound::monitor::{AlarmFigures, Faults, Metrics, Monitor, Sample};
@@ -26,7 +26,7 @@ fn only(rule: RuleId, v: Verdict) -> [Verdict; RuleId::COUNT] {
     all
 }
 
-fn kinds(events: &[Event]) -> Vec<(u32, RuleId, EventKind)> {
+fn kinds(events: &Events) -> Vec<(u32, RuleId, EventKind)> {
     events.iter().map(|e| (e.t_ms, e.rule, e.kind)).collect()
 }
 
@@ -67,7 +67,7 @@ fn on_delay_needs_the_condition_without_a_break() {
     assert_eq!(a.state(rule), AlarmState::Pending { since_ms: 6000 });
     let e = a.apply(11_000, &only(rule, RAISE));
     assert_eq!(kinds(&e), [(11_000, rule, EventKind::Raised)]);
-    assert_eq!(e[0].severity, Severity::Advisory);
+    assert_eq!(e.first().map(|e| e.severity), Some(Severity::Advisory));
     assert_eq!(a.state(rule), AlarmState::Active { acked: false });
 }
 

@@ -3,6 +3,9 @@
 //! Sources:
 //! - DESIGN.md §4: `S_gen ≥ 0 ⇔ η ≤ η_C` when heat out is inferred, and no
 //!   figure is ever NaN or inf (`None` instead);
+//! - the alarm rules' definitions (DESIGN.md §4): the live inputs, which
+//!   work out uncertainties only when a rule is within its deadband, give
+//!   the same verdicts as every figure computed up front;
 //! - hand derivation in this file: with heat out inferred and the
 //!   heat-weighted means, S_gen = Q_out/T_c − Q_in/T_h = (Q_in/T_c)(η_C − η)
 //!   exactly, so the sign of S_gen is the sign of the Carnot margin.
@@ -118,7 +121,12 @@ fn fuzz<R: Real>(
             heat_out_w: qo.map(R::from_f32),
         };
         monitor.push(&s);
-        let _ = alarms.update(t, &monitor.alarm_inputs());
+        let inputs = monitor.alarm_inputs();
+        prop_assert_eq!(
+            alarms.limits().verdicts(&inputs),
+            alarms.limits().verdicts(&inputs.resolve())
+        );
+        let _ = alarms.update(t, &inputs);
         if i % 7 == 3 {
             let _ = alarms.acknowledge_all(t);
         }
@@ -181,5 +189,53 @@ proptest! {
         } else {
             prop_assert!(s <= tol, "η {eta} > η_C {carnot} but S_gen {s}");
         }
+    }
+}
+
+/// Verdicts on the live inputs and on every figure computed up front, for a
+/// steady engine whose efficiency sits `offset` from its Carnot bound (and,
+/// with heat out measured, whose balance closes to within `residual` of Q_in).
+fn lazy_matches_eager(
+    th: f64,
+    tc: f64,
+    qi: f64,
+    offset: f64,
+    residual: Option<f64>,
+    ambient: bool,
+) -> Result<(), TestCaseError> {
+    let cfg = config(RigFile {
+        window_samples: Some(8),
+        ambient_k: ambient.then_some(293.15),
+        ..Default::default()
+    });
+    let mut monitor: Monitor<8> = Monitor::new(&cfg).unwrap();
+    let alarms = AlarmSet::new(&cfg);
+    let eta = (1.0 - tc / th + offset).clamp(0.0, 1.0);
+    let w = qi * eta;
+    for i in 0..20u32 {
+        let heat_out_w = residual.map(|r| qi - w - r * qi);
+        monitor.push(&sample::<f32>(i * 100, th, tc, qi, w, heat_out_w));
+        let inputs = monitor.alarm_inputs();
+        prop_assert_eq!(
+            alarms.limits().verdicts(&inputs),
+            alarms.limits().verdicts(&inputs.resolve())
+        );
+    }
+    Ok(())
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 2048, ..ProptestConfig::default() })]
+
+    #[test]
+    fn live_inputs_give_the_verdicts_of_full_figures_near_the_bounds(
+        th in 400.0f64..900.0,
+        tc in 280.0f64..350.0,
+        qi in 10.0f64..5000.0,
+        offset in -0.05f64..0.05,
+        residual in proptest::option::of(-0.05f64..0.05),
+        ambient in any::<bool>(),
+    ) {
+        lazy_matches_eager(th, tc, qi, offset, residual, ambient)?;
     }
 }
