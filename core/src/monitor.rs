@@ -59,7 +59,7 @@ use serde::Serialize;
 
 use crate::alarm::{AlarmInputs, RuleInputs};
 use crate::config::{Mode, RigConfig, Uncertainty};
-use crate::num::{Real, WindowSums};
+use crate::num::{Real, WindowSums, lanes};
 
 /// One reading of every channel, already converted to SI units.
 ///
@@ -854,11 +854,12 @@ fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
 }
 
 /// The trapezoid between integrands `a` and `b`, `dt` seconds apart.
-fn trapezoid<R: Real>(out: &mut Terms<R>, a: &Terms<R>, b: &Terms<R>, dt: R) {
+#[inline]
+fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt: R) -> Terms<R> {
     let h = dt * R::from_f64(0.5);
-    for ((o, x), y) in out.iter_mut().zip(a).zip(b) {
-        *o = h * (*x + *y);
-    }
+    let mut out = [R::ZERO; TERMS];
+    lanes::<TERMS>(|i| out[i] = h * (a[i] + b[i]));
+    out
 }
 
 /// The integrals from summed terms over `duration_ms`.
@@ -921,29 +922,28 @@ impl<R: Real> Span<R> {
     }
 
     #[inline]
-    fn merge(&mut self, min: &[R; STEADY_CHANNELS], max: &[R; STEADY_CHANNELS]) {
-        for (lo, x) in self.min.iter_mut().zip(min) {
-            *lo = lesser(*lo, *x);
-        }
-        for (hi, x) in self.max.iter_mut().zip(max) {
-            *hi = greater(*hi, *x);
-        }
+    fn merge(&mut self, other: &Self) {
+        lanes::<STEADY_CHANNELS>(|i| {
+            self.min[i] = lesser(self.min[i], other.min[i]);
+            self.max[i] = greater(self.max[i], other.max[i]);
+        });
     }
 
     /// Includes one sample; returns whether it widened the span.
     #[inline]
     fn include(&mut self, v: &[R; STEADY_CHANNELS]) -> bool {
         let mut widened = false;
-        for ((lo, hi), x) in self.min.iter_mut().zip(self.max.iter_mut()).zip(v) {
-            if *x < *lo {
-                *lo = *x;
+        lanes::<STEADY_CHANNELS>(|i| {
+            let x = v[i];
+            if x < self.min[i] {
+                self.min[i] = x;
                 widened = true;
             }
-            if *x > *hi {
-                *hi = *x;
+            if x > self.max[i] {
+                self.max[i] = x;
                 widened = true;
             }
-        }
+        });
         widened
     }
 }
@@ -1038,7 +1038,7 @@ impl<R: Real> SteadyTracker<R> {
             }
             let mut merged = Span::empty();
             for b in &self.done {
-                merged.merge(&b.min, &b.max);
+                merged.merge(b);
             }
             self.done_merged = merged;
             rotated = true;
@@ -1051,7 +1051,7 @@ impl<R: Real> SteadyTracker<R> {
             return self.steady;
         }
         let mut all = self.done_merged;
-        all.merge(&self.current.min, &self.current.max);
+        all.merge(&self.current);
         let mut steady = true;
         for i in 0..STEADY_CHANNELS {
             let (lo, hi) = (all.min[i], all.max[i]);
@@ -1135,6 +1135,8 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     settings: FigureSettings,
     prepared: Prepared<R>,
     window_len: usize,
+    /// Trapezoids in a full window: `window_len − 1`.
+    refresh_after: u32,
     max_gap_ms: u32,
     stale_ms: u32,
     t_min_k: R,
@@ -1199,6 +1201,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             settings,
             prepared: Prepared::new(&settings),
             window_len,
+            refresh_after: config.window_samples - 1,
             max_gap_ms: to_ms(config.max_gap_s),
             stale_ms: to_ms(config.health.stale_s),
             t_min_k: R::from_f64(config.health.min_temperature_k),
@@ -1232,29 +1235,40 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         })
     }
 
+    // Written out channel by channel: a loop over (value, channel) pairs is
+    // not unrolled when the firmware is built for size.
     fn check(&self, s: &Sample<R>) -> Result<(), Invalid> {
-        let channels = [
-            (s.t_hot_k, Channel::Hot),
-            (s.t_cold_k, Channel::Cold),
-            (s.heat_in_w, Channel::HeatIn),
-            (s.work_w, Channel::Work),
-        ];
-        for (v, c) in channels {
-            if !v.is_finite() {
-                return Err(Invalid::NonFinite(c));
+        let finite = |v: R, c| {
+            if v.is_finite() {
+                Ok(())
+            } else {
+                Err(Invalid::NonFinite(c))
             }
-        }
-        for (v, c) in [(s.t_hot_k, Channel::Hot), (s.t_cold_k, Channel::Cold)] {
-            if !(v >= self.t_min_k && v <= self.t_max_k) {
-                return Err(Invalid::OutOfRange(c));
+        };
+        finite(s.t_hot_k, Channel::Hot)?;
+        finite(s.t_cold_k, Channel::Cold)?;
+        finite(s.heat_in_w, Channel::HeatIn)?;
+        finite(s.work_w, Channel::Work)?;
+        let (lo, hi) = (self.t_min_k, self.t_max_k);
+        let in_range = |v: R, c| {
+            if v >= lo && v <= hi {
+                Ok(())
+            } else {
+                Err(Invalid::OutOfRange(c))
             }
-        }
+        };
+        in_range(s.t_hot_k, Channel::Hot)?;
+        in_range(s.t_cold_k, Channel::Cold)?;
         let max_power = R::from_f32(MAX_POWER_W);
-        for (v, c) in [(s.heat_in_w, Channel::HeatIn), (s.work_w, Channel::Work)] {
-            if v.abs() > max_power {
-                return Err(Invalid::OutOfRange(c));
+        let bounded = |v: R, c| {
+            if v.abs() <= max_power {
+                Ok(())
+            } else {
+                Err(Invalid::OutOfRange(c))
             }
-        }
+        };
+        bounded(s.heat_in_w, Channel::HeatIn)?;
+        bounded(s.work_w, Channel::Work)?;
         match (self.measured, s.heat_out_w) {
             (_, Some(q)) if !q.is_finite() => return Err(Invalid::NonFinite(Channel::HeatOut)),
             (_, Some(q)) if q.abs() > max_power => {
@@ -1320,16 +1334,14 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
         // Slide the window: the new sample's trapezoid enters; when full, the
         // oldest sample leaves and with it the trapezoid to its successor.
-        let mut leaving = [R::ZERO; TERMS];
-        if self.filled == self.window_len {
+        let full = self.filled == self.window_len;
+        if full {
             self.head = if self.head + 1 == self.window_len {
                 0
             } else {
                 self.head + 1
             };
-            if let (Some(link), Some(ms)) = (self.ring.get(self.head), self.ring_ms.get(self.head))
-            {
-                leaving = *link;
+            if let Some(ms) = self.ring_ms.get(self.head) {
                 self.window_ms -= u64::from(*ms);
             }
         } else {
@@ -1340,23 +1352,24 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             newest -= self.window_len;
         }
         let entry_ms = dt_ms.unwrap_or(0);
+        let entry = match dt_ms {
+            Some(dt_ms) => {
+                self.totals_ms += u64::from(dt_ms);
+                trapezoid(&self.prev_point, &point, R::from_ms(u64::from(dt_ms)))
+            }
+            None => [R::ZERO; TERMS],
+        };
+        // The oldest sample's own trapezoid reaches outside the window,
+        // which therefore holds `window_len − 1` trapezoids when full. Every
+        // trapezoid enters it, so the run totals are kept there too.
+        if self.filled > 1 {
+            let leaving = if full { self.ring.get(self.head) } else { None };
+            self.sums.slide(&entry, leaving, self.refresh_after);
+            self.window_ms += u64::from(entry_ms);
+        }
         if let (Some(slot), Some(ms)) = (self.ring.get_mut(newest), self.ring_ms.get_mut(newest)) {
-            // The trapezoid is built in its ring slot and summed from there.
-            match dt_ms {
-                Some(dt_ms) => {
-                    trapezoid(slot, &self.prev_point, &point, R::from_ms(u64::from(dt_ms)));
-                    self.totals_ms += u64::from(dt_ms);
-                }
-                None => *slot = [R::ZERO; TERMS],
-            }
+            *slot = entry;
             *ms = entry_ms;
-            // The oldest sample's own trapezoid reaches outside the window,
-            // which therefore holds `window_len − 1` trapezoids when full.
-            // Every trapezoid enters it, so the run totals are kept there too.
-            if self.filled > 1 {
-                self.sums.slide(slot, &leaving, self.window_len as u32 - 1);
-                self.window_ms += u64::from(entry_ms);
-            }
         }
         self.prev_ms = Some(s.t_ms);
         self.prev_point = point;

@@ -150,6 +150,38 @@ impl Real for f64 {
     }
 }
 
+/// Calls `f(0), f(1), …, f(K − 1)` in straight-line blocks of eight and
+/// four. Loops over a few lanes then need no counter or branch even in
+/// firmware built for size (`opt-level = "s"`), where the compiler keeps
+/// such loops rolled; the per-sample cost should not depend on how the
+/// firmware around it is optimised.
+#[inline(always)]
+pub(crate) fn lanes<const K: usize>(mut f: impl FnMut(usize)) {
+    let mut i = 0;
+    while i + 8 <= K {
+        f(i);
+        f(i + 1);
+        f(i + 2);
+        f(i + 3);
+        f(i + 4);
+        f(i + 5);
+        f(i + 6);
+        f(i + 7);
+        i += 8;
+    }
+    if i + 4 <= K {
+        f(i);
+        f(i + 1);
+        f(i + 2);
+        f(i + 3);
+        i += 4;
+    }
+    while i < K {
+        f(i);
+        i += 1;
+    }
+}
+
 /// `K` sliding-window sums and run totals that do not drift, at three
 /// additions per sum and entry.
 ///
@@ -164,8 +196,8 @@ impl Real for f64 {
 /// addition per sum per window.
 ///
 /// `refresh_after` must be the number of entries a full window holds, and
-/// the caller must pass the entry leaving the window (zeros while none
-/// does), so that `fresh` and the window agree at each refresh.
+/// the caller must pass the entry leaving the window once it is full, so
+/// that `fresh` and the window agree at each refresh.
 ///
 /// ```
 /// use heatbound::num::WindowSums;
@@ -174,8 +206,8 @@ impl Real for f64 {
 /// let mut exact = 0.0f64;
 /// for i in 0..10_000_000usize {
 ///     let entering = [0.1 + (i % 7) as f32];
-///     let leaving = if i >= 10 { ring[i % 10] } else { [0.0] };
-///     s.slide(&entering, &leaving, 10);
+///     let leaving = (i >= 10).then_some(&ring[i % 10]);
+///     s.slide(&entering, leaving, 10);
 ///     ring[i % 10] = entering;
 ///     exact += f64::from(entering[0]);
 /// }
@@ -210,12 +242,19 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
     }
 
     /// Adds `entering[i]` to window sum `i` and run total `i`, and removes
-    /// `leaving[i]` from window sum `i`.
+    /// `leaving[i]`, if any, from window sum `i`.
     #[inline]
-    pub fn slide(&mut self, entering: &[R; K], leaving: &[R; K], refresh_after: u32) {
-        for i in 0..K {
-            self.window[i] = self.window[i] + (entering[i] - leaving[i]);
-            self.fresh[i] = self.fresh[i] + entering[i];
+    pub fn slide(&mut self, entering: &[R; K], leaving: Option<&[R; K]>, refresh_after: u32) {
+        let (window, fresh) = (&mut self.window, &mut self.fresh);
+        match leaving {
+            Some(leaving) => lanes::<K>(|i| {
+                window[i] = window[i] + (entering[i] - leaving[i]);
+                fresh[i] = fresh[i] + entering[i];
+            }),
+            None => lanes::<K>(|i| {
+                window[i] = window[i] + entering[i];
+                fresh[i] = fresh[i] + entering[i];
+            }),
         }
         self.fresh_count += 1;
         if self.fresh_count >= refresh_after {
