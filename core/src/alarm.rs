@@ -1,7 +1,7 @@
 //! Alarms: the rules that warn a test engineer, and their state machines.
 //!
 //! ```text
-//! Monitor --AlarmInputs--> AlarmSet::update(t_ms) --> Events, trip_active()
+//! Monitor::alarm_inputs --RuleInputs--> AlarmSet::update(t_ms) --> Events, trip_active()
 //! ```
 //!
 //! Each rule turns the live window figures into one of three verdicts:
@@ -13,7 +13,8 @@
 //!
 //! The second-law rules compare against k·u, the expanded uncertainty, so a
 //! reading that is beyond the bound only by less than its own measurement
-//! uncertainty does not raise them.
+//! uncertainty does not raise them. The uncertainties are asked for only
+//! when a rule is within its deadband of such a limit ([`RuleInputs`]).
 //!
 //! These alarms are monitoring aids, not a safety-rated interlock: hardwired
 //! cut-outs and relief devices must stay in place.

@@ -50,7 +50,7 @@
 //! of `duration_s/8`, amortised O(1). The monitor is generic over the
 //! [`Real`] it computes in: `f32` on a controller, `f64` on the host.
 //!
-//! `size_of::<Monitor<64>>()` (f32) is 3 256 bytes on x86-64, and the
+//! `size_of::<Monitor<64>>()` (f32) is 3 232 bytes on x86-64, and the
 //! [`AlarmSet`](crate::alarm::AlarmSet) adds 232: together well under the
 //! 8 KiB budget (a unit test checks it; `cargo run -p heatbound --example
 //! sizes` prints the figures).

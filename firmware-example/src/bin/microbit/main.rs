@@ -10,6 +10,10 @@
 #![no_main]
 #![deny(unsafe_code)]
 
+// Only the measurement settings are read here.
+#[allow(dead_code)]
+#[path = "../shared/build_env.rs"]
+mod build_env;
 #[path = "../shared/hw.rs"]
 mod hw;
 #[path = "../shared/measure.rs"]

@@ -7,6 +7,7 @@
 //! | `HEATBOUND_SEED` | 1 | the rig's noise seed |
 //! | `HEATBOUND_DURATION_S` | 600 | rig time simulated before exiting (bounded mode) |
 //! | `HEATBOUND_SPEEDUP` | 1 | `endless` mode: rig seconds per real second |
+//! | `HEATBOUND_MEASURE_SAMPLES` | 5900 | `measure` builds: samples measured after the warm-up |
 //!
 //! A malformed number fails the build (const evaluation).
 
@@ -26,6 +27,10 @@ pub const DURATION_S: u32 = parse_u32(option_env!("HEATBOUND_DURATION_S"), 600);
 /// Rig seconds per real second in `endless` mode (at least 1).
 #[cfg_attr(not(feature = "endless"), allow(dead_code))]
 pub const SPEEDUP: u32 = parse_u32(option_env!("HEATBOUND_SPEEDUP"), 1);
+
+/// Samples measured after the warm-up in `measure` builds.
+#[cfg_attr(not(feature = "measure"), allow(dead_code))]
+pub const MEASURE_SAMPLES: u32 = parse_u32(option_env!("HEATBOUND_MEASURE_SAMPLES"), 5_900);
 
 /// A decimal `u32`, or `default` when unset; anything else stops the build.
 const fn parse_u32(s: Option<&str>, default: u32) -> u32 {
