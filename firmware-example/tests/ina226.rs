@@ -5,9 +5,12 @@
 //! Values from the INA226 datasheet (TI SBOS547): the calibration and
 //! scaling equations of its "Programming" section (CAL = 0.00512 /
 //! (current_LSB · R_shunt), current_LSB = max current / 2^15, power LSB =
-//! 25 · current_LSB) and the register descriptions. The worked numbers
-//! (10 A, 2 mΩ; 1 mA LSB, CAL 2560; 12 V, 120 W) are from memory of the
-//! datasheet's example, recomputed here from the equations.
+//! 25 · current_LSB) and the register descriptions, and the worked numbers
+//! of its "Configure/Measure/Calculate Example", Table 1: a 10 A load
+//! through 2 mΩ at 12 V common mode, 15 A expected at most (current LSB
+//! 457.7 µA/bit, rounded to 1 mA/bit), so CAL = 2560 (A00h), shunt 1F40h
+//! (8000, 20 mV), bus 2570h (9584, 11.98 V), current 2710h (10000, 10 A),
+//! power 12B8h (4792; the table prints 119.82 W, the product is 119.80 W).
 
 use embedded_hal::i2c::ErrorKind;
 use embedded_hal_mock::eh1::i2c::{Mock, Transaction as T};
@@ -33,6 +36,10 @@ fn init_transactions(addr: u8, config: u16, cal: u16) -> Vec<T> {
 
 #[test]
 fn calibration_equations() {
+    // SBOS547's example: 15 A at most gives a current LSB of 457.7 µA/bit
+    // (15 A / 2^15 = 457.76 µA, printed to four digits).
+    let c = Calibration::for_max_current(15.0, 0.002).unwrap();
+    assert!((c.current_lsb_a() - 457.7e-6).abs() < 0.1e-6);
     // Equations 1 and 2: current_LSB = 10 A / 2^15 = 305.18 µA;
     // CAL = 0.00512 / (305.18 µA · 2 mΩ) = 8388.6 → 8388.
     let c = Calibration::for_max_current(10.0, 0.002).unwrap();
@@ -75,7 +82,14 @@ fn register_conversions() {
     assert!((shunt_voltage_v(0x1F40) - 0.020).abs() < 1e-9);
     assert_eq!(current_register(0x1F40, cal.cal()), 10_000);
     assert_eq!(current_a(10_000, &cal), 10.0);
-    // Bus 12 V = 9600 LSB of 1.25 mV; power = 10000 · 9600 / 20000 = 4800 → 120 W.
+    // SBOS547 Table 1: bus 2570h = 9584 · 1.25 mV = 11.98 V (12 V less the
+    // 20 mV shunt drop); power = 10000 · 9584 / 20000 = 4792 = 12B8h. The
+    // table prints 119.82 W; 4792 · 25 mW/bit is 119.80 W, which is also
+    // 11.98 V · 10 A.
+    assert!((bus_voltage_v(0x2570) - 11.98).abs() < 1e-6);
+    assert_eq!(power_register(0x2710, 0x2570), 0x12B8);
+    assert!((power_w(0x12B8, &cal) - 119.80).abs() < 1e-3);
+    // Exactly 12 V is 9600 LSB; 10 A there is 4800, 120 W (Equation 4).
     assert_eq!(bus_voltage_v(0x2580), 12.0);
     assert_eq!(power_register(10_000, 0x2580), 4800);
     assert!((power_w(4800, &cal) - 120.0).abs() < 1e-3);
