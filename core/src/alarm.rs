@@ -444,8 +444,11 @@ pub enum Verdict {
     Clear,
 }
 
-/// What the rules look at: the live window figures, the latest hot-side
-/// temperature and the channel faults.
+/// What the rules look at, every figure computed up front: the window
+/// figures, the latest hot-side temperature and the channel faults. Replays
+/// that already hold the figures build this; the monitor's live inputs are a
+/// [`WindowAlarmInputs`](crate::monitor::WindowAlarmInputs), whose
+/// `resolve()` gives this form.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct AlarmInputs<R: Real> {
     /// The sliding window's figures that the rules read.

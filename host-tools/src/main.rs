@@ -34,7 +34,9 @@ enum Command {
     Simulate(cmd::simulate::Args),
     /// Re-check a capture or a log database; exit non-zero when it is not trustworthy.
     Audit(cmd::audit::Args),
-    /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited.
+    /// Draw one run of a log as a picture (PNG or SVG): η (or COP) and its Carnot bound, σ̇, temperatures, alarms.
+    Chart(cmd::chart::Args),
+    /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited and charted.
     Demo(cmd::demo::Args),
 }
 
@@ -83,6 +85,7 @@ fn main() -> ExitCode {
         Command::Watch(args) => cmd::watch::run(&args),
         Command::Simulate(args) => cmd::simulate::run(&args),
         Command::Audit(args) => cmd::audit::run(&args),
+        Command::Chart(args) => cmd::chart::run(&args),
         Command::Demo(args) => cmd::demo::run(&args),
     };
     match result {

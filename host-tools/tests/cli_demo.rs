@@ -1,4 +1,5 @@
-//! `heatbound demo`: the whole chain, end to end, as the README's main command.
+//! `heatbound demo`: the whole chain, end to end, as the README's main command,
+//! with the audit and the chart of its log.
 use assert_cmd::Command;
 
 #[test]
@@ -30,6 +31,23 @@ fn demo_raises_beyond_carnot_and_its_log_passes_the_audit() {
     assert!(text.contains("log written to"), "{text}");
     assert!(text.contains("not a safety-rated"), "{text}");
     assert!(db.exists());
+    // ...and draws the chart of its log beside it.
+    let png = dir.path().join("demo.png");
+    assert!(
+        text.lines()
+            .any(|l| l.starts_with("chart written to ") && l.ends_with("demo.png")),
+        "{text}"
+    );
+    let bytes = std::fs::read(&png).expect("the demo's chart");
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
+    assert_eq!(&bytes[12..16], b"IHDR");
+    assert_eq!(
+        (
+            u32::from_be_bytes([bytes[16], bytes[17], bytes[18], bytes[19]]),
+            u32::from_be_bytes([bytes[20], bytes[21], bytes[22], bytes[23]])
+        ),
+        (1400, 1000)
+    );
 
     // The log it wrote audits clean on its own, too.
     let audit = Command::cargo_bin("heatbound")

@@ -3,7 +3,7 @@
 //! ```text
 //! sender thread:   sil::Simulation (thermocouple-drift, paced) --wire bytes--> TCP 127.0.0.1
 //! this thread:     TCP --> Ingest (decoder, link tracker, SQLite log, live lines)
-//! afterwards:      the log --> audit --> report, and where the log is
+//! afterwards:      the log --> audit --> report; the log --> chart (PNG beside it); where both are
 //! ```
 //!
 //! The simulated bench rig runs the same controller code as the firmware
@@ -30,7 +30,8 @@ use crate::sil::{self, SimOptions, SimStats, Simulation};
 #[derive(clap::Args)]
 #[command(
     after_help = "The demo starts a fresh log at --db (an existing file of that name is \
-replaced) and ends with the audit of what it logged."
+replaced), ends with the audit of what it logged, and draws its chart beside the log \
+(--db heatbound-demo.sqlite: heatbound-demo.png)."
 )]
 pub struct Args {
     /// The log database the demo writes.
@@ -54,6 +55,12 @@ const DURATION_S: f64 = 600.0;
 pub fn run(args: &Args) -> Result<()> {
     if !(args.speed.is_finite() && args.speed >= 0.0) {
         bail!("--speed {}: must be a finite factor ≥ 0", args.speed);
+    }
+    if crate::cmd::chart::default_out(&args.db) == args.db {
+        bail!(
+            "--db {}: the chart drawn beside it would replace the log; name it .sqlite",
+            args.db.display()
+        );
     }
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
     println!("{}", crate::SAFETY_NOTE);
@@ -134,10 +141,16 @@ pub fn run(args: &Args) -> Result<()> {
     let report = crate::cmd::audit::audit_database(&args.db, None, &config)?;
     println!();
     print!("{}", report.text(&args.db.display().to_string()));
+    // Draw it, as `heatbound chart` would.
+    let chart = crate::cmd::chart::default_out(&args.db);
+    crate::cmd::chart::write_chart(&args.db, None, &chart)?;
     let shown = std::fs::canonicalize(&args.db).unwrap_or_else(|_| args.db.clone());
+    let chart_shown = std::fs::canonicalize(&chart).unwrap_or_else(|_| chart.clone());
     println!();
     println!("log written to {}", shown.display());
+    println!("chart written to {}", chart_shown.display());
     println!("re-check it with `heatbound audit {}`", args.db.display());
+    println!("redraw it with `heatbound chart {}`", args.db.display());
     println!("{}", crate::SAFETY_NOTE);
     std::io::stdout().flush().context("writing the report")?;
 

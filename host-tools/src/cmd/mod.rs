@@ -1,6 +1,7 @@
 //! One module per subcommand.
 pub mod analyze;
 pub mod audit;
+pub mod chart;
 pub mod convert;
 pub mod cycle;
 pub mod demo;
