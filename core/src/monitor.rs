@@ -534,20 +534,13 @@ impl<R: Real> Integrals<R> {
         // Mean temperatures and their partials.
         let th = ratio(qi, si);
         let tc = ratio(qo, so);
+        // Read only inside `PARTIALS.then`: without partials they are dead
+        // code, and the compiler drops them.
         let d_th = Partials {
-            hot: if PARTIALS {
-                ratio(qi * si2, si * si).unwrap_or(zero)
-            } else {
-                zero
-            },
+            hot: ratio(qi * si2, si * si).unwrap_or(zero),
             ..Partials::default()
         };
-        let inv_so2 = if PARTIALS {
-            ratio(R::ONE, so * so)
-        } else {
-            None
-        };
-        let d_tc = match inv_so2 {
+        let d_tc = match ratio(R::ONE, so * so) {
             Some(inv) if measured => Partials {
                 cold: qo * so2 * inv,
                 ..Partials::default()
@@ -639,21 +632,24 @@ impl<R: Real> Integrals<R> {
                 None
             };
             let (s_gen, d_s) = match t0 {
-                Some(t0) if t0 > zero && !PARTIALS => (fin(so + loss / t0 - si), None),
                 Some(t0) if t0 > zero => {
-                    let mut d = Partials {
-                        hot: si2,
-                        cold: -so2,
-                        heat_in: qi / t0 - si,
-                        work: -w / t0,
-                        heat_out: so - qo / t0,
-                    };
-                    if p.ambient.is_none() {
-                        // The default T0 is the time mean of T_cold, which a
-                        // cold-side offset moves one for one: so does Q_loss/T0.
-                        d.cold = d.cold - loss / (t0 * t0);
-                    }
-                    (fin(so + loss / t0 - si), Some(d))
+                    let d = PARTIALS.then(|| {
+                        let mut d = Partials {
+                            hot: si2,
+                            cold: -so2,
+                            heat_in: qi / t0 - si,
+                            work: -w / t0,
+                            heat_out: so - qo / t0,
+                        };
+                        if p.ambient.is_none() {
+                            // The default T0 is the time mean of T_cold, which
+                            // a cold-side offset moves one for one: so does
+                            // Q_loss/T0.
+                            d.cold = d.cold - loss / (t0 * t0);
+                        }
+                        d
+                    });
+                    (fin(so + loss / t0 - si), d)
                 }
                 _ => (None, None),
             };
