@@ -118,6 +118,9 @@ fn assert_one_line_error(result: &(Option<i32>, String, String), needle: &str) {
 }
 
 /// Width and height from a PNG's IHDR chunk, after checking the signature.
+/// Layout from the PNG specification (W3C / ISO/IEC 15948): the 8-byte
+/// signature (§5.2), then the IHDR chunk first, its length and type in bytes
+/// 8..16 and width and height as big-endian u32 in bytes 16..24 (§11.2.2).
 fn png_size(bytes: &[u8]) -> (u32, u32) {
     assert!(bytes.len() > 24, "{} bytes", bytes.len());
     assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");

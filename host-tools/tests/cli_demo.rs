@@ -39,6 +39,8 @@ fn demo_raises_beyond_carnot_and_its_log_passes_the_audit() {
         "{text}"
     );
     let bytes = std::fs::read(&png).expect("the demo's chart");
+    // PNG specification (W3C / ISO/IEC 15948): signature (§5.2), then IHDR
+    // with width and height as big-endian u32 in bytes 16..24 (§11.2.2).
     assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
     assert_eq!(&bytes[12..16], b"IHDR");
     assert_eq!(
