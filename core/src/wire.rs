@@ -1188,9 +1188,28 @@ impl<const CAP: usize> Decoder<CAP> {
         &self.stats
     }
 
-    /// Bytes of an unfinished frame held now.
+    /// Bytes of an unfinished frame held now (none once the frame has
+    /// overflowed the buffer: see [`Decoder::has_unfinished`]).
     pub const fn pending(&self) -> usize {
         self.len
+    }
+
+    /// Whether bytes have arrived since the last delimiter, kept or
+    /// discarded as overlong.
+    pub const fn has_unfinished(&self) -> bool {
+        self.len > 0 || self.overflowed
+    }
+
+    /// The stream ended, or the link dropped: ends an unfinished frame as a
+    /// delimiter would, so that it is counted (an overflowed tail as
+    /// `overlong`), and leaves the decoder ready for a new stream. Returns
+    /// what a delimiter would have, or `None` when nothing was unfinished.
+    pub fn end_stream(&mut self) -> Option<Result<Frame, FrameError>> {
+        if self.has_unfinished() {
+            self.push_byte(0)
+        } else {
+            None
+        }
     }
 }
 
@@ -1429,6 +1448,31 @@ mod tests {
             encode(&Frame::Summary(Summary::default()), short),
             Err(WireError::BufferTooSmall)
         );
+    }
+
+    #[test]
+    fn end_stream_counts_a_tail_longer_than_the_buffer() {
+        // A tail that overflowed the buffer holds no bytes, yet it is a loss,
+        // and the next stream starts clean (a reconnect must not throw away
+        // its first frame as overlong).
+        let mut d = Decoder::<32>::new();
+        d.feed(&[1u8; 200], |_| {});
+        assert_eq!(d.pending(), 0);
+        assert!(d.has_unfinished());
+        assert_eq!(d.end_stream(), Some(Err(FrameError::Overlong)));
+        assert_eq!(d.stats().overlong, 1);
+        assert_eq!(d.stats().bytes_discarded, 200);
+        assert!(!d.has_unfinished());
+        assert_eq!(d.end_stream(), None);
+
+        let mut buf = [0u8; MAX_FRAME_LEN];
+        let n = encode(&Frame::Summary(Summary::default()), &mut buf).unwrap();
+        let mut d = Decoder::<{ MAX_FRAME_LEN }>::new();
+        d.feed(&[7u8; 300], |_| {});
+        d.end_stream();
+        let mut got = None;
+        d.feed(&buf[..n], |r| got = Some(r));
+        assert_eq!(got, Some(Ok(Frame::Summary(Summary::default()))));
     }
 
     #[test]

@@ -238,7 +238,7 @@ impl Ingest {
     /// The link is back at `host_ms`: closes the open outage. A frame cut
     /// off by the drop is ended here and counted as a loss.
     pub fn link_up(&mut self, host_ms: i64) -> Result<(), StoreError> {
-        if self.decoder.pending() > 0 {
+        if self.decoder.has_unfinished() {
             self.feed(&[0], host_ms, |_| {})?;
             self.totals.bytes = self.totals.bytes.saturating_sub(1);
         }
@@ -252,7 +252,7 @@ impl Ingest {
     /// closes an open outage, commits, and returns the totals.
     pub fn finish(mut self, host_ms: i64) -> Result<Totals, StoreError> {
         // A frame cut off by the end of the input is a loss too.
-        if self.decoder.pending() > 0 && !self.limit_reached() {
+        if self.decoder.has_unfinished() && !self.limit_reached() {
             self.feed(&[0], host_ms, |_| {})?;
             self.totals.bytes = self.totals.bytes.saturating_sub(1);
         }

@@ -122,13 +122,17 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats)> {
             }
         });
     }
-    let mut stats = *decoder.stats();
-    // An unterminated tail is a frame cut off by the end of the capture.
-    if decoder.pending() > 0 {
-        stats.malformed += 1;
-        stats.bytes_discarded += decoder.pending() as u64;
+    // An unterminated tail is a frame cut off by the end of the capture: a
+    // loss, whatever its length.
+    // A complete frame that lacks only its final delimiter is kept, as
+    // `watch` keeps it.
+    if let Some(Ok(frame)) = decoder.end_stream() {
+        frames.push(Received {
+            host_ms: None,
+            frame,
+        });
     }
-    Ok((frames, stats))
+    Ok((frames, *decoder.stats()))
 }
 
 /// Audits a run (the latest unless `run` is given) of the log database at `path`.
