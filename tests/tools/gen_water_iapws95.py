@@ -7,8 +7,12 @@ p = 0.101325 MPa.
 
 Usage (from the workspace root):
 
-    pip install iapws==1.5.5 numpy
+    pip install iapws==1.5.5 numpy==2.4.6 scipy==1.17.1
     python3 tests/tools/gen_water_iapws95.py
+
+iapws solves for density with scipy's root finder, whose last digits change between numpy
+and scipy releases (seen: up to 7e-12 relative, far below what the tests need). With the
+versions above the committed vectors are reproduced byte for byte.
 
 Writes tests/vectors/water_iapws95.csv (t_c, cp_j_per_kg_k, rho_kg_per_m3, every 0.25 C
 from 5 to 95 C) and prints the polynomial coefficients used by
