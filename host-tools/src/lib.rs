@@ -1,10 +1,21 @@
 //! `heatbound-host`: the host tool's library half, shared by the `heatbound`
 //! binary, its integration tests and examples.
 //!
-//! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
-//! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`).
+//! The engines, in the order data flows through them:
 //!
-//! The subcommands themselves (`cmd`) live in the binary.
+//! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
+//! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
+//! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
+//! - [`audit`]: the audit engine, pure: integrity, recomputation, second law, alarm consistency;
+//! - [`chart`]: the chart renderer, a run of the log as a PNG or SVG picture;
+//! - [`term`]: what every command prints beside its output (the safety note).
+//!
+//! The subcommands themselves (`cmd`) live in the binary; each parses its
+//! arguments, calls these engines and prints.
+#![warn(missing_docs)]
 pub mod audit;
+pub mod chart;
 pub mod ingest;
+pub mod sil;
 pub mod store;
+pub mod term;

@@ -4,14 +4,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod cmd;
-use heatbound_host::{ingest, store};
-mod sil;
-
-/// Cautions printed beside reports and in the help text.
-pub const SAFETY_NOTE: &str = "Caution: heat-engine rigs have hot surfaces, pressurised parts, \
-rotating parts and electric heaters. heatbound alarms are monitoring aids, not a safety-rated \
-interlock: keep hardwired cut-outs, relief devices and guards in place, and follow local codes \
-and licensed practice.";
+use heatbound_host::term::SAFETY_NOTE;
 
 #[derive(Parser)]
 #[command(name = "heatbound", version, about = "Thermodynamic checks for heat-engine test rigs", after_help = SAFETY_NOTE)]

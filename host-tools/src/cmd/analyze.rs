@@ -986,7 +986,7 @@ impl Replay {
                 );
             }
         }
-        let _ = writeln!(out, "\n{}", crate::SAFETY_NOTE);
+        let _ = writeln!(out, "\n{}", heatbound_host::term::SAFETY_NOTE);
         out
     }
 }

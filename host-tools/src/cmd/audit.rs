@@ -74,7 +74,7 @@ pub fn run(args: &Args) -> Result<()> {
         writeln!(stdout, "{text}").context("writing the report")?;
     } else {
         write!(stdout, "{}", report.text(&name)).context("writing the report")?;
-        writeln!(stdout, "{}", crate::SAFETY_NOTE).context("writing the report")?;
+        writeln!(stdout, "{}", heatbound_host::term::SAFETY_NOTE).context("writing the report")?;
     }
     stdout.flush().context("writing the report")?;
     if !report.trustworthy {

@@ -24,7 +24,7 @@ use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::store::Log;
 
 use crate::cmd::watch::{Bounds, End, closing_line, now_ms, read_to_end};
-use crate::sil::{self, SimOptions, SimStats, Simulation};
+use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
@@ -56,14 +56,14 @@ pub fn run(args: &Args) -> Result<()> {
     if !(args.speed.is_finite() && args.speed >= 0.0) {
         bail!("--speed {}: must be a finite factor ≥ 0", args.speed);
     }
-    if crate::cmd::chart::default_out(&args.db) == args.db {
+    if heatbound_host::chart::default_out(&args.db) == args.db {
         bail!(
             "--db {}: the chart drawn beside it would replace the log; name it .sqlite",
             args.db.display()
         );
     }
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
-    println!("{}", crate::SAFETY_NOTE);
+    println!("{}", heatbound_host::term::SAFETY_NOTE);
     println!();
 
     let options = SimOptions {
@@ -142,8 +142,8 @@ pub fn run(args: &Args) -> Result<()> {
     println!();
     print!("{}", report.text(&args.db.display().to_string()));
     // Draw it, as `heatbound chart` would.
-    let chart = crate::cmd::chart::default_out(&args.db);
-    crate::cmd::chart::write_chart(&args.db, None, &chart)?;
+    let chart = heatbound_host::chart::default_out(&args.db);
+    heatbound_host::chart::write_chart(&args.db, None, &chart)?;
     let shown = std::fs::canonicalize(&args.db).unwrap_or_else(|_| args.db.clone());
     let chart_shown = std::fs::canonicalize(&chart).unwrap_or_else(|_| chart.clone());
     println!();
@@ -151,7 +151,7 @@ pub fn run(args: &Args) -> Result<()> {
     println!("chart written to {}", chart_shown.display());
     println!("re-check it with `heatbound audit {}`", args.db.display());
     println!("redraw it with `heatbound chart {}`", args.db.display());
-    println!("{}", crate::SAFETY_NOTE);
+    println!("{}", heatbound_host::term::SAFETY_NOTE);
     std::io::stdout().flush().context("writing the report")?;
 
     let raised = stats

@@ -20,8 +20,8 @@ use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
 use anyhow::{Context, Result, bail};
 
-use crate::ingest::{Ingest, LineStyle, Totals};
-use crate::store::{DEFAULT_DB, Log};
+use heatbound_host::ingest::{Ingest, LineStyle, Totals};
+use heatbound_host::store::{DEFAULT_DB, Log};
 
 /// How long one read waits before the loop checks the bounds, the signal
 /// flag and the batch age.
@@ -103,7 +103,7 @@ impl Bounds {
 
 /// Runs the subcommand.
 pub fn run(args: &Args) -> Result<()> {
-    eprintln!("{}", crate::SAFETY_NOTE);
+    eprintln!("{}", heatbound_host::term::SAFETY_NOTE);
     let deadline = match args.max_duration_s {
         Some(s) if !(s.is_finite() && s >= 0.0) => {
             bail!("--max-duration-s {s}: must be a finite number of seconds ≥ 0")
