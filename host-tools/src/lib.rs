@@ -3,6 +3,8 @@
 //!
 //! The engines, in the order data flows through them:
 //!
+//! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
+//! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
@@ -16,6 +18,8 @@
 pub mod audit;
 pub mod chart;
 pub mod ingest;
+pub mod replay;
+pub mod rigfile;
 pub mod sil;
 pub mod store;
 pub mod term;

@@ -50,7 +50,7 @@ pub struct Args {
 /// Runs the subcommand. Exits the process with status 1 when the record is
 /// not trustworthy (after printing the report); errors are status 2.
 pub fn run(args: &Args) -> Result<()> {
-    let config = crate::cmd::analyze::load_config(args.config.as_deref())?;
+    let config = heatbound_host::rigfile::load_config(args.config.as_deref())?;
     let name = args.input.display().to_string();
     let report = if is_database(&args.input)? {
         audit_database(&args.input, args.run, &config)?

@@ -89,7 +89,7 @@ pub fn run(args: &Args) -> Result<()> {
         summary_period_s: args.summary_period_s,
     };
     let config = match &args.config {
-        Some(path) => crate::cmd::analyze::load_config(Some(path))?,
+        Some(path) => heatbound_host::rigfile::load_config(Some(path))?,
         None => sil::default_config(&Rig::bench_stirling(args.scenario, args.seed)),
     };
     let mut sim = Simulation::new(&options, &config)?;
