@@ -8,6 +8,7 @@
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
+//! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
 //! - [`audit`]: the audit engine, pure: integrity, recomputation, second law, alarm consistency;
 //! - [`chart`]: the chart renderer, a run of the log as a PNG or SVG picture;
 //! - [`term`]: what every command prints beside its output (the safety note).
@@ -16,6 +17,7 @@
 //! arguments, calls these engines and prints.
 #![warn(missing_docs)]
 pub mod audit;
+pub mod capture;
 pub mod chart;
 pub mod ingest;
 pub mod replay;

@@ -138,7 +138,7 @@ pub fn run(args: &Args) -> Result<()> {
     }
 
     // Re-check what was logged, from the database, as `heatbound audit` would.
-    let report = crate::cmd::audit::audit_database(&args.db, None, &config)?;
+    let report = heatbound_host::capture::audit_database(&args.db, None, &config)?;
     println!();
     print!("{}", report.text(&args.db.display().to_string()));
     // Draw it, as `heatbound chart` would.
