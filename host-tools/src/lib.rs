@@ -3,9 +3,11 @@
 //!
 //! The engines, in the order data flows through them:
 //!
+//! - [`cycle_file`]: an ideal-gas reference cycle from TOML, evaluated, as a table or JSON;
 //! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
+//! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
 //! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
@@ -19,7 +21,9 @@
 pub mod audit;
 pub mod capture;
 pub mod chart;
+pub mod cycle_file;
 pub mod ingest;
+pub mod link;
 pub mod replay;
 pub mod rigfile;
 pub mod sil;

@@ -84,8 +84,11 @@ fn main() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(err) => {
-            // One line, the whole cause chain: file, place and reason.
-            eprintln!("heatbound: error: {err:#}");
+            // One line: file, place and reason, each cause once.
+            eprintln!(
+                "heatbound: error: {}",
+                heatbound_host::term::error_line(err.as_ref())
+            );
             ExitCode::from(2)
         }
     }

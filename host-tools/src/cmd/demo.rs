@@ -13,7 +13,7 @@
 //! readings, and `beyond_carnot` is raised.
 use std::io::Write as _;
 use std::net::{Ipv4Addr, TcpListener, TcpStream};
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::thread;
 use std::time::{Duration, Instant};
 
@@ -21,17 +21,17 @@ use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
 use heatbound_firmware_example::rig::{Rig, Scenario};
 use heatbound_host::ingest::{Ingest, LineStyle};
+use heatbound_host::link::{self, Bounds, End, now_ms};
 use heatbound_host::store::Log;
 
-use crate::cmd::watch::{Bounds, End, closing_line, now_ms, read_to_end};
 use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
 #[command(
-    after_help = "The demo starts a fresh log at --db (an existing file of that name is \
-replaced), ends with the audit of what it logged, and draws its chart beside the log \
-(--db heatbound-demo.sqlite: heatbound-demo.png)."
+    after_help = "The demo logs its run to --db: a new file, or a new run in an existing \
+heatbound log (any other file is refused and left untouched). It ends with the audit of what \
+it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: heatbound-demo.png)."
 )]
 pub struct Args {
     /// The log database the demo writes.
@@ -62,6 +62,8 @@ pub fn run(args: &Args) -> Result<()> {
             args.db.display()
         );
     }
+    // Refuse a --db that is not a heatbound log before anything starts.
+    link::check_log_target(&args.db)?;
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
     println!("{}", heatbound_host::term::SAFETY_NOTE);
     println!();
@@ -79,7 +81,6 @@ pub fn run(args: &Args) -> Result<()> {
         args.speed, options.rate_hz
     );
 
-    fresh_log(&args.db)?;
     let log = Log::open(&args.db).context("cannot open the demo log")?;
 
     // Listening sockets stay on loopback.
@@ -105,11 +106,12 @@ pub fn run(args: &Args) -> Result<()> {
     let mut ingest = Ingest::new(log, &format!("tcp:{addr}"), now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
     let started = Instant::now();
-    let end = read_to_end(
+    let end = link::read_to_end(
         &mut ingest,
-        &Bounds { deadline: None },
+        &Bounds::default(),
         stream,
         &format!("tcp:{addr}"),
+        |line| println!("{line}"),
     )?;
     let totals = ingest
         .finish(now_ms())
@@ -119,7 +121,7 @@ pub fn run(args: &Args) -> Result<()> {
         Err(_) => bail!("the simulated controller stopped unexpectedly"),
     };
     println!();
-    println!("{}", closing_line(&totals, end, &args.db));
+    println!("{}", link::closing_line(&totals, end, &args.db));
     println!(
         "streamed {} samples as {} frames in {:.1} s",
         stats.samples,
@@ -163,23 +165,6 @@ pub fn run(args: &Args) -> Result<()> {
     }
     if !report.trustworthy || end != End::Eof {
         bail!("the demo's own log did not pass its audit");
-    }
-    Ok(())
-}
-
-/// Removes a previous demo log (and its WAL files), so the demo starts fresh.
-fn fresh_log(db: &Path) -> Result<()> {
-    for suffix in ["", "-wal", "-shm"] {
-        let mut name = db.as_os_str().to_owned();
-        name.push(suffix);
-        match std::fs::remove_file(&name) {
-            Ok(()) => {}
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
-            Err(e) => {
-                return Err(e)
-                    .with_context(|| format!("cannot replace {}", PathBuf::from(name).display()));
-            }
-        }
     }
     Ok(())
 }
