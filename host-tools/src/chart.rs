@@ -23,15 +23,15 @@
 //! past [`MAX_MARKS_PER_RULE`] per rule (their counts stay exact). No
 //! missing or non-finite value reaches the drawing: a missing value breaks
 //! the line instead.
-use std::io::IsTerminal as _;
 use std::fs::File;
+use std::io::IsTerminal as _;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
+use crate::store::{Log, RunId, StoreError};
 use heatbound::alarm::{EventKind, RuleId};
 use heatbound::config::Mode;
 use heatbound::wire::{EventFrame, Frame, Hello, Summary};
-use crate::store::{Log, RunId, StoreError};
 use plotters::coord::Shift;
 use plotters::coord::types::RangedCoordf64;
 use plotters::element::DashedPathElement;

@@ -6,6 +6,7 @@
 //! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
+//! - [`link`]: capture file, stdin, serial or TCP read into ingest, reconnect and run bounds (`watch`, `demo`);
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
 //! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
@@ -20,6 +21,7 @@ pub mod audit;
 pub mod capture;
 pub mod chart;
 pub mod ingest;
+pub mod link;
 pub mod replay;
 pub mod rigfile;
 pub mod sil;

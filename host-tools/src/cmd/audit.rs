@@ -76,4 +76,3 @@ pub fn run(args: &Args) -> Result<()> {
     }
     Ok(())
 }
-

@@ -23,7 +23,7 @@ use heatbound_firmware_example::rig::{Rig, Scenario};
 use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::store::Log;
 
-use crate::cmd::watch::{Bounds, End, closing_line, now_ms, read_to_end};
+use heatbound_host::link::{Bounds, End, closing_line, now_ms, read_to_end};
 use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 
 /// Arguments of `heatbound demo`.

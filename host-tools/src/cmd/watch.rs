@@ -12,29 +12,19 @@
 //! SIGINT and SIGTERM end the run cleanly: the loop notices within one read
 //! timeout, commits and closes the run. A second signal exits at once; the
 //! batches already committed survive (WAL).
-use std::io::{ErrorKind, Read};
+use std::io::Read;
 use std::net::TcpStream;
 use std::path::PathBuf;
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
+use std::sync::atomic::Ordering;
+use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 
-use heatbound_host::ingest::{Ingest, LineStyle, Totals};
+use heatbound_host::ingest::{Ingest, LineStyle};
+use heatbound_host::link::{
+    Bounds, READ_TIMEOUT, STOP, closing_line, link_loop, now_ms, read_to_end,
+};
 use heatbound_host::store::{DEFAULT_DB, Log};
-
-/// How long one read waits before the loop checks the bounds, the signal
-/// flag and the batch age.
-const READ_TIMEOUT: Duration = Duration::from_millis(100);
-/// First reconnect delay; doubles up to [`BACKOFF_MAX`].
-const BACKOFF_MIN: Duration = Duration::from_millis(100);
-/// Longest reconnect delay.
-const BACKOFF_MAX: Duration = Duration::from_secs(5);
-/// Read buffer size.
-const CHUNK: usize = 64 * 1024;
-
-/// Set by the SIGINT/SIGTERM handler.
-static STOP: AtomicBool = AtomicBool::new(false);
 
 /// Arguments of `heatbound watch`.
 #[derive(clap::Args)]
@@ -64,41 +54,6 @@ pub struct Args {
     /// Do not print a line per frame (the closing summary is still printed).
     #[arg(long)]
     pub quiet: bool,
-}
-
-/// Host time, Unix milliseconds.
-pub(crate) fn now_ms() -> i64 {
-    SystemTime::now()
-        .duration_since(UNIX_EPOCH)
-        .map_or(0, |d| i64::try_from(d.as_millis()).unwrap_or(i64::MAX))
-}
-
-/// Why the read loop ended.
-#[derive(Clone, Copy, PartialEq, Eq)]
-pub(crate) enum End {
-    Eof,
-    Signal,
-    Duration,
-    Summaries,
-}
-
-/// The bounds of the run.
-pub(crate) struct Bounds {
-    pub(crate) deadline: Option<Instant>,
-}
-
-impl Bounds {
-    fn check(&self, ingest: &Ingest) -> Option<End> {
-        if ingest.limit_reached() {
-            Some(End::Summaries)
-        } else if STOP.load(Ordering::Relaxed) {
-            Some(End::Signal)
-        } else if self.deadline.is_some_and(|d| Instant::now() >= d) {
-            Some(End::Duration)
-        } else {
-            None
-        }
-    }
 }
 
 /// Runs the subcommand.
@@ -178,148 +133,4 @@ pub fn run(args: &Args) -> Result<()> {
         .with_context(|| format!("cannot close the run in {}", args.db.display()))?;
     println!("{}", closing_line(&totals, end, &args.db));
     Ok(())
-}
-
-fn print_line(line: &str) {
-    println!("{line}");
-}
-
-/// Feeds one read's bytes and commits a batch that is due.
-fn feed(ingest: &mut Ingest, bytes: &[u8], db: &str) -> Result<()> {
-    let now = now_ms();
-    ingest
-        .feed(bytes, now, print_line)
-        .and_then(|()| ingest.tick(now))
-        .with_context(|| format!("cannot log to {db}"))
-}
-
-/// Reads a capture (file or stdin) to its end.
-pub(crate) fn read_to_end(
-    ingest: &mut Ingest,
-    bounds: &Bounds,
-    mut r: impl Read,
-    name: &str,
-) -> Result<End> {
-    let db = ingest.log().path().display().to_string();
-    let mut buf = vec![0u8; CHUNK];
-    loop {
-        if let Some(end) = bounds.check(ingest) {
-            return Ok(end);
-        }
-        let n = match r.read(&mut buf) {
-            Ok(0) => return Ok(End::Eof),
-            Ok(n) => n,
-            Err(e) if e.kind() == ErrorKind::Interrupted => continue,
-            Err(e) => return Err(e).with_context(|| format!("{name}: cannot read")),
-        };
-        feed(ingest, buf.get(..n).unwrap_or(&[]), &db)?;
-    }
-}
-
-/// Reads a link that may drop: on EOF or an error, records an outage and
-/// reconnects with exponential backoff, in the same run.
-fn link_loop(
-    ingest: &mut Ingest,
-    bounds: &Bounds,
-    source: &str,
-    mut connect: impl FnMut() -> std::result::Result<Box<dyn Read>, String>,
-) -> Result<End> {
-    let db = ingest.log().path().display().to_string();
-    let mut buf = vec![0u8; CHUNK];
-    let mut backoff = BACKOFF_MIN;
-    let mut conn: Option<Box<dyn Read>> = None;
-    loop {
-        if let Some(end) = bounds.check(ingest) {
-            return Ok(end);
-        }
-        let Some(stream) = conn.as_mut() else {
-            match connect() {
-                Ok(c) => {
-                    conn = Some(c);
-                    backoff = BACKOFF_MIN;
-                    if ingest.totals().outages > 0 {
-                        eprintln!("heatbound watch: {source}: link back");
-                    }
-                    ingest
-                        .link_up(now_ms())
-                        .with_context(|| format!("cannot log to {db}"))?;
-                }
-                Err(reason) => {
-                    down(ingest, &reason, &db)?;
-                    wait(bounds, ingest, backoff);
-                    backoff = (backoff * 2).min(BACKOFF_MAX);
-                }
-            }
-            continue;
-        };
-        match stream.read(&mut buf) {
-            Ok(0) => {
-                conn = None;
-                down(ingest, &format!("{source}: connection closed"), &db)?;
-                wait(bounds, ingest, backoff);
-            }
-            Ok(n) => feed(ingest, buf.get(..n).unwrap_or(&[]), &db)?,
-            Err(e) if matches!(e.kind(), ErrorKind::WouldBlock | ErrorKind::TimedOut) => {
-                ingest
-                    .tick(now_ms())
-                    .with_context(|| format!("cannot log to {db}"))?;
-            }
-            Err(e) if e.kind() == ErrorKind::Interrupted => {}
-            Err(e) => {
-                conn = None;
-                down(ingest, &format!("{source}: read failed: {e}"), &db)?;
-                wait(bounds, ingest, backoff);
-            }
-        }
-    }
-}
-
-/// Records an outage (once per drop) and tells the operator.
-fn down(ingest: &mut Ingest, reason: &str, db: &str) -> Result<()> {
-    let first = ingest.totals().outages;
-    ingest
-        .link_down(now_ms(), reason)
-        .with_context(|| format!("cannot log to {db}"))?;
-    if ingest.totals().outages != first {
-        eprintln!("heatbound watch: link down ({reason}); reconnecting");
-    }
-    Ok(())
-}
-
-/// Sleeps `delay`, waking early for a signal or the deadline.
-fn wait(bounds: &Bounds, ingest: &Ingest, delay: Duration) {
-    let until = Instant::now() + delay;
-    while Instant::now() < until && bounds.check(ingest).is_none() {
-        std::thread::sleep(Duration::from_millis(20).min(delay));
-    }
-}
-
-pub(crate) fn closing_line(t: &Totals, end: End, db: &std::path::Path) -> String {
-    let why = match end {
-        End::Eof => "end of input",
-        End::Signal => "interrupted",
-        End::Duration => "--max-duration-s reached",
-        End::Summaries => "--max-summaries reached",
-    };
-    format!(
-        "run {} closed ({why}): {} frames ({} hellos, {} summaries, {} events); \
-         {} lost (crc {}, overlong {}, malformed {}, unknown_version {}); \
-         {} gaps ({} summaries missing), {} duplicates, {} restarts, {} outages; log {}",
-        t.run_id,
-        t.frames,
-        t.hellos,
-        t.summaries,
-        t.events,
-        t.losses(),
-        t.crc_errors,
-        t.overlong,
-        t.malformed,
-        t.unknown_version,
-        t.gaps,
-        t.missing_summaries,
-        t.duplicates,
-        t.restarts,
-        t.outages,
-        db.display()
-    )
 }
