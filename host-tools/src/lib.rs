@@ -3,6 +3,7 @@
 //!
 //! The engines, in the order data flows through them:
 //!
+//! - [`cycle_file`]: a cycle file (TOML) checked and evaluated by the core's gas engine (`cycle`);
 //! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
@@ -20,6 +21,7 @@
 pub mod audit;
 pub mod capture;
 pub mod chart;
+pub mod cycle_file;
 pub mod ingest;
 pub mod link;
 pub mod replay;
