@@ -42,7 +42,7 @@ pub enum LinkError {
         db: String,
         /// What the log said.
         #[source]
-        source: StoreError,
+        source: Box<StoreError>,
     },
     /// A capture (file or stdin) could not be read.
     #[error("{name}: cannot read")]
@@ -107,7 +107,7 @@ fn feed(ingest: &mut Ingest, bytes: &[u8], db: &str) -> Result<(), LinkError> {
         .and_then(|()| ingest.tick(now))
         .map_err(|source| LinkError::Log {
             db: db.to_string(),
-            source,
+            source: Box::new(source),
         })
 }
 
@@ -165,7 +165,7 @@ pub fn link_loop(
                     }
                     ingest.link_up(now_ms()).map_err(|source| LinkError::Log {
                         db: db.to_string(),
-                        source,
+                        source: Box::new(source),
                     })?;
                 }
                 Err(reason) => {
@@ -186,7 +186,7 @@ pub fn link_loop(
             Err(e) if matches!(e.kind(), ErrorKind::WouldBlock | ErrorKind::TimedOut) => {
                 ingest.tick(now_ms()).map_err(|source| LinkError::Log {
                     db: db.to_string(),
-                    source,
+                    source: Box::new(source),
                 })?;
             }
             Err(e) if e.kind() == ErrorKind::Interrupted => {}
@@ -206,7 +206,7 @@ fn down(ingest: &mut Ingest, reason: &str, db: &str) -> Result<(), LinkError> {
         .link_down(now_ms(), reason)
         .map_err(|source| LinkError::Log {
             db: db.to_string(),
-            source,
+            source: Box::new(source),
         })?;
     if ingest.totals().outages != first {
         eprintln!("heatbound watch: link down ({reason}); reconnecting");
