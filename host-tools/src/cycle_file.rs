@@ -1,25 +1,82 @@
-//! Cycle files: an ideal-gas reference cycle or path, read from TOML and
-//! evaluated with [`heatbound::gas`]; `heatbound cycle` prints the result.
+//! Cycle files for `heatbound cycle`: the step between a TOML file and the
+//! core's ideal-gas engine (`heatbound::gas`).
 //!
 //! Data flow: cycle file (TOML) --> raw serde structs (`Raw*`, shape only)
 //! --> checked core types (`Gas`, `State`, `Process`, `EndCondition`)
-//! --> `heatbound::gas::Cycle` --> [`Report`]: a table or JSON.
+//! --> `heatbound::gas::Cycle` --> [`Report`] (table or JSON).
 //!
-//! Errors name the file, the step (1-based) and the reason on one line.
+//! Errors ([`CycleFileError`]) name the part of the file (`[gas]`, `[start]`,
+//! the step, 1-based) and the reason on one line.
+
 use std::fmt::Write as _;
 use std::path::Path;
 
-use anyhow::{Context, Result};
-use heatbound::gas::{Cycle, CycleError, CycleSummary, EndCondition, Gas, Process, State, Step};
+use heatbound::gas::{
+    Cycle, CycleError, CycleSummary, EndCondition, Gas, GasError, Process, ProcessError, State,
+    StateError, Step,
+};
 use serde::{Deserialize, Serialize};
 
-/// The most steps a cycle file may have.
+/// The most steps a cycle file may hold.
 pub const MAX_STEPS: usize = 64;
+
+/// What is wrong, without where.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Problem {
+    /// The file itself: reading, TOML, keys and tables.
+    #[error(transparent)]
+    File(#[from] FileError),
+    /// The gas is not a physical gas.
+    #[error(transparent)]
+    Gas(#[from] GasError),
+    /// The start state is not a physical state.
+    #[error(transparent)]
+    State(#[from] StateError),
+    /// A process cannot reach its end condition.
+    #[error(transparent)]
+    Process(#[from] ProcessError),
+    /// The cycle as a whole cannot be summed up.
+    #[error(transparent)]
+    Cycle(CycleError),
+}
+
+/// A cycle file that cannot be evaluated: what is wrong and, when it is in
+/// one part of the file, where.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum CycleFileError {
+    /// A problem with the file as a whole.
+    #[error(transparent)]
+    Whole(#[from] Problem),
+    /// A problem in one part: `[gas]`, `[start]` or `step N (process)`.
+    #[error("{place}")]
+    At {
+        /// The part of the file.
+        place: String,
+        /// What is wrong there.
+        #[source]
+        source: Problem,
+    },
+}
+
+impl From<FileError> for CycleFileError {
+    fn from(e: FileError) -> Self {
+        Self::Whole(Problem::File(e))
+    }
+}
+
+fn at(place: impl Into<String>) -> impl FnOnce(Problem) -> CycleFileError {
+    let place = place.into();
+    move |source| CycleFileError::At { place, source }
+}
 
 /// What went wrong in a cycle file, short of a process that cannot reach
 /// its end condition (that is a `heatbound::gas` error).
 #[derive(Debug, thiserror::Error)]
-enum FileError {
+#[non_exhaustive]
+#[allow(missing_docs)] // each variant's message is its documentation
+pub enum FileError {
     #[error("cannot read the file")]
     Read(#[source] std::io::Error),
     #[error("malformed TOML{at}: {message}")]
@@ -109,7 +166,7 @@ struct CycleSpec {
     steps: Vec<(Process, EndCondition)>,
 }
 
-fn check_gas(raw: RawGas) -> Result<Gas> {
+fn check_gas(raw: RawGas) -> Result<Gas, Problem> {
     let gas = match (raw.gamma, raw.dof) {
         (Some(_), Some(_)) => return Err(FileError::GammaAndDof.into()),
         (None, None) => return Err(FileError::NeitherGammaNorDof.into()),
@@ -119,7 +176,7 @@ fn check_gas(raw: RawGas) -> Result<Gas> {
     Ok(gas)
 }
 
-fn check_start(gas: &Gas, raw: RawStart) -> Result<State> {
+fn check_start(gas: &Gas, raw: RawStart) -> Result<State, Problem> {
     let state = match (raw.pressure_pa, raw.volume_m3, raw.temperature_k) {
         (Some(p), Some(v), None) => State::from_p_v(gas, p, v)?,
         (Some(p), None, Some(t)) => State::from_p_t(gas, p, t)?,
@@ -183,7 +240,7 @@ fn check_step(raw: RawStep) -> Result<(Process, EndCondition), FileError> {
     }
 }
 
-fn parse(text: &str) -> Result<CycleSpec> {
+fn parse(text: &str) -> Result<CycleSpec, CycleFileError> {
     let table: toml::Table = toml::from_str(text).map_err(|e| {
         let at = e
             .span()
@@ -210,14 +267,14 @@ fn parse(text: &str) -> Result<CycleSpec> {
     }
     let gas = gas.ok_or(FileError::MissingTable("gas"))?;
     let gas = shape(gas)
-        .map_err(anyhow::Error::from)
+        .map_err(Problem::from)
         .and_then(check_gas)
-        .context("[gas]")?;
+        .map_err(at("[gas]"))?;
     let start = start.ok_or(FileError::MissingTable("start"))?;
     let start = shape(start)
-        .map_err(anyhow::Error::from)
+        .map_err(Problem::from)
         .and_then(|raw| check_start(&gas, raw))
-        .context("[start]")?;
+        .map_err(at("[start]"))?;
     let raw_steps = match steps {
         None => Vec::new(),
         Some(toml::Value::Array(a)) => a,
@@ -237,9 +294,11 @@ fn parse(text: &str) -> Result<CycleSpec> {
                 Some(name) => format!("step {} ({name})", i + 1),
                 None => format!("step {}", i + 1),
             };
-            shape::<RawStep>(value).and_then(check_step).context(label)
+            shape::<RawStep>(value)
+                .and_then(check_step)
+                .map_err(|e| at(label)(Problem::File(e)))
         })
-        .collect::<Result<Vec<_>>>()?;
+        .collect::<Result<Vec<_>, _>>()?;
     Ok(CycleSpec { gas, start, steps })
 }
 
@@ -253,28 +312,28 @@ pub struct Report {
     summary: CycleSummary,
 }
 
-/// Reads, checks and evaluates the cycle file at `path`.
-pub fn evaluate_file(path: &Path) -> Result<Report> {
+/// Reads, checks and evaluates a cycle file.
+pub fn evaluate_file(path: &Path) -> Result<Report, CycleFileError> {
     let text = std::fs::read_to_string(path).map_err(FileError::Read)?;
     evaluate(&parse(&text)?)
 }
 
-fn evaluate(spec: &CycleSpec) -> Result<Report> {
+fn evaluate(spec: &CycleSpec) -> Result<Report, CycleFileError> {
     let mut cycle: Cycle<MAX_STEPS> = Cycle::new(spec.gas, spec.start);
     for (i, (process, end)) in spec.steps.iter().enumerate() {
         cycle
             .push(*process, *end)
             .map_err(|e| match e {
-                CycleError::Process(e) => anyhow::Error::from(e),
-                other => anyhow::Error::from(other),
+                CycleError::Process(e) => Problem::Process(e),
+                other => Problem::Cycle(other),
             })
-            .with_context(|| format!("step {} ({})", i + 1, process.name()))?;
+            .map_err(at(format!("step {} ({})", i + 1, process.name())))?;
     }
     Ok(Report {
         gas: spec.gas,
         start: spec.start,
         steps: cycle.steps().to_vec(),
-        summary: cycle.summary()?,
+        summary: cycle.summary().map_err(Problem::Cycle)?,
     })
 }
 
@@ -301,8 +360,7 @@ struct StepJson {
 }
 
 #[derive(Serialize)]
-/// The report as `heatbound cycle --json` prints it (DESIGN §5).
-pub struct ReportJson {
+struct ReportJson {
     closed: bool,
     steps: Vec<StepJson>,
     net_work_j: f64,
@@ -350,8 +408,8 @@ fn kelvin(x: Option<f64>, why_not: &str) -> String {
 }
 
 impl Report {
-    /// The report in its JSON shape.
-    pub fn json(&self) -> ReportJson {
+    /// The report as JSON-ready data.
+    pub fn json(&self) -> impl Serialize + use<> {
         let s = &self.summary;
         ReportJson {
             closed: s.closed,
@@ -384,7 +442,7 @@ impl Report {
         }
     }
 
-    /// The report as a readable table, headed by `file`.
+    /// The report as a table for the terminal, headed by the file's name.
     pub fn table(&self, file: &str) -> String {
         let s = &self.summary;
         let mut out = String::new();

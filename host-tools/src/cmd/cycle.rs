@@ -1,5 +1,10 @@
-//! `heatbound cycle`: ideal-gas reference cycles and paths, evaluated by
-//! [`heatbound_host::cycle_file`] and printed as a table or JSON.
+//! `heatbound cycle`: ideal-gas reference cycles and paths.
+//!
+//!
+//! Parses its arguments, evaluates the file with
+//! [`heatbound_host::cycle_file`] and prints a table or JSON; errors name the
+//! file, the part of it and the reason on one line.
+
 use std::path::PathBuf;
 
 use anyhow::{Context, Result};

@@ -13,7 +13,7 @@
 //! readings, and `beyond_carnot` is raised.
 use std::io::Write as _;
 use std::net::{Ipv4Addr, TcpListener, TcpStream};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::thread;
 use std::time::{Duration, Instant};
 
@@ -29,9 +29,10 @@ use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
 #[command(
-    after_help = "The demo logs its run to --db: a new file, or a new run in an existing \
-heatbound log (any other file is refused and left untouched). It ends with the audit of what \
-it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: heatbound-demo.png)."
+    after_help = "The demo starts a fresh log at --db: an existing heatbound log of that \
+name is replaced, any other file is refused and left untouched. It ends with the audit of \
+what it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: \
+heatbound-demo.png)."
 )]
 pub struct Args {
     /// The log database the demo writes.
@@ -81,6 +82,7 @@ pub fn run(args: &Args) -> Result<()> {
         args.speed, options.rate_hz
     );
 
+    fresh_log(&args.db)?;
     let log = Log::open(&args.db).context("cannot open the demo log")?;
 
     // Listening sockets stay on loopback.
@@ -165,6 +167,24 @@ pub fn run(args: &Args) -> Result<()> {
     }
     if !report.trustworthy || end != End::Eof {
         bail!("the demo's own log did not pass its audit");
+    }
+    Ok(())
+}
+
+/// Removes a previous heatbound log (and its WAL files), so the demo starts
+/// fresh; [`link::check_log_target`] has refused anything else.
+fn fresh_log(db: &Path) -> Result<()> {
+    for suffix in ["", "-wal", "-shm"] {
+        let mut name = db.as_os_str().to_owned();
+        name.push(suffix);
+        match std::fs::remove_file(&name) {
+            Ok(()) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
+            Err(e) => {
+                return Err(e)
+                    .with_context(|| format!("cannot replace {}", PathBuf::from(name).display()));
+            }
+        }
     }
     Ok(())
 }
