@@ -49,6 +49,9 @@ use heatbound::config::{RigConfig, Uncertainty};
 use heatbound::monitor::{AlarmFigures, Faults, FigureSettings, Metrics};
 use heatbound::wire::{DecoderStats, Frame, Hello, Link, LinkTracker, Summary};
 use serde::Serialize;
+use std::collections::HashMap;
+
+use crate::store::{LinkErrorKind, Log, RunId, StoreError};
 
 /// Relative tolerance of the recomputation, against the larger of the two
 /// values and the magnitude of the terms that form the figure.
@@ -99,6 +102,58 @@ pub struct Input<'a> {
     pub link_errors: &'a [LinkError],
 }
 
+/// What a log adds to its frames: how the run ended, rows that cannot be
+/// frames, and what the logger recorded besides the frames. A raw capture
+/// has none of these ([`LogFacts::default`]).
+#[derive(Clone, Debug, Default)]
+pub struct LogFacts {
+    /// Whether the writer closed the run (`runs.ended_host_ms` set);
+    /// `None` for a raw capture.
+    pub closed: Option<bool>,
+    /// Rows no frame can be, or counts no logger writes (the log was
+    /// altered), one readable line each.
+    pub tampered: Vec<String>,
+    /// Indices into [`Input::frames`] of summaries that stand in for a
+    /// tampered row: only their sequence number and device time are used.
+    pub placeholders: Vec<usize>,
+    /// Summaries the logger recognised as replayed and did not store.
+    pub replayed: u64,
+}
+
+/// Why a log could not be audited at all.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum LogAuditError {
+    /// The log could not be read.
+    #[error(transparent)]
+    Store(#[from] StoreError),
+    /// The run asked for is not in the log.
+    #[error("{path}: no run {run} in the log")]
+    NoSuchRun {
+        /// The database file.
+        path: String,
+        /// The run asked for.
+        run: RunId,
+    },
+    /// The log holds no runs.
+    #[error("{path}: the log holds no runs")]
+    NoRuns {
+        /// The database file.
+        path: String,
+    },
+}
+
+/// Where a record that was never closed ends.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct RecordEnd {
+    /// Sequence number of the last summary, if any.
+    pub seq: Option<u16>,
+    /// Device time of the last frame with one, s.
+    pub t_s: Option<f64>,
+    /// Host receive time of the last frame, Unix ms.
+    pub host_ms: Option<i64>,
+}
+
 /// The audit's verdict and its evidence.
 #[derive(Clone, Debug, Serialize)]
 pub struct Report {
@@ -147,6 +202,21 @@ pub struct Integrity {
     pub unannounced_restarts: u64,
     /// Link errors the logger recorded.
     pub link_errors: u64,
+    /// Summaries sent again: sequence number and device time went back,
+    /// with no Hello, to a summary already seen since the last Hello.
+    /// Neither missing nor a restart; not checked again.
+    pub replayed: u64,
+    /// Event frames inside replayed sections (not checked again).
+    pub replayed_events: u64,
+    /// Summaries whose device time does not follow the sequence (time went
+    /// back or stood still, or jumped far beyond the summary spacing).
+    pub time_inconsistencies: u64,
+    /// Rows of the log no frame can be, or counts no logger writes.
+    pub tampered_rows: u64,
+    /// Whether the writer closed the run; `None` for a raw capture.
+    pub run_closed: Option<bool>,
+    /// Where the record ends, when the run was never closed.
+    pub record_ends_early: Option<RecordEnd>,
     /// A Hello arrived before the first summary.
     pub hello_before_first_summary: bool,
     /// Whether the latest Hello's config digest matches the configuration
@@ -371,6 +441,153 @@ fn seconds(t_ms: u32) -> f64 {
     f64::from(t_ms) / 1000.0
 }
 
+/// `host_ms` as `YYYY-MM-DD HH:MM:SS.mmm UTC`.
+fn utc(host_ms: i64) -> String {
+    // Days to civil date (proleptic Gregorian), the well-known
+    // era-of-400-years conversion (common practice).
+    let days = host_ms.div_euclid(86_400_000);
+    let ms = host_ms.rem_euclid(86_400_000);
+    let z = days.saturating_add(719_468);
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe.saturating_add(era.saturating_mul(400)) + i64::from(m <= 2);
+    format!(
+        "{y:04}-{m:02}-{d:02} {:02}:{:02}:{:02}.{:03} UTC",
+        ms / 3_600_000,
+        ms / 60_000 % 60,
+        ms / 1000 % 60,
+        ms % 1000
+    )
+}
+
+/// Audits run `run` (the latest if `None`) of `log` against `config`.
+///
+/// The logger stores the decoder's losses as `link_errors` rows; they
+/// become the audit's decoder counts (summed with checked arithmetic: a
+/// sum that overflows is a tampered log). Gap, duplicate and restart rows
+/// are not counted again: the audit re-derives them from the stored
+/// frames. Replay rows count replayed summaries. Each outage is a link
+/// error. A row no frame can be is a failed check, not an error; only a
+/// log that cannot be read at all is an `Err`.
+pub fn audit_log(
+    log: &Log,
+    run: Option<RunId>,
+    config: &RigConfig,
+) -> Result<Report, LogAuditError> {
+    let name = log.path().display().to_string();
+    let runs = log.runs()?;
+    let info = match run {
+        Some(id) => runs
+            .iter()
+            .find(|r| r.id == id)
+            .ok_or(LogAuditError::NoSuchRun { path: name, run: id })?,
+        None => runs.last().ok_or(LogAuditError::NoRuns { path: name })?,
+    };
+    let id = info.id;
+    let mut facts = LogFacts {
+        closed: Some(info.ended_host_ms.is_some()),
+        ..LogFacts::default()
+    };
+    let mut frames = Vec::new();
+    for stored in log.frames(id)? {
+        match stored {
+            Ok(s) => frames.push(Received {
+                host_ms: Some(s.host_ms),
+                frame: s.frame,
+            }),
+            Err(StoreError::ImpossibleValue {
+                table,
+                ord,
+                seq,
+                t_ms,
+                column,
+                value,
+                why,
+                ..
+            }) => {
+                let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
+                facts
+                    .tampered
+                    .push(format!("{table} row {ord}{at}: {column} = {value}: {why}"));
+                if let (Some(seq), Some(t_ms)) = (seq, t_ms) {
+                    facts.placeholders.push(frames.len());
+                    frames.push(Received {
+                        host_ms: None,
+                        frame: Frame::Summary(Summary {
+                            seq,
+                            t_ms,
+                            ..Summary::default()
+                        }),
+                    });
+                }
+            }
+            Err(StoreError::BadRow {
+                table, ord, reason, ..
+            }) => facts.tampered.push(format!("{table} row {ord}: {reason}")),
+            Err(e) => return Err(e.into()),
+        }
+    }
+    let mut stats = DecoderStats::default();
+    let mut overflowed: Vec<&'static str> = Vec::new();
+    for row in log.link_error_rows(id)? {
+        let row = match row {
+            Ok(row) => row,
+            Err(StoreError::BadRow {
+                table, ord, reason, ..
+            }) => {
+                facts.tampered.push(format!("{table} row {ord}: {reason}"));
+                continue;
+            }
+            Err(e) => return Err(e.into()),
+        };
+        let slot = match row.kind {
+            LinkErrorKind::Crc => &mut stats.crc_errors,
+            LinkErrorKind::Overlong => &mut stats.overlong,
+            LinkErrorKind::Malformed => &mut stats.malformed,
+            LinkErrorKind::UnknownVersion => &mut stats.unknown_version,
+            LinkErrorKind::Replay => &mut facts.replayed,
+            _ => continue,
+        };
+        match slot.checked_add(row.count) {
+            Some(n) => *slot = n,
+            None => {
+                *slot = u64::MAX;
+                if !overflowed.contains(&row.kind.as_str()) {
+                    overflowed.push(row.kind.as_str());
+                }
+            }
+        }
+    }
+    for kind in overflowed {
+        facts.tampered.push(format!(
+            "link_errors: the {kind} counts add up to more than 2^64, which no logger writes"
+        ));
+    }
+    stats.frames = u64::try_from(frames.len()).unwrap_or(u64::MAX);
+    let link_errors: Vec<LinkError> = log
+        .outages(id)?
+        .into_iter()
+        .map(|o| LinkError {
+            host_ms: Some(o.started_host_ms),
+            message: format!("link down: {}", o.reason),
+        })
+        .collect();
+    Ok(audit_with(
+        &Input {
+            frames: &frames,
+            decoder: stats,
+            link_errors: &link_errors,
+        },
+        &facts,
+        config,
+    ))
+}
+
 /// Audits `input` against `config` (the defaults, or the user's `rig.toml`).
 ///
 /// ```
@@ -382,11 +599,21 @@ fn seconds(t_ms: u32) -> f64 {
 /// assert!(!report.trustworthy); // nothing received, nothing to trust
 /// ```
 pub fn audit(input: &Input<'_>, config: &RigConfig) -> Report {
+    audit_with(input, &LogFacts::default(), config)
+}
+
+/// [`audit`] with what a log adds to its frames.
+pub fn audit_with(input: &Input<'_>, facts: &LogFacts, config: &RigConfig) -> Report {
     let mut auditor = Auditor::new(config);
-    for r in input.frames {
-        auditor.frame(&r.frame);
+    let mut placeholders = facts.placeholders.iter().copied().peekable();
+    for (i, r) in input.frames.iter().enumerate() {
+        let placeholder = placeholders.next_if_eq(&i).is_some();
+        auditor.frame(&r.frame, !placeholder);
+        if r.host_ms.is_some() {
+            auditor.last_host_ms = r.host_ms;
+        }
     }
-    auditor.finish(input)
+    auditor.finish(input, facts)
 }
 
 struct Auditor<'c> {
@@ -407,6 +634,19 @@ struct Auditor<'c> {
     period_ms: i64,
     /// Start of the current run of second-law violations.
     violation_since: Option<i64>,
+    /// Device time of each sequence number seen since the last Hello (the
+    /// current device session), to tell a replay from a restart.
+    session: HashMap<u16, u32>,
+    /// Sequence number of the latest summary taken (not replayed).
+    last_seq: Option<u16>,
+    /// The previous summary was a replay.
+    in_replay: bool,
+    /// Shortest consistent in-order summary spacing, ms.
+    min_step_ms: Option<i64>,
+    /// Host time of the latest frame that has one.
+    last_host_ms: Option<i64>,
+    /// Raw device time of the latest frame that has one.
+    last_t_ms: Option<u32>,
 }
 
 impl<'c> Auditor<'c> {
@@ -435,13 +675,48 @@ impl<'c> Auditor<'c> {
             prev_t: None,
             period_ms: 1000,
             violation_since: None,
+            session: HashMap::new(),
+            last_seq: None,
+            in_replay: false,
+            min_step_ms: None,
+            last_host_ms: None,
+            last_t_ms: None,
         }
     }
 
-    fn frame(&mut self, frame: &Frame) {
+    /// Whether summary `s` replays one already seen in this device session:
+    /// the sequence went back (or stayed, inside a replay) with no Hello, to
+    /// a number seen since the last Hello with the same device time.
+    fn is_replay(&self, s: &Summary) -> bool {
+        let Some(last) = self.last_seq else {
+            return false;
+        };
+        let d = s.seq.wrapping_sub(last);
+        let back = d >= 0x8000 || (d == 0 && self.in_replay);
+        back && self.session.get(&s.seq) == Some(&s.t_ms)
+    }
+
+    /// One frame; `trusted` is false for a placeholder of a tampered row
+    /// (only its sequence number and device time are used).
+    fn frame(&mut self, frame: &Frame, trusted: bool) {
+        match frame {
+            Frame::Summary(s) if self.is_replay(s) => {
+                self.integrity.replayed += 1;
+                self.in_replay = true;
+                self.after_hello = false;
+                return;
+            }
+            Frame::Event(_) if self.in_replay => {
+                self.integrity.replayed_events += 1;
+                return;
+            }
+            _ => {}
+        }
+        self.in_replay = false;
         let link = self.link.observe(frame);
         match frame {
             Frame::Hello(h) => {
+                self.session.clear();
                 self.integrity.hellos += 1;
                 let eff = effective_config(self.base, h);
                 self.integrity.config_digest_matches =
@@ -454,6 +729,7 @@ impl<'c> Auditor<'c> {
             }
             Frame::Event(e) => {
                 self.integrity.events += 1;
+                self.last_t_ms = Some(e.event.t_ms);
                 self.event(e.event);
                 self.after_hello = false;
             }
@@ -462,7 +738,14 @@ impl<'c> Auditor<'c> {
                 if self.integrity.summaries == 1 {
                     self.integrity.hello_before_first_summary = self.hello.is_some();
                 }
-                self.summary(s, link);
+                if matches!(link, Link::Restart) {
+                    // A new device session.
+                    self.session.clear();
+                }
+                self.session.insert(s.seq, s.t_ms);
+                self.last_seq = Some(s.seq);
+                self.last_t_ms = Some(s.t_ms);
+                self.summary(s, link, trusted);
                 self.after_hello = false;
             }
         }
@@ -471,7 +754,9 @@ impl<'c> Auditor<'c> {
     /// The event's time on the audit's unwrapped timeline.
     fn unwrap_time(&self, t_ms: u32) -> i64 {
         match self.prev_t {
-            Some((prev, raw)) => prev + i64::from(t_ms.wrapping_sub(raw) as i32),
+            // The wrapping difference read as signed: the shorter way
+            // round the 2^32 ms clock.
+            Some((prev, raw)) => prev.saturating_add(i64::from(t_ms.wrapping_sub(raw).cast_signed())),
             None => i64::from(t_ms),
         }
     }
@@ -490,7 +775,7 @@ impl<'c> Auditor<'c> {
         }
     }
 
-    fn summary(&mut self, s: &Summary, link: Link) {
+    fn summary(&mut self, s: &Summary, link: Link, trusted: bool) {
         // The timeline and the continuity with the previous summary.
         let (t, continuous) = match (link, self.prev_t) {
             (Link::Restart, Some((prev, _))) => {
@@ -504,14 +789,57 @@ impl<'c> Auditor<'c> {
             (_, Some(_)) => (self.unwrap_time(s.t_ms), false),
             (_, None) => (i64::from(s.t_ms), false),
         };
-        if continuous && let Some((prev, _)) = self.prev_t {
-            self.period_ms = self.period_ms.max(t - prev);
+        // Device time must follow the sequence: forward, by about the
+        // summary spacing per sequence step.
+        let steps = match link {
+            Link::InOrder => Some(1),
+            Link::Gap { missing } => Some(i64::from(missing) + 1),
+            _ => None,
+        };
+        let mut advance = true;
+        if let (Some(steps), Some((prev, prev_raw))) = (steps, self.prev_t) {
+            let step = t.saturating_sub(prev);
+            let jump = self
+                .min_step_ms
+                .is_some_and(|min| step > min.saturating_mul(4).saturating_mul(steps));
+            if step <= 0 || jump {
+                self.integrity.time_inconsistencies += 1;
+                let what = if step <= 0 {
+                    // Keep the timeline on the earlier, consistent time.
+                    advance = false;
+                    "device time went back or stood still"
+                } else {
+                    "device time jumped far beyond the summary spacing"
+                };
+                list(
+                    &mut self.integrity.problems,
+                    format!(
+                        "summaries row seq {}: t_ms = {} ({:.3} s) after {:.3} s at the previous                          summary: {what} while the sequence went on",
+                        s.seq,
+                        s.t_ms,
+                        seconds(s.t_ms),
+                        seconds(prev_raw)
+                    ),
+                );
+            } else {
+                if continuous {
+                    self.period_ms = self.period_ms.max(step);
+                }
+                if steps == 1 {
+                    self.min_step_ms = Some(self.min_step_ms.map_or(step, |m| m.min(step)));
+                }
+            }
         }
         if matches!(link, Link::Restart) {
             self.tracks = Default::default();
             self.violation_since = None;
         }
-        self.prev_t = Some((t, s.t_ms));
+        if advance {
+            self.prev_t = Some((t, s.t_ms));
+        }
+        if !trusted {
+            return;
+        }
 
         let m = self.recompute(s);
         self.check_second_law(s, &m, t);
@@ -563,15 +891,22 @@ impl<'c> Auditor<'c> {
         for (name, device, host, scale) in figures {
             rc.figures += 1;
             let (dv, hv) = (f(device), f(host));
+            // A tolerance is only ever computed from finite values: a
+            // non-finite figure (or term) is a mismatch, never a free pass.
+            let finite = |x: Option<f64>| x.is_none_or(f64::is_finite);
             let tolerance = match (dv, hv) {
-                (Some(a), Some(b)) => REL_TOL * a.abs().max(b.abs()).max(scale) + ABS_TOL,
+                (Some(a), Some(b)) if a.is_finite() && b.is_finite() && scale.is_finite() => {
+                    REL_TOL * a.abs().max(b.abs()).max(scale) + ABS_TOL
+                }
                 _ => ABS_TOL,
             };
-            let agree = match (dv, hv) {
-                (Some(a), Some(b)) => (a - b).abs() <= tolerance,
-                (None, None) => true,
-                _ => false,
-            };
+            let agree = finite(dv)
+                && finite(hv)
+                && match (dv, hv) {
+                    (Some(a), Some(b)) => (a - b).abs() <= tolerance,
+                    (None, None) => true,
+                    _ => false,
+                };
             if !agree {
                 rc.mismatches += 1;
                 list(
@@ -580,8 +915,8 @@ impl<'c> Auditor<'c> {
                         seq: s.seq,
                         t_s: seconds(s.t_ms),
                         figure: name,
-                        device: dv,
-                        recomputed: hv,
+                        device: dv.filter(|x| x.is_finite()),
+                        recomputed: hv.filter(|x| x.is_finite()),
                         tolerance,
                     },
                 );
@@ -779,7 +1114,7 @@ impl<'c> Auditor<'c> {
         }
     }
 
-    fn finish(mut self, input: &Input<'_>) -> Report {
+    fn finish(mut self, input: &Input<'_>, facts: &LogFacts) -> Report {
         // Raised events after the last summary: judge on what was seen.
         let period = self.period_ms;
         for rule in CHECKED {
@@ -818,18 +1153,63 @@ impl<'c> Auditor<'c> {
         g.bytes_discarded = d.bytes_discarded;
         g.missing_summaries = link.missing_summaries;
         g.duplicates = link.duplicates;
-        g.link_errors = input.link_errors.len() as u64;
-        let mut problems = Vec::new();
+        g.link_errors = u64::try_from(input.link_errors.len()).unwrap_or(u64::MAX);
+        g.replayed = g.replayed.saturating_add(facts.replayed);
+        g.tampered_rows = u64::try_from(facts.tampered.len()).unwrap_or(u64::MAX);
+        g.run_closed = facts.closed;
+        // Found while reading the frames (time against the sequence).
+        let mut problems = core::mem::take(&mut g.problems);
+        for t in facts.tampered.iter().take(MAX_LISTED) {
+            problems.push(format!("tampered log: {t}"));
+        }
+        if facts.tampered.len() > MAX_LISTED {
+            problems.push(format!(
+                "tampered log: {} rows in all",
+                facts.tampered.len()
+            ));
+        }
+        if g.time_inconsistencies > MAX_LISTED as u64 {
+            problems.push(format!(
+                "{} summaries whose device time does not follow the sequence",
+                g.time_inconsistencies
+            ));
+        }
+        if facts.closed == Some(false) {
+            let end = RecordEnd {
+                seq: self.last_seq,
+                t_s: self.last_t_ms.map(seconds),
+                host_ms: self.last_host_ms,
+            };
+            g.record_ends_early = Some(end);
+            problems.push(format!(
+                "the run was never closed (the writer stopped, or is still running): the \
+                 record ends early, at {}",
+                match (end.seq, end.t_s, end.host_ms) {
+                    (None, None, None) => "its start: no frame was logged".to_owned(),
+                    (seq, t, host) => format!(
+                        "seq {}, device time {}, host time {}",
+                        seq.map_or_else(|| "n/a".to_owned(), |s| s.to_string()),
+                        t.map_or_else(|| "n/a".to_owned(), |t| format!("{t:.3} s")),
+                        host.map_or_else(|| "n/a".to_owned(), utc)
+                    ),
+                }
+            ));
+        }
         if g.summaries == 0 {
             problems.push("no summaries: nothing to check".to_owned());
         } else if !g.hello_before_first_summary {
             problems.push("no Hello before the first summary: its settings are unknown".to_owned());
         }
-        if d.losses() > 0 {
+        let losses = d
+            .crc_errors
+            .saturating_add(d.overlong)
+            .saturating_add(d.malformed)
+            .saturating_add(d.unknown_version);
+        if losses > 0 {
             problems.push(format!(
                 "{} frames lost ({} CRC, {} overlong, {} malformed, {} unknown version), \
                  {} bytes discarded",
-                d.losses(),
+                losses,
                 d.crc_errors,
                 d.overlong,
                 d.malformed,
@@ -845,6 +1225,18 @@ impl<'c> Auditor<'c> {
         }
         if g.duplicates > 0 {
             problems.push(format!("{} duplicate summaries", g.duplicates));
+        }
+        if g.replayed > 0 {
+            problems.push(format!(
+                "{} summaries replayed (sent again with their sequence numbers and device \
+                 times, no Hello before them){}: not checked again",
+                g.replayed,
+                if g.replayed_events > 0 {
+                    format!(", with {} events", g.replayed_events)
+                } else {
+                    String::new()
+                }
+            ));
         }
         if g.unannounced_restarts > 0 {
             problems.push(format!(
@@ -865,8 +1257,9 @@ impl<'c> Auditor<'c> {
         let rc = &mut self.recomputation;
         rc.pass = rc.mismatches == 0 && rc.summaries > 0;
         let sl = &mut self.second_law;
-        sl.violation_fraction =
-            (sl.evaluable > 0).then(|| sl.violations as f64 / sl.evaluable as f64);
+        #[allow(clippy::cast_precision_loss)] // a fraction: 2^53 summaries are far off
+        let fraction = |a: u64, b: u64| a as f64 / b as f64;
+        sl.violation_fraction = (sl.evaluable > 0).then(|| fraction(sl.violations, sl.evaluable));
         sl.pass = sl.unflagged == 0;
         let a = &mut self.alarms;
         a.pass =
@@ -904,7 +1297,7 @@ impl Report {
             o,
             "integrity           {}  {} frames ({} hello, {} summary, {} event); lost: {} CRC, \
              {} overlong, {} malformed, {} unknown version; {} missing, {} duplicate, \
-             {} restarts ({} unannounced); {} link errors",
+             {} restarts ({} unannounced), {} replayed; {} link errors",
             verdict(g.pass),
             g.frames,
             g.hellos,
@@ -918,6 +1311,7 @@ impl Report {
             g.duplicates,
             g.restarts,
             g.unannounced_restarts,
+            g.replayed,
             g.link_errors
         );
         for p in &g.problems {

@@ -132,6 +132,10 @@ pub const MIGRATIONS: &[&str] = &[
         reason          TEXT NOT NULL
     );
     CREATE INDEX outages_run ON outages(run_id, started_host_ms);",
+    // 2: `link_errors.kind` may be 'replay' (summaries sent again, not
+    // stored); the view lists them.
+    "CREATE VIEW replays AS
+        SELECT run_id, ord, host_ms, count, detail FROM link_errors WHERE kind = 'replay';",
 ];
 
 /// What went wrong with the log.
@@ -170,6 +174,30 @@ pub enum StoreError {
         found: i64,
         /// [`SCHEMA_VERSION`].
         known: i64,
+    },
+    /// A stored value no frame can hold: not finite, outside the f32 range,
+    /// not an f32 at all, or undefined bits (the log was altered).
+    #[error("{path}: run {run_id}, {table} row {ord}{}: {column} = {value}: {why}",
+        seq.map_or_else(String::new, |s| format!(" (seq {s})")))]
+    ImpossibleValue {
+        /// The database file.
+        path: PathBuf,
+        /// The run.
+        run_id: i64,
+        /// The table.
+        table: &'static str,
+        /// The row's `ord`.
+        ord: i64,
+        /// The summary's sequence number, when it could be read.
+        seq: Option<u16>,
+        /// The summary's device time, ms, when it could be read.
+        t_ms: Option<u32>,
+        /// The column.
+        column: &'static str,
+        /// The stored value, as text.
+        value: String,
+        /// Why no frame can hold it.
+        why: &'static str,
     },
     /// A stored row cannot be turned back into a frame.
     #[error("{path}: run {run_id}, {table} row {ord}: {reason}")]
@@ -252,11 +280,15 @@ pub enum LinkErrorKind {
     Duplicate,
     /// The sequence went back: the controller restarted.
     Restart,
+    /// Summaries sent again (sequence and device time back to values
+    /// already seen since the last Hello, no Hello between): not stored;
+    /// `count` = how many summaries. Schema version 2.
+    Replay,
 }
 
 impl LinkErrorKind {
     /// Every kind.
-    pub const ALL: [LinkErrorKind; 7] = [
+    pub const ALL: [LinkErrorKind; 8] = [
         LinkErrorKind::Crc,
         LinkErrorKind::Overlong,
         LinkErrorKind::Malformed,
@@ -264,6 +296,7 @@ impl LinkErrorKind {
         LinkErrorKind::Gap,
         LinkErrorKind::Duplicate,
         LinkErrorKind::Restart,
+        LinkErrorKind::Replay,
     ];
 
     /// The text stored in `link_errors.kind`.
@@ -276,6 +309,7 @@ impl LinkErrorKind {
             LinkErrorKind::Gap => "gap",
             LinkErrorKind::Duplicate => "duplicate",
             LinkErrorKind::Restart => "restart",
+            LinkErrorKind::Replay => "replay",
         }
     }
 
@@ -395,8 +429,10 @@ impl Log {
         Ok(log)
     }
 
-    /// Opens an existing log read-only. Refuses a file that is not a log of
-    /// this schema version (newer, older or empty).
+    /// Opens an existing log read-only: nothing is written, and no journal
+    /// file is created beside a log its writer closed. Refuses a file that
+    /// is not a log (empty, unmigrated) or is of a newer schema; an older
+    /// schema reads as it is (every change is additive).
     pub fn open_read(path: &Path) -> Result<Log, StoreError> {
         let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
         let conn = Connection::open_with_flags(path, flags)
@@ -413,7 +449,7 @@ impl Log {
                 known: SCHEMA_VERSION,
             });
         }
-        if found != SCHEMA_VERSION {
+        if found < 1 {
             return Err(StoreError::NotALog {
                 path: log.path.clone(),
                 found,
@@ -792,7 +828,20 @@ impl Log {
         let host_ms: i64 = r.get(1).map_err(|e| self.bad(run, "frames", ord, e))?;
         let frame = match kind {
             0 => Frame::Hello(self.hello_row(run, ord, r)?),
-            1 => Frame::Summary(summary_row(r).map_err(|e| self.bad(run, "summaries", ord, e))?),
+            1 => Frame::Summary(summary_row(r).map_err(|e| match e {
+                RowError::Sql(e) => self.bad(run, "summaries", ord, e),
+                RowError::Value { column, value, why } => StoreError::ImpossibleValue {
+                    path: self.path.clone(),
+                    run_id: run,
+                    table: "summaries",
+                    ord,
+                    seq: r.get(3).ok(),
+                    t_ms: r.get(4).ok(),
+                    column,
+                    value,
+                    why,
+                },
+            })?),
             _ => Frame::Event(self.event_row(run, ord, r)?),
         };
         Ok(Stored { host_ms, frame })
@@ -810,7 +859,38 @@ impl Log {
 
     fn hello_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Hello, StoreError> {
         let bad = |e: &dyn std::fmt::Display| self.bad(run, "hellos", ord, e);
-        let get_f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
+        const REALS: [&str; 7] = [
+            "coverage_factor",
+            "ambient_k",
+            "u_hot_k",
+            "u_cold_k",
+            "u_heat_in_rel",
+            "u_work_rel",
+            "u_heat_out_rel",
+        ];
+        let impossible = |i: usize, e: RowError| match e {
+            RowError::Sql(e) => bad(&e),
+            RowError::Value { value, why, .. } => StoreError::ImpossibleValue {
+                path: self.path.clone(),
+                run_id: run,
+                table: "hellos",
+                ord,
+                seq: None,
+                t_ms: None,
+                column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
+                value,
+                why,
+            },
+        };
+        let checked = |i: usize| -> Result<Option<f32>, StoreError> {
+            r.get::<_, Option<f64>>(i)
+                .map_err(|e| bad(&e))?
+                .map(|x| exact_f32("", x).map_err(|e| impossible(i, e)))
+                .transpose()
+        };
+        let need = |i: usize| -> Result<f32, StoreError> {
+            checked(i)?.ok_or_else(|| bad(&format!("{} is NULL", REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"))))
+        };
         let rig: String = r.get(4).map_err(|e| bad(&e))?;
         let fw: String = r.get(5).map_err(|e| bad(&e))?;
         let mode: String = r.get(8).map_err(|e| bad(&e))?;
@@ -820,16 +900,15 @@ impl Log {
         let firmware_version =
             parse_version(&fw).ok_or_else(|| bad(&format!("bad firmware_version {fw:?}")))?;
         let mode = parse_mode(&mode).ok_or_else(|| bad(&format!("bad mode {mode:?}")))?;
-        let u = (|| {
-            Ok::<_, rusqlite::Error>(Uncertainties {
-                hot_k: get_f(11)?,
-                cold_k: get_f(12)?,
-                heat_in_rel: get_f(13)?,
-                work_rel: get_f(14)?,
-                heat_out_rel: get_f(15)?,
-            })
-        })()
-        .map_err(|e| bad(&e))?;
+        let u = Uncertainties {
+            hot_k: need(11)?,
+            cold_k: need(12)?,
+            heat_in_rel: need(13)?,
+            work_rel: need(14)?,
+            heat_out_rel: need(15)?,
+        };
+        let coverage_factor = need(9)?;
+        let ambient_k = checked(10)?;
         (|| {
             Ok::<_, rusqlite::Error>(Hello {
                 rig_id,
@@ -837,8 +916,8 @@ impl Log {
                 sample_period_ms: r.get(6)?,
                 window_samples: r.get(7)?,
                 mode,
-                coverage_factor: get_f(9)?,
-                ambient_k: r.get::<_, Option<f64>>(10)?.map(|x| x as f32),
+                coverage_factor,
+                ambient_k,
                 uncertainty: u,
                 config_digest: r.get(16)?,
             })
@@ -865,8 +944,19 @@ impl Log {
         })
     }
 
-    /// The link errors of `run`, in order.
+    /// The link errors of `run`, in order. A row with an unknown kind or a
+    /// negative count is an error ([`StoreError::BadRow`]).
     pub fn link_errors(&self, run: RunId) -> Result<Vec<LinkErrorRow>, StoreError> {
+        self.link_error_rows(run)?.into_iter().collect()
+    }
+
+    /// The link errors of `run`, in order, each row checked on its own: a
+    /// row with an unknown kind or a negative count is an `Err` in its
+    /// place, so that a reader can report it and go on.
+    pub fn link_error_rows(
+        &self,
+        run: RunId,
+    ) -> Result<Vec<Result<LinkErrorRow, StoreError>>, StoreError> {
         let mut st = self
             .conn
             .prepare(
@@ -886,20 +976,29 @@ impl Log {
             })
             .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
             .map_err(|e| self.err("cannot read link errors", e))?;
-        rows.into_iter()
+        Ok(rows
+            .into_iter()
             .map(|(ord, host_ms, kind, count, detail)| {
                 let kind = LinkErrorKind::parse(&kind).ok_or_else(|| {
                     self.bad(run, "link_errors", ord, format!("bad kind {kind:?}"))
+                })?;
+                let count = u64::try_from(count).map_err(|_| {
+                    self.bad(
+                        run,
+                        "link_errors",
+                        ord,
+                        format!("count {count} is negative"),
+                    )
                 })?;
                 Ok(LinkErrorRow {
                     ord,
                     host_ms,
                     kind,
-                    count: u64::try_from(count).unwrap_or(0),
+                    count,
                     detail,
                 })
             })
-            .collect()
+            .collect())
     }
 
     /// The outages of `run`, in order.
@@ -972,11 +1071,101 @@ fn sql_err(path: &Path, what: &'static str, source: rusqlite::Error) -> StoreErr
     }
 }
 
-fn summary_row(r: &Row<'_>) -> Result<Summary, rusqlite::Error> {
-    let f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
-    let o = |i: usize| r.get::<_, Option<f64>>(i).map(|x| x.map(|x| x as f32));
+/// Why a stored row cannot be the frame it claims to be.
+enum RowError {
+    /// A column of the wrong type or range (SQLite's own check).
+    Sql(rusqlite::Error),
+    /// A value no frame can hold.
+    Value {
+        column: &'static str,
+        value: String,
+        why: &'static str,
+    },
+}
+
+impl From<rusqlite::Error> for RowError {
+    fn from(e: rusqlite::Error) -> Self {
+        RowError::Sql(e)
+    }
+}
+
+/// The summary columns 5..=19 of [`SELECT_FRAMES`], in order.
+const SUMMARY_REALS: [&str; 15] = [
+    "duration_s",
+    "heat_in_j",
+    "work_j",
+    "heat_out_j",
+    "entropy_in_j_per_k",
+    "entropy_out_j_per_k",
+    "hot_mean_k",
+    "ambient_k",
+    "performance",
+    "bound",
+    "entropy_rate_w_per_k",
+    "u_performance",
+    "u_bound",
+    "u_margin",
+    "u_entropy_rate_w_per_k",
+];
+
+/// `x` as the f32 it must be: the log widens each f32 to f64 exactly, so a
+/// value that is not finite or not exactly an f32 was not written by it.
+/// Never narrows silently.
+fn exact_f32(column: &'static str, x: f64) -> Result<f32, RowError> {
+    // The cast rounds, or saturates to an infinity; the comparison below
+    // rejects every value the cast changed.
+    #[allow(clippy::cast_possible_truncation)]
+    let n = x as f32;
+    if !x.is_finite() {
+        return Err(RowError::Value {
+            column,
+            value: format!("{x}"),
+            why: "not a finite number",
+        });
+    }
+    if f64::from(n) != x {
+        return Err(RowError::Value {
+            column,
+            value: format!("{x:e}"),
+            why: if x.abs() > f64::from(f32::MAX) {
+                "outside the f32 range a frame carries"
+            } else {
+                "not an f32 value, so not written by the logger"
+            },
+        });
+    }
+    Ok(n)
+}
+
+fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
+    let f = |i: usize| -> Result<f32, RowError> {
+        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
+        exact_f32(name, r.get::<_, f64>(i)?)
+    };
+    let o = |i: usize| -> Result<Option<f32>, RowError> {
+        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
+        r.get::<_, Option<f64>>(i)?
+            .map(|x| exact_f32(name, x))
+            .transpose()
+    };
     let status: u8 = r.get(20)?;
     let faults: u8 = r.get(21)?;
+    let alarms: u8 = r.get(22)?;
+    let defined = STATUS_STEADY | STATUS_HEAT_OUT_MEASURED | STATUS_TRIP_ACTIVE | STATUS_ANY_FAULT;
+    let bits = |column, value: u8| RowError::Value {
+        column,
+        value: format!("{value:#04x}"),
+        why: "undefined bits set",
+    };
+    if status & !defined != 0 {
+        return Err(bits("status", status));
+    }
+    if faults & !(FAULT_CHANNELS | FAULT_STALE) != 0 {
+        return Err(bits("faults", faults));
+    }
+    if u32::from(alarms) >> RuleId::COUNT != 0 {
+        return Err(bits("alarms", alarms));
+    }
     Ok(Summary {
         seq: r.get(3)?,
         t_ms: r.get(4)?,
@@ -1005,7 +1194,7 @@ fn summary_row(r: &Row<'_>) -> Result<Summary, rusqlite::Error> {
             channels: faults & FAULT_CHANNELS,
             stale: faults & FAULT_STALE != 0,
         },
-        alarms: r.get(22)?,
+        alarms,
     })
 }
 

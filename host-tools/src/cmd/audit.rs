@@ -18,8 +18,8 @@ use anyhow::{Context, Result, bail};
 use heatbound::wire::{self, Decoder, DecoderStats};
 
 use heatbound::config::RigConfig;
-use heatbound_host::audit::{self, Input, LinkError, Received, Report};
-use heatbound_host::store::{LinkErrorKind, Log};
+use heatbound_host::audit::{self, Input, Received, Report};
+use heatbound_host::store::Log;
 
 /// The first 16 bytes of every SQLite 3 database file.
 const SQLITE_HEADER: &[u8; 16] = b"SQLite format 3\0";
@@ -137,64 +137,6 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats)> {
 
 /// Audits a run (the latest unless `run` is given) of the log database at `path`.
 pub(crate) fn audit_database(path: &Path, run: Option<i64>, config: &RigConfig) -> Result<Report> {
-    let (frames, decoder, link_errors) = read_database(path, run)?;
-    Ok(audit::audit(
-        &Input {
-            frames: &frames,
-            decoder,
-            link_errors: &link_errors,
-        },
-        config,
-    ))
-}
-
-/// Reads a run (the latest unless `run` is given) from the log database.
-///
-/// The logger stores the decoder's losses as link-error rows; they become
-/// the audit's decoder counts. Gap, duplicate and restart rows are not
-/// counted again: the audit re-derives them from the stored frames. Each
-/// outage (the link dropped) is a link error.
-fn read_database(
-    path: &Path,
-    run: Option<i64>,
-) -> Result<(Vec<Received>, DecoderStats, Vec<LinkError>)> {
-    let name = path.display().to_string();
     let log = Log::open_read(path)?;
-    let runs = log.runs()?;
-    let id = match run {
-        Some(id) if runs.iter().any(|r| r.id == id) => id,
-        Some(id) => bail!("{name}: no run {id} in the log"),
-        None => match runs.last() {
-            Some(r) => r.id,
-            None => bail!("{name}: the log holds no runs"),
-        },
-    };
-    let mut frames = Vec::new();
-    for stored in log.frames(id)? {
-        let stored = stored?;
-        frames.push(Received {
-            host_ms: Some(stored.host_ms),
-            frame: stored.frame,
-        });
-    }
-    let mut stats = DecoderStats::default();
-    for row in log.link_errors(id)? {
-        match row.kind {
-            LinkErrorKind::Crc => stats.crc_errors += row.count,
-            LinkErrorKind::Overlong => stats.overlong += row.count,
-            LinkErrorKind::Malformed => stats.malformed += row.count,
-            LinkErrorKind::UnknownVersion => stats.unknown_version += row.count,
-            _ => {}
-        }
-    }
-    stats.frames = frames.len() as u64;
-    let link_errors = log
-        .outages(id)?
-        .into_iter()
-        .map(|o| LinkError {
-            host_ms: Some(o.started_host_ms),
-            message: format!("link down: {}", o.reason),
-        })
-        .collect();
-    Ok((frames, stats, link_errors))
+    Ok(audit::audit_log(&log, run, config)?)
 }
