@@ -202,12 +202,14 @@ pub struct Integrity {
     pub unannounced_restarts: u64,
     /// Link errors the logger recorded.
     pub link_errors: u64,
-    /// Summaries sent again: sequence number and device time went back,
-    /// with no Hello, to a summary already seen since the last Hello.
-    /// Neither missing nor a restart; not checked again.
+    /// Summaries sent again: the sequence went back to a summary already
+    /// seen in the current device session (since the last restart),
+    /// identical to it, and not a device starting over (its first summary
+    /// again, right after a Hello). Neither missing nor a restart; not
+    /// checked again.
     pub replayed: u64,
-    /// Event frames inside replayed sections (not checked again).
-    pub replayed_events: u64,
+    /// Hello and event frames inside replayed sections (not checked again).
+    pub replayed_other: u64,
     /// Summaries whose device time does not follow the sequence (time went
     /// back or stood still, or jumped far beyond the summary spacing).
     pub time_inconsistencies: u64,
@@ -613,6 +615,7 @@ pub fn audit_with(input: &Input<'_>, facts: &LogFacts, config: &RigConfig) -> Re
             auditor.last_host_ms = r.host_ms;
         }
     }
+    auditor.take_held_hello();
     auditor.finish(input, facts)
 }
 
@@ -634,13 +637,18 @@ struct Auditor<'c> {
     period_ms: i64,
     /// Start of the current run of second-law violations.
     violation_since: Option<i64>,
-    /// Device time of each sequence number seen since the last Hello (the
-    /// current device session), to tell a replay from a restart.
-    session: HashMap<u16, u32>,
+    /// The summary of each sequence number seen in the current device
+    /// session (since the last restart), to tell a replay from a restart.
+    session: HashMap<u16, Summary>,
+    /// The first summary of the current device session.
+    session_first: Option<Summary>,
     /// Sequence number of the latest summary taken (not replayed).
     last_seq: Option<u16>,
     /// The previous summary was a replay.
     in_replay: bool,
+    /// A Hello identical to the latest one, met inside a replay: part of
+    /// the replay if a replayed summary follows, else taken then.
+    held_hello: Option<Hello>,
     /// Shortest consistent in-order summary spacing, ms.
     min_step_ms: Option<i64>,
     /// Host time of the latest frame that has one.
@@ -676,8 +684,10 @@ impl<'c> Auditor<'c> {
             period_ms: 1000,
             violation_since: None,
             session: HashMap::new(),
+            session_first: None,
             last_seq: None,
             in_replay: false,
+            held_hello: None,
             min_step_ms: None,
             last_host_ms: None,
             last_t_ms: None,
@@ -685,15 +695,21 @@ impl<'c> Auditor<'c> {
     }
 
     /// Whether summary `s` replays one already seen in this device session:
-    /// the sequence went back (or stayed, inside a replay) with no Hello, to
-    /// a number seen since the last Hello with the same device time.
+    /// the sequence went back (or stayed, inside a replay) to a summary of
+    /// this session identical to `s` (same device time, same integrals).
+    /// A restart starts a new session near boot time: with contents of its
+    /// own, or, after its Hello, with the session's first summary again (a
+    /// device that started over).
     fn is_replay(&self, s: &Summary) -> bool {
         let Some(last) = self.last_seq else {
             return false;
         };
         let d = s.seq.wrapping_sub(last);
         let back = d >= 0x8000 || (d == 0 && self.in_replay);
-        back && self.session.get(&s.seq) == Some(&s.t_ms)
+        // A device that started over sends its first summary again after
+        // its Hello: a restart, even when the contents repeat exactly.
+        let started_over = self.after_hello && !self.in_replay && self.session_first == Some(*s);
+        back && !started_over && self.session.get(&s.seq) == Some(s)
     }
 
     /// One frame; `trusted` is false for a placeholder of a tampered row
@@ -701,22 +717,43 @@ impl<'c> Auditor<'c> {
     fn frame(&mut self, frame: &Frame, trusted: bool) {
         match frame {
             Frame::Summary(s) if self.is_replay(s) => {
+                if self.held_hello.take().is_some() {
+                    self.integrity.replayed_other += 1;
+                }
                 self.integrity.replayed += 1;
                 self.in_replay = true;
                 self.after_hello = false;
                 return;
             }
             Frame::Event(_) if self.in_replay => {
-                self.integrity.replayed_events += 1;
+                self.integrity.replayed_other += 1;
+                return;
+            }
+            Frame::Hello(h)
+                if self.in_replay && self.held_hello.is_none() && self.hello.as_ref() == Some(h) =>
+            {
+                self.held_hello = Some(*h);
                 return;
             }
             _ => {}
         }
         self.in_replay = false;
+        self.take_held_hello();
+        self.take(frame, trusted);
+    }
+
+    /// A Hello held at the end of a replay was the stream's own: take it.
+    fn take_held_hello(&mut self) {
+        if let Some(h) = self.held_hello.take() {
+            self.take(&Frame::Hello(h), true);
+        }
+    }
+
+    /// One frame that is not a replay.
+    fn take(&mut self, frame: &Frame, trusted: bool) {
         let link = self.link.observe(frame);
         match frame {
             Frame::Hello(h) => {
-                self.session.clear();
                 self.integrity.hellos += 1;
                 let eff = effective_config(self.base, h);
                 self.integrity.config_digest_matches =
@@ -742,7 +779,10 @@ impl<'c> Auditor<'c> {
                     // A new device session.
                     self.session.clear();
                 }
-                self.session.insert(s.seq, s.t_ms);
+                if self.session.is_empty() {
+                    self.session_first = Some(*s);
+                }
+                self.session.insert(s.seq, *s);
                 self.last_seq = Some(s.seq);
                 self.last_t_ms = Some(s.t_ms);
                 self.summary(s, link, trusted);
@@ -1228,11 +1268,12 @@ impl<'c> Auditor<'c> {
         }
         if g.replayed > 0 {
             problems.push(format!(
-                "{} summaries replayed (sent again with their sequence numbers and device \
-                 times, no Hello before them){}: not checked again",
+                "{} summaries replayed (sent again, identical to summaries already seen \
+                 since the device's last restart){}: not checked again, not counted as missing \
+                 or as a restart",
                 g.replayed,
-                if g.replayed_events > 0 {
-                    format!(", with {} events", g.replayed_events)
+                if g.replayed_other > 0 {
+                    format!(", with {} Hello and event frames", g.replayed_other)
                 } else {
                     String::new()
                 }
