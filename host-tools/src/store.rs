@@ -13,9 +13,12 @@
 //!
 //! Writes are batched: one transaction stays open and is committed every
 //! [`Batching::max_rows`] rows, when [`Log::commit_if_due`] finds it older
-//! than [`Batching::max_age_ms`], and on [`Log::commit`]. The journal is WAL
-//! with `synchronous=NORMAL`, so a killed process leaves a database that
-//! opens with every committed batch.
+//! than [`Batching::max_age_ms`], and on [`Log::commit`]. While a writer has
+//! the log open the journal is WAL with `synchronous=NORMAL`, so a killed
+//! process leaves a database that opens with every committed batch. A
+//! writer whose last act was [`Log::end_run`] switches the file back to
+//! `journal_mode=DELETE` when it is dropped, so that reading a closed log
+//! ([`Log::open_read`], read-only) leaves no `-wal`/`-shm` files.
 //!
 //! ```
 //! use heatbound::wire::{Frame, Summary};
@@ -364,6 +367,9 @@ pub struct Log {
     /// The next `ord` of the run being written.
     next_ord: i64,
     ord_run: RunId,
+    /// The latest write was [`Log::end_run`]: on close, the journal goes
+    /// back to `DELETE` so that readers leave no `-wal`/`-shm` files.
+    run_closed: bool,
 }
 
 const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
@@ -469,6 +475,7 @@ impl Log {
             batch_started_ms: 0,
             next_ord: 0,
             ord_run: -1,
+            run_closed: false,
         }
     }
 
@@ -547,6 +554,7 @@ impl Log {
 
     /// Opens the batch transaction if none is open and counts one row.
     fn row(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        self.run_closed = false;
         match &mut self.pending {
             Some(n) => *n += 1,
             None => {
@@ -619,6 +627,7 @@ impl Log {
             )
             .map_err(|e| self.err("cannot start a run", e))?;
         let id = self.conn.last_insert_rowid();
+        self.run_closed = false;
         self.ord_run = id;
         self.next_ord = 0;
         Ok(id)
@@ -633,6 +642,7 @@ impl Log {
                 params![run, ended_host_ms],
             )
             .map_err(|e| self.err("cannot end the run", e))?;
+        self.run_closed = true;
         Ok(())
     }
 
@@ -1028,6 +1038,17 @@ impl Drop for Log {
         // Best effort: an error here has nowhere to go, and WAL keeps every
         // earlier batch either way.
         let _ = self.commit();
+        if self.run_closed {
+            // A cleanly closed log goes back to a rollback journal, so that a
+            // read-only reader (audit, chart) needs no `-wal`/`-shm` files and
+            // leaves none. Fails harmlessly (stays WAL) while another
+            // connection has the file open; the next writer switches to WAL.
+            let _ = self
+                .conn
+                .pragma_update_and_check(None, "journal_mode", "DELETE", |r| {
+                    r.get::<_, String>(0)
+                });
+        }
     }
 }
 
