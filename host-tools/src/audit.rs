@@ -51,7 +51,7 @@ use heatbound::wire::{DecoderStats, Frame, Hello, Link, LinkTracker, Summary};
 use serde::Serialize;
 use std::collections::HashMap;
 
-use crate::store::{LinkErrorKind, Log, RunId, StoreError};
+use crate::store::{Impossible, LinkErrorKind, Log, RunId, StoreError};
 
 /// Relative tolerance of the recomputation, against the larger of the two
 /// values and the magnitude of the terms that form the figure.
@@ -126,7 +126,7 @@ pub struct LogFacts {
 pub enum LogAuditError {
     /// The log could not be read.
     #[error(transparent)]
-    Store(#[from] StoreError),
+    Store(Box<StoreError>),
     /// The run asked for is not in the log.
     #[error("{path}: no run {run} in the log")]
     NoSuchRun {
@@ -141,6 +141,12 @@ pub enum LogAuditError {
         /// The database file.
         path: String,
     },
+}
+
+impl From<StoreError> for LogAuditError {
+    fn from(e: StoreError) -> Self {
+        LogAuditError::Store(Box::new(e))
+    }
 }
 
 /// Where a record that was never closed ends.
@@ -439,6 +445,12 @@ fn list<T>(v: &mut Vec<T>, item: T) {
     }
 }
 
+/// A span of the audit's timeline, ms, in seconds.
+#[allow(clippy::cast_precision_loss)] // exact below 2^53 ms (285,000 years)
+fn ms_to_s(ms: i64) -> f64 {
+    ms as f64 / 1000.0
+}
+
 fn seconds(t_ms: u32) -> f64 {
     f64::from(t_ms) / 1000.0
 }
@@ -457,7 +469,9 @@ fn utc(host_ms: i64) -> String {
     let mp = (5 * doy + 2) / 153;
     let d = doy - (153 * mp + 2) / 5 + 1;
     let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe.saturating_add(era.saturating_mul(400)) + i64::from(m <= 2);
+    let y = yoe
+        .saturating_add(era.saturating_mul(400))
+        .saturating_add(i64::from(m <= 2));
     format!(
         "{y:04}-{m:02}-{d:02} {:02}:{:02}:{:02}.{:03} UTC",
         ms / 3_600_000,
@@ -487,7 +501,10 @@ pub fn audit_log(
         Some(id) => runs
             .iter()
             .find(|r| r.id == id)
-            .ok_or(LogAuditError::NoSuchRun { path: name, run: id })?,
+            .ok_or(LogAuditError::NoSuchRun {
+                path: name,
+                run: id,
+            })?,
         None => runs.last().ok_or(LogAuditError::NoRuns { path: name })?,
     };
     let id = info.id;
@@ -502,16 +519,17 @@ pub fn audit_log(
                 host_ms: Some(s.host_ms),
                 frame: s.frame,
             }),
-            Err(StoreError::ImpossibleValue {
-                table,
-                ord,
-                seq,
-                t_ms,
-                column,
-                value,
-                why,
-                ..
-            }) => {
+            Err(StoreError::ImpossibleValue(v)) => {
+                let Impossible {
+                    table,
+                    ord,
+                    seq,
+                    t_ms,
+                    column,
+                    ref value,
+                    why,
+                    ..
+                } = *v;
                 let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
                 facts
                     .tampered
@@ -730,7 +748,9 @@ impl<'c> Auditor<'c> {
                 return;
             }
             Frame::Hello(h)
-                if self.in_replay && self.held_hello.is_none() && self.hello.as_ref() == Some(h) =>
+                if self.in_replay
+                    && self.held_hello.is_none()
+                    && self.hello.as_ref() == Some(h) =>
             {
                 self.held_hello = Some(*h);
                 return;
@@ -796,7 +816,9 @@ impl<'c> Auditor<'c> {
         match self.prev_t {
             // The wrapping difference read as signed: the shorter way
             // round the 2^32 ms clock.
-            Some((prev, raw)) => prev.saturating_add(i64::from(t_ms.wrapping_sub(raw).cast_signed())),
+            Some((prev, raw)) => {
+                prev.saturating_add(i64::from(t_ms.wrapping_sub(raw).cast_signed()))
+            }
             None => i64::from(t_ms),
         }
     }
@@ -998,7 +1020,8 @@ impl<'c> Auditor<'c> {
             .filter(|r| self.ctx.enabled[r.index()])
             .map(|r| self.ctx.on_ms[r.index()])
             .max();
-        let pending = grace.is_some_and(|on| t - since <= on + self.period_ms);
+        let pending =
+            grace.is_some_and(|on| t.saturating_sub(since) <= on.saturating_add(self.period_ms));
         if Self::second_law_alarm_active(s) || pending {
             sl.flagged += 1;
         } else {
@@ -1016,7 +1039,7 @@ impl<'c> Auditor<'c> {
                     rule: None,
                     message: format!(
                         "{what} for {:.1} s with no second-law alarm active",
-                        (t - since) as f64 / 1000.0
+                        ms_to_s(t.saturating_sub(since))
                     ),
                 },
             );
@@ -1074,7 +1097,9 @@ impl<'c> Auditor<'c> {
             let raises = core::mem::take(&mut track.pending_raises);
             let event = track.event_since_summary.take();
             let last_raise = track.last_raise;
-            let supported = |at: i64| last_raise.is_some_and(|r| r >= at - on - period);
+            let supported = |at: i64| {
+                last_raise.is_some_and(|r| r >= at.saturating_sub(on).saturating_sub(period))
+            };
             let mut findings: Vec<String> = Vec::new();
             let newly = bit && !track.last_bit;
             for &(te, raw) in &raises {
@@ -1116,13 +1141,13 @@ impl<'c> Auditor<'c> {
                 && !track.missed_reported
                 && track
                     .raise_since
-                    .is_some_and(|since| t - since > on + period)
+                    .is_some_and(|since| t.saturating_sub(since) > on.saturating_add(period))
             {
                 track.missed_reported = true;
                 self.alarms.missed += 1;
                 findings.push(format!(
                     "condition held for {:.1} s without the alarm",
-                    (t - track.raise_since.unwrap_or(t)) as f64 / 1000.0
+                    ms_to_s(t.saturating_sub(track.raise_since.unwrap_or(t)))
                 ));
             }
             if bit
@@ -1130,13 +1155,13 @@ impl<'c> Auditor<'c> {
                 && !track.stuck_reported
                 && track
                     .clear_since
-                    .is_some_and(|since| t - since > off + period)
+                    .is_some_and(|since| t.saturating_sub(since) > off.saturating_add(period))
             {
                 track.stuck_reported = true;
                 self.alarms.stuck += 1;
                 findings.push(format!(
                     "still active {:.1} s after its condition cleared",
-                    (t - track.clear_since.unwrap_or(t)) as f64 / 1000.0
+                    ms_to_s(t.saturating_sub(track.clear_since.unwrap_or(t)))
                 ));
             }
             track.last_bit = bit;
@@ -1163,7 +1188,10 @@ impl<'c> Auditor<'c> {
             let track = &mut self.tracks[i];
             for (te, raw) in core::mem::take(&mut track.pending_raises) {
                 self.alarms.activations += 1;
-                if track.last_raise.is_none_or(|r| r < te - on - period) {
+                if track
+                    .last_raise
+                    .is_none_or(|r| r < te.saturating_sub(on).saturating_sub(period))
+                {
                     self.alarms.unsupported += 1;
                     list(
                         &mut self.alarms.findings,
@@ -1179,7 +1207,7 @@ impl<'c> Auditor<'c> {
         }
         self.alarms.on_delay_s = CHECKED
             .iter()
-            .map(|r| (*r, self.ctx.on_ms[r.index()] as f64 / 1000.0))
+            .map(|r| (*r, ms_to_s(self.ctx.on_ms[r.index()])))
             .collect();
 
         let d = &input.decoder;
@@ -1249,12 +1277,7 @@ impl<'c> Auditor<'c> {
             problems.push(format!(
                 "{} frames lost ({} CRC, {} overlong, {} malformed, {} unknown version), \
                  {} bytes discarded",
-                losses,
-                d.crc_errors,
-                d.overlong,
-                d.malformed,
-                d.unknown_version,
-                d.bytes_discarded
+                losses, d.crc_errors, d.overlong, d.malformed, d.unknown_version, d.bytes_discarded
             ));
         }
         if g.missing_summaries > 0 {

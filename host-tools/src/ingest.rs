@@ -117,7 +117,10 @@ pub struct Totals {
 impl Totals {
     /// Frames lost by the decoder, of every kind.
     pub const fn losses(&self) -> u64 {
-        self.crc_errors + self.overlong + self.malformed + self.unknown_version
+        self.crc_errors
+            .saturating_add(self.overlong)
+            .saturating_add(self.malformed)
+            .saturating_add(self.unknown_version)
     }
 }
 
@@ -313,17 +316,26 @@ impl Ingest {
     fn record_losses(&mut self, host_ms: i64) -> Result<(), StoreError> {
         let now = *self.decoder.stats();
         let before = self.seen;
-        if now.losses() == before.losses() {
+        if now == before {
             self.seen = now;
             return Ok(());
         }
         let deltas = [
-            (LinkErrorKind::Crc, now.crc_errors - before.crc_errors),
-            (LinkErrorKind::Overlong, now.overlong - before.overlong),
-            (LinkErrorKind::Malformed, now.malformed - before.malformed),
+            (
+                LinkErrorKind::Crc,
+                now.crc_errors.saturating_sub(before.crc_errors),
+            ),
+            (
+                LinkErrorKind::Overlong,
+                now.overlong.saturating_sub(before.overlong),
+            ),
+            (
+                LinkErrorKind::Malformed,
+                now.malformed.saturating_sub(before.malformed),
+            ),
             (
                 LinkErrorKind::UnknownVersion,
-                now.unknown_version - before.unknown_version,
+                now.unknown_version.saturating_sub(before.unknown_version),
             ),
         ];
         self.seen = now;
@@ -439,7 +451,9 @@ impl Ingest {
             }
             Frame::Event(_) if self.in_replay => return self.replayed_other(host_ms),
             Frame::Hello(h)
-                if self.in_replay && self.held_hello.is_none() && self.hello.as_ref() == Some(h) =>
+                if self.in_replay
+                    && self.held_hello.is_none()
+                    && self.hello.as_ref() == Some(h) =>
             {
                 self.held_hello = Some((*h, host_ms));
                 return Ok(());
@@ -515,7 +529,10 @@ impl Ingest {
         let (kind, count) = match link {
             Link::Gap { missing } => {
                 self.totals.gaps += 1;
-                self.totals.missing_summaries += u64::from(missing);
+                self.totals.missing_summaries = self
+                    .totals
+                    .missing_summaries
+                    .saturating_add(u64::from(missing));
                 (LinkErrorKind::Gap, u64::from(missing))
             }
             Link::Duplicate => {

@@ -180,28 +180,8 @@ pub enum StoreError {
     },
     /// A stored value no frame can hold: not finite, outside the f32 range,
     /// not an f32 at all, or undefined bits (the log was altered).
-    #[error("{path}: run {run_id}, {table} row {ord}{}: {column} = {value}: {why}",
-        seq.map_or_else(String::new, |s| format!(" (seq {s})")))]
-    ImpossibleValue {
-        /// The database file.
-        path: PathBuf,
-        /// The run.
-        run_id: i64,
-        /// The table.
-        table: &'static str,
-        /// The row's `ord`.
-        ord: i64,
-        /// The summary's sequence number, when it could be read.
-        seq: Option<u16>,
-        /// The summary's device time, ms, when it could be read.
-        t_ms: Option<u32>,
-        /// The column.
-        column: &'static str,
-        /// The stored value, as text.
-        value: String,
-        /// Why no frame can hold it.
-        why: &'static str,
-    },
+    #[error("{0}")]
+    ImpossibleValue(Box<Impossible>),
     /// A stored row cannot be turned back into a frame.
     #[error("{path}: run {run_id}, {table} row {ord}: {reason}")]
     BadRow {
@@ -216,6 +196,46 @@ pub enum StoreError {
         /// What is wrong.
         reason: String,
     },
+}
+
+/// A stored value no frame can hold (see [`StoreError::ImpossibleValue`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Impossible {
+    /// The database file.
+    pub path: PathBuf,
+    /// The run.
+    pub run_id: i64,
+    /// The table.
+    pub table: &'static str,
+    /// The row's `ord`.
+    pub ord: i64,
+    /// The summary's sequence number, when it could be read.
+    pub seq: Option<u16>,
+    /// The summary's device time, ms, when it could be read.
+    pub t_ms: Option<u32>,
+    /// The column.
+    pub column: &'static str,
+    /// The stored value, as text.
+    pub value: String,
+    /// Why no frame can hold it.
+    pub why: &'static str,
+}
+
+impl std::fmt::Display for Impossible {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "{}: run {}, {} row {}",
+            self.path.display(),
+            self.run_id,
+            self.table,
+            self.ord
+        )?;
+        if let Some(seq) = self.seq {
+            write!(f, " (seq {seq})")?;
+        }
+        write!(f, ": {} = {}: {}", self.column, self.value, self.why)
+    }
 }
 
 /// When a batch is committed.
@@ -479,6 +499,16 @@ impl Log {
         }
     }
 
+    /// A run whose `ord` cannot grow (only an altered log gets there).
+    fn full_run(&self, run: RunId, ord: i64) -> StoreError {
+        self.bad(
+            run,
+            "runs",
+            ord,
+            "ord is at its largest value: no row can follow",
+        )
+    }
+
     fn err(&self, what: &'static str, source: rusqlite::Error) -> StoreError {
         sql_err(&self.path, what, source)
     }
@@ -588,11 +618,14 @@ impl Log {
                     |r| r.get(0),
                 )
                 .map_err(|e| self.err("cannot find the run's last row", e))?;
-            self.next_ord = max.map_or(0, |m| m + 1);
+            self.next_ord = match max {
+                None => 0,
+                Some(m) => m.checked_add(1).ok_or_else(|| self.full_run(run, m))?,
+            };
             self.ord_run = run;
         }
         let ord = self.next_ord;
-        self.next_ord += 1;
+        self.next_ord = ord.checked_add(1).ok_or_else(|| self.full_run(run, ord))?;
         Ok(ord)
     }
 
@@ -609,7 +642,8 @@ impl Log {
     /// Commits the open batch if it began more than [`Batching::max_age_ms`]
     /// before `now_host_ms`.
     pub fn commit_if_due(&mut self, now_host_ms: i64) -> Result<(), StoreError> {
-        if self.pending.is_some() && now_host_ms - self.batch_started_ms >= self.batching.max_age_ms
+        if self.pending.is_some()
+            && now_host_ms.saturating_sub(self.batch_started_ms) >= self.batching.max_age_ms
         {
             self.commit()?;
         }
@@ -840,17 +874,19 @@ impl Log {
             0 => Frame::Hello(self.hello_row(run, ord, r)?),
             1 => Frame::Summary(summary_row(r).map_err(|e| match e {
                 RowError::Sql(e) => self.bad(run, "summaries", ord, e),
-                RowError::Value { column, value, why } => StoreError::ImpossibleValue {
-                    path: self.path.clone(),
-                    run_id: run,
-                    table: "summaries",
-                    ord,
-                    seq: r.get(3).ok(),
-                    t_ms: r.get(4).ok(),
-                    column,
-                    value,
-                    why,
-                },
+                RowError::Value { column, value, why } => {
+                    StoreError::ImpossibleValue(Box::new(Impossible {
+                        path: self.path.clone(),
+                        run_id: run,
+                        table: "summaries",
+                        ord,
+                        seq: r.get(3).ok(),
+                        t_ms: r.get(4).ok(),
+                        column,
+                        value,
+                        why,
+                    }))
+                }
             })?),
             _ => Frame::Event(self.event_row(run, ord, r)?),
         };
@@ -880,17 +916,19 @@ impl Log {
         ];
         let impossible = |i: usize, e: RowError| match e {
             RowError::Sql(e) => bad(&e),
-            RowError::Value { value, why, .. } => StoreError::ImpossibleValue {
-                path: self.path.clone(),
-                run_id: run,
-                table: "hellos",
-                ord,
-                seq: None,
-                t_ms: None,
-                column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
-                value,
-                why,
-            },
+            RowError::Value { value, why, .. } => {
+                StoreError::ImpossibleValue(Box::new(Impossible {
+                    path: self.path.clone(),
+                    run_id: run,
+                    table: "hellos",
+                    ord,
+                    seq: None,
+                    t_ms: None,
+                    column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
+                    value,
+                    why,
+                }))
+            }
         };
         let checked = |i: usize| -> Result<Option<f32>, StoreError> {
             r.get::<_, Option<f64>>(i)
@@ -899,7 +937,12 @@ impl Log {
                 .transpose()
         };
         let need = |i: usize| -> Result<f32, StoreError> {
-            checked(i)?.ok_or_else(|| bad(&format!("{} is NULL", REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"))))
+            checked(i)?.ok_or_else(|| {
+                bad(&format!(
+                    "{} is NULL",
+                    REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?")
+                ))
+            })
         };
         let rig: String = r.get(4).map_err(|e| bad(&e))?;
         let fw: String = r.get(5).map_err(|e| bad(&e))?;
@@ -1045,9 +1088,7 @@ impl Drop for Log {
             // connection has the file open; the next writer switches to WAL.
             let _ = self
                 .conn
-                .pragma_update_and_check(None, "journal_mode", "DELETE", |r| {
-                    r.get::<_, String>(0)
-                });
+                .pragma_update_and_check(None, "journal_mode", "DELETE", |r| r.get::<_, String>(0));
         }
     }
 }

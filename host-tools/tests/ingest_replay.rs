@@ -95,7 +95,10 @@ fn assert_replay_report(r: &Value, what: &str) {
     assert_eq!(g["duplicates"], 0, "{what}: {g:#}");
     assert_eq!(g["restarts"], 0, "{what}: {g:#}");
     assert_eq!(g["unannounced_restarts"], 0, "{what}: {g:#}");
-    assert!(g["problems"].to_string().contains("179 summaries replayed"), "{what}: {g:#}");
+    assert!(
+        g["problems"].to_string().contains("179 summaries replayed"),
+        "{what}: {g:#}"
+    );
     // The original summaries all recompute; the replayed ones are not
     // checked again.
     assert_eq!(r["recomputation"]["summaries"], 900, "{what}: {r:#}");
@@ -118,7 +121,11 @@ fn a_replayed_section_is_a_replay_in_the_capture_and_in_the_log() {
 
         let db = dir.path().join(format!("replay-{x}.db"));
         watch(&t, &db);
-        assert_eq!(count(&db, "summaries"), 900, "replays are not stored as new");
+        assert_eq!(
+            count(&db, "summaries"),
+            900,
+            "replays are not stored as new"
+        );
         assert_eq!(count(&db, "summaries"), 900, "x={x}");
         let log = Log::open_read(&db).expect("open log");
         let replays: Vec<_> = log
@@ -127,7 +134,11 @@ fn a_replayed_section_is_a_replay_in_the_capture_and_in_the_log() {
             .into_iter()
             .filter(|e| e.kind == LinkErrorKind::Replay)
             .collect();
-        assert_eq!(replays.iter().map(|e| e.count).sum::<u64>(), 179, "{replays:?}");
+        assert_eq!(
+            replays.iter().map(|e| e.count).sum::<u64>(),
+            179,
+            "{replays:?}"
+        );
         assert!(replays[0].detail.contains("not stored"), "{replays:?}");
         let (code, r) = audit_json(&db);
         assert_eq!(code, 1, "{r:#}");
@@ -181,7 +192,7 @@ fn an_unterminated_tail_is_one_frame_lost() {
     // `{ cat a.bin; head -c 200 /dev/zero | tr '\0' '\001'; } > t.bin`:
     // 200 bytes with no delimiter after the last frame. The decoder's
     // buffer (wire::MAX_FRAME_LEN) is shorter than the tail.
-    assert!(wire::MAX_FRAME_LEN < 200);
+    const { assert!(wire::MAX_FRAME_LEN < 200) };
     let dir = TempDir::new().expect("temp dir");
     let mut bytes = std::fs::read(capture(&dir, 60)).expect("read");
     bytes.extend(std::iter::repeat_n(1u8, 200));
@@ -234,4 +245,3 @@ fn a_reconnect_after_an_overlong_tail_accepts_the_first_hello() {
     let t = ingest.finish(50).expect("finish");
     assert_eq!(t.hellos, 1, "{t:?}");
 }
-
