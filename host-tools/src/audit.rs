@@ -513,12 +513,33 @@ pub fn audit_log(
         ..LogFacts::default()
     };
     let mut frames = Vec::new();
+    // Every row was received while the run was open.
+    let (start, end) = (info.started_host_ms, info.ended_host_ms);
+    let outside = |host_ms: i64| host_ms < start || end.is_some_and(|e| host_ms > e);
+    let window = format!(
+        "the run's time (started {start}{})",
+        end.map_or_else(String::new, |e| format!(", ended {e}"))
+    );
     for stored in log.frames(id)? {
         match stored {
-            Ok(s) => frames.push(Received {
-                host_ms: Some(s.host_ms),
-                frame: s.frame,
-            }),
+            Ok(s) => {
+                if outside(s.host_ms) {
+                    let (table, seq) = match &s.frame {
+                        Frame::Hello(_) => ("hellos", None),
+                        Frame::Summary(x) => ("summaries", Some(x.seq)),
+                        Frame::Event(x) => ("events", Some(x.seq)),
+                    };
+                    let at = seq.map_or_else(String::new, |s| format!(" seq {s}"));
+                    facts.tampered.push(format!(
+                        "{table} row{at}: host_ms {} is outside {window}",
+                        s.host_ms
+                    ));
+                }
+                frames.push(Received {
+                    host_ms: Some(s.host_ms),
+                    frame: s.frame,
+                });
+            }
             Err(StoreError::ImpossibleValue(v)) => {
                 let Impossible {
                     table,
@@ -565,6 +586,12 @@ pub fn audit_log(
             }
             Err(e) => return Err(e.into()),
         };
+        if outside(row.host_ms) {
+            facts.tampered.push(format!(
+                "link_errors row {}: host_ms {} is outside {window}",
+                row.ord, row.host_ms
+            ));
+        }
         let slot = match row.kind {
             LinkErrorKind::Crc => &mut stats.crc_errors,
             LinkErrorKind::Overlong => &mut stats.overlong,
@@ -589,8 +616,20 @@ pub fn audit_log(
         ));
     }
     stats.frames = u64::try_from(frames.len()).unwrap_or(u64::MAX);
-    let link_errors: Vec<LinkError> = log
-        .outages(id)?
+    let outages = log.outages(id)?;
+    for o in &outages {
+        let ended_before = o.ended_host_ms.is_some_and(|e| e < o.started_host_ms);
+        if outside(o.started_host_ms) || o.ended_host_ms.is_some_and(outside) || ended_before {
+            facts.tampered.push(format!(
+                "outages row {}: its times ({} to {}) are not inside {window} in order",
+                o.id,
+                o.started_host_ms,
+                o.ended_host_ms
+                    .map_or_else(|| "open".to_owned(), |e| e.to_string())
+            ));
+        }
+    }
+    let link_errors: Vec<LinkError> = outages
         .into_iter()
         .map(|o| LinkError {
             host_ms: Some(o.started_host_ms),

@@ -182,3 +182,60 @@ fn a_run_never_closed_ends_early_and_is_not_trustworthy() {
     assert!(text.contains("record ends early, at seq 29"), "{text}");
     assert!(text.contains("UTC"), "{text}");
 }
+
+#[test]
+fn crafted_values_never_panic_and_never_pass() {
+    // Each alteration on its own copy of a clean log. SQLite columns take
+    // any type (sqlite.org/datatype3.html, "type affinity"), so a crafted
+    // file can hold text, huge integers or infinities (9e999 reads as +inf)
+    // anywhere; i64 and u16/u32 ranges are those of the Rust reference.
+    let dir = TempDir::new().expect("temp dir");
+    let clean = logged(&dir, 30);
+    let cases = [
+        "UPDATE summaries SET seq = 70000 WHERE seq = 3",
+        "UPDATE summaries SET seq = -1 WHERE seq = 3",
+        "UPDATE summaries SET t_ms = -5 WHERE seq = 3",
+        "UPDATE summaries SET t_ms = 9223372036854775807 WHERE seq = 3",
+        "UPDATE summaries SET heat_in_j = 9e999 WHERE seq = 3",
+        "UPDATE summaries SET heat_in_j = -9e999 WHERE seq = 3",
+        "UPDATE summaries SET duration_s = 'abc' WHERE seq = 3",
+        "UPDATE summaries SET status = 300 WHERE seq = 3",
+        "UPDATE summaries SET status = 255 WHERE seq = 3",
+        "UPDATE summaries SET alarms = 255 WHERE seq = 3",
+        "UPDATE summaries SET host_ms = -9223372036854775808 WHERE seq = 3",
+        "UPDATE summaries SET host_ms = 9223372036854775807",
+        "UPDATE summaries SET entropy_rate_w_per_k = 3e38, u_entropy_rate_w_per_k = 3e38",
+        "UPDATE hellos SET coverage_factor = 9e999",
+        "UPDATE hellos SET sample_period_ms = 99999999999",
+        "UPDATE hellos SET mode = 'perpetual'",
+        "INSERT INTO link_errors VALUES (1, 5000, 0, 'gap', -9223372036854775808, 'x')",
+        "INSERT INTO link_errors VALUES (1, 9223372036854775807, 0, 'crc', 1, 'x')",
+        "INSERT INTO link_errors VALUES (1, 5000, 0, 'meteor', 1, 'x')",
+        "UPDATE runs SET ended_host_ms = NULL; UPDATE summaries SET host_ms = 9223372036854775807",
+        "UPDATE runs SET ended_host_ms = NULL; UPDATE summaries SET host_ms = -9223372036854775808",
+        "INSERT INTO outages (run_id, started_host_ms, reason) VALUES (1, -9223372036854775808, '')",
+    ];
+    for (i, case) in cases.iter().enumerate() {
+        let db = dir.path().join(format!("case{i}.db"));
+        std::fs::copy(&clean, &db).expect("copy");
+        sql(&db, case);
+        let out = heatbound()
+            .arg("audit")
+            .arg(&db)
+            .arg("--json")
+            .output()
+            .expect("run heatbound");
+        let code = out.status.code();
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            code == Some(1) || code == Some(2),
+            "{case}: exit {code:?}, stderr {stderr}"
+        );
+        assert!(!stderr.contains("panicked"), "{case}: {stderr}");
+        if code == Some(1) {
+            let r: Value = serde_json::from_slice(&out.stdout).expect("JSON");
+            assert_eq!(r["trustworthy"], false, "{case}");
+        }
+        eprintln!("{case}: exit {code:?} {}", stderr.trim());
+    }
+}
