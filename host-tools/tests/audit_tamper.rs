@@ -133,11 +133,10 @@ fn overflowing_or_negative_counts_are_tampering_not_a_panic() {
     let db = logged(&dir, 30);
     sql(
         &db,
-        "INSERT INTO link_errors (run_id, ord, host_ms, kind, count, detail) VALUES
-         (1, 100000, 0, 'crc', 9223372036854775807, 'x'),
-         (1, 100001, 0, 'crc', 9223372036854775807, 'x'),
-         (1, 100002, 0, 'crc', 9223372036854775807, 'x'),
-         (1, 100003, 0, 'crc', 2, 'x');",
+        "INSERT INTO link_errors (run_id, ord, host_ms, kind, count, detail)
+         SELECT 1, 100000 + n, started_host_ms, 'crc', c, 'x' FROM runs,
+         (SELECT 0 AS n, 9223372036854775807 AS c UNION ALL SELECT 1, 9223372036854775807
+          UNION ALL SELECT 2, 9223372036854775807 UNION ALL SELECT 3, 2);",
     );
     let (code, r) = audit_json(&db);
     assert_eq!(code, 1, "{r:#}");
@@ -150,8 +149,8 @@ fn overflowing_or_negative_counts_are_tampering_not_a_panic() {
     sql(&db2, "DELETE FROM link_errors WHERE ord >= 100000;");
     sql(
         &db2,
-        "INSERT INTO link_errors (run_id, ord, host_ms, kind, count, detail) VALUES
-         (1, 100000, 0, 'overlong', -5, 'x');",
+        "INSERT INTO link_errors (run_id, ord, host_ms, kind, count, detail)
+         SELECT 1, 100000, started_host_ms, 'overlong', -5, 'x' FROM runs;",
     );
     let (code, r) = audit_json(&db2);
     assert_eq!(code, 1, "{r:#}");
