@@ -1541,6 +1541,19 @@ mod tests {
     }
 
     #[test]
+    fn host_times_read_as_utc_and_never_panic() {
+        // Unix time 1_700_000_000 s is 2023-11-14 22:13:20 UTC (from memory;
+        // POSIX.1-2017 §4.16 gives the formula the conversion follows).
+        assert_eq!(utc(1_700_000_000_123), "2023-11-14 22:13:20.123 UTC");
+        // The epoch itself, and a time before it (POSIX §4.16, day 0).
+        assert_eq!(utc(0), "1970-01-01 00:00:00.000 UTC");
+        assert_eq!(utc(-1), "1969-12-31 23:59:59.999 UTC");
+        // A crafted log may hold any i64.
+        assert!(!utc(i64::MIN).is_empty());
+        assert!(!utc(i64::MAX).is_empty());
+    }
+
+    #[test]
     fn an_empty_stream_is_not_trustworthy() {
         let r = audit(
             &Input {
