@@ -549,12 +549,14 @@ pub fn audit_log(
                     column,
                     ref value,
                     why,
+                    ref also,
                     ..
                 } = *v;
                 let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
-                facts
-                    .tampered
-                    .push(format!("{table} row {ord}{at}: {column} = {value}: {why}"));
+                facts.tampered.push(format!(
+                    "{table} row {ord}{at}: {column} = {value}: {why}{}",
+                    also.iter().map(|a| format!("; {a}")).collect::<String>()
+                ));
                 if let (Some(seq), Some(t_ms)) = (seq, t_ms) {
                     facts.placeholders.push(frames.len());
                     frames.push(Received {
@@ -915,7 +917,8 @@ impl<'c> Auditor<'c> {
                 list(
                     &mut self.integrity.problems,
                     format!(
-                        "summaries row seq {}: t_ms = {} ({:.3} s) after {:.3} s at the previous                          summary: {what} while the sequence went on",
+                        "summaries row seq {}: t_ms = {} ({:.3} s) after {:.3} s at the previous \
+                         summary: {what} while the sequence went on",
                         s.seq,
                         s.t_ms,
                         seconds(s.t_ms),

@@ -219,6 +219,8 @@ pub struct Impossible {
     pub value: String,
     /// Why no frame can hold it.
     pub why: &'static str,
+    /// Further impossible values of the same row, `column = value: why` each.
+    pub also: Vec<String>,
 }
 
 impl std::fmt::Display for Impossible {
@@ -234,7 +236,11 @@ impl std::fmt::Display for Impossible {
         if let Some(seq) = self.seq {
             write!(f, " (seq {seq})")?;
         }
-        write!(f, ": {} = {}: {}", self.column, self.value, self.why)
+        write!(f, ": {} = {}: {}", self.column, self.value, self.why)?;
+        for a in &self.also {
+            write!(f, "; {a}")?;
+        }
+        Ok(())
     }
 }
 
@@ -874,19 +880,23 @@ impl Log {
             0 => Frame::Hello(self.hello_row(run, ord, r)?),
             1 => Frame::Summary(summary_row(r).map_err(|e| match e {
                 RowError::Sql(e) => self.bad(run, "summaries", ord, e),
-                RowError::Value { column, value, why } => {
-                    StoreError::ImpossibleValue(Box::new(Impossible {
-                        path: self.path.clone(),
-                        run_id: run,
-                        table: "summaries",
-                        ord,
-                        seq: r.get(3).ok(),
-                        t_ms: r.get(4).ok(),
-                        column,
-                        value,
-                        why,
-                    }))
-                }
+                RowError::Value {
+                    column,
+                    value,
+                    why,
+                    also,
+                } => StoreError::ImpossibleValue(Box::new(Impossible {
+                    path: self.path.clone(),
+                    run_id: run,
+                    table: "summaries",
+                    ord,
+                    seq: r.get(3).ok(),
+                    t_ms: r.get(4).ok(),
+                    column,
+                    value,
+                    why,
+                    also,
+                })),
             })?),
             _ => Frame::Event(self.event_row(run, ord, r)?),
         };
@@ -916,19 +926,20 @@ impl Log {
         ];
         let impossible = |i: usize, e: RowError| match e {
             RowError::Sql(e) => bad(&e),
-            RowError::Value { value, why, .. } => {
-                StoreError::ImpossibleValue(Box::new(Impossible {
-                    path: self.path.clone(),
-                    run_id: run,
-                    table: "hellos",
-                    ord,
-                    seq: None,
-                    t_ms: None,
-                    column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
-                    value,
-                    why,
-                }))
-            }
+            RowError::Value {
+                value, why, also, ..
+            } => StoreError::ImpossibleValue(Box::new(Impossible {
+                path: self.path.clone(),
+                run_id: run,
+                table: "hellos",
+                ord,
+                seq: None,
+                t_ms: None,
+                column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
+                value,
+                why,
+                also,
+            })),
         };
         let checked = |i: usize| -> Result<Option<f32>, StoreError> {
             r.get::<_, Option<f64>>(i)
@@ -1137,11 +1148,13 @@ fn sql_err(path: &Path, what: &'static str, source: rusqlite::Error) -> StoreErr
 enum RowError {
     /// A column of the wrong type or range (SQLite's own check).
     Sql(rusqlite::Error),
-    /// A value no frame can hold.
+    /// A value no frame can hold (the first), and any further ones as
+    /// `column = value: why`.
     Value {
         column: &'static str,
         value: String,
         why: &'static str,
+        also: Vec<String>,
     },
 }
 
@@ -1183,6 +1196,7 @@ fn exact_f32(column: &'static str, x: f64) -> Result<f32, RowError> {
             column,
             value: format!("{x}"),
             why: "not a finite number",
+            also: Vec::new(),
         });
     }
     if f64::from(n) != x {
@@ -1194,6 +1208,7 @@ fn exact_f32(column: &'static str, x: f64) -> Result<f32, RowError> {
             } else {
                 "not an f32 value, so not written by the logger"
             },
+            also: Vec::new(),
         });
     }
     Ok(n)
@@ -1214,19 +1229,38 @@ fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
     let faults: u8 = r.get(21)?;
     let alarms: u8 = r.get(22)?;
     let defined = STATUS_STEADY | STATUS_HEAT_OUT_MEASURED | STATUS_TRIP_ACTIVE | STATUS_ANY_FAULT;
-    let bits = |column, value: u8| RowError::Value {
-        column,
-        value: format!("{value:#04x}"),
-        why: "undefined bits set",
-    };
-    if status & !defined != 0 {
-        return Err(bits("status", status));
+    // Every impossible value of the row, so that the report names them all.
+    let mut bad: Vec<(&'static str, String, &'static str)> = Vec::new();
+    for (i, name) in (5..).zip(SUMMARY_REALS) {
+        if let Some(x) = r.get::<_, Option<f64>>(i)?
+            && let Err(RowError::Value {
+                column, value, why, ..
+            }) = exact_f32(name, x)
+        {
+            bad.push((column, value, why));
+        }
     }
-    if faults & !(FAULT_CHANNELS | FAULT_STALE) != 0 {
-        return Err(bits("faults", faults));
+    for (column, value, undefined) in [
+        ("status", status, status & !defined != 0),
+        (
+            "faults",
+            faults,
+            faults & !(FAULT_CHANNELS | FAULT_STALE) != 0,
+        ),
+        ("alarms", alarms, u32::from(alarms) >> RuleId::COUNT != 0),
+    ] {
+        if undefined {
+            bad.push((column, format!("{value:#04x}"), "undefined bits set"));
+        }
     }
-    if u32::from(alarms) >> RuleId::COUNT != 0 {
-        return Err(bits("alarms", alarms));
+    let mut bad = bad.into_iter();
+    if let Some((column, value, why)) = bad.next() {
+        return Err(RowError::Value {
+            column,
+            value,
+            why,
+            also: bad.map(|(c, v, w)| format!("{c} = {v}: {w}")).collect(),
+        });
     }
     Ok(Summary {
         seq: r.get(3)?,

@@ -90,7 +90,11 @@ fn values_beyond_f32_are_a_failed_check_naming_row_and_column() {
     assert_eq!(r["integrity"]["pass"], false);
     assert_eq!(r["integrity"]["tampered_rows"], 1, "{r:#}");
     let p = problems(&r);
-    assert!(p.contains("seq 20") && p.contains("performance"), "{p}");
+    assert!(
+        p.contains("seq 20") && p.contains("performance = 1e308"),
+        "{p}"
+    );
+    assert!(p.contains("bound = -1e308"), "both columns named: {p}");
     // The row is not recomputed, and the sequence around it is intact.
     assert_eq!(r["recomputation"]["summaries"], 59, "{r:#}");
     assert_eq!(r["integrity"]["missing_summaries"], 0, "{r:#}");
