@@ -19,8 +19,8 @@ use std::path::{Path, PathBuf};
 use heatbound::config::RigConfig;
 use heatbound::wire::{self, Decoder, DecoderStats};
 
-use crate::audit::{self, Input, LinkError, Received, Report};
-use crate::store::{LinkErrorKind, Log, StoreError};
+use crate::audit::{self, Received, Report};
+use crate::store::{Log, StoreError};
 
 /// The first 16 bytes of every SQLite 3 database file.
 const SQLITE_HEADER: &[u8; 16] = b"SQLite format 3\0";
@@ -50,6 +50,9 @@ pub enum CaptureError {
     /// The log database failed.
     #[error(transparent)]
     Store(#[from] StoreError),
+    /// The log could not be audited.
+    #[error(transparent)]
+    LogAudit(#[from] audit::LogAuditError),
     /// The run asked for is not in the log.
     #[error("{}: no run {id} in the log", path.display())]
     NoSuchRun {
@@ -134,78 +137,13 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats), Captur
     Ok((frames, *decoder.stats()))
 }
 
-/// Audits a run (the latest unless `run` is given) of the log database at `path`.
+/// Audits a run (the latest unless `run` is given) of the log database at
+/// `path`, opened read-only ([`audit::audit_log`] reads it).
 pub fn audit_database(
     path: &Path,
     run: Option<i64>,
     config: &RigConfig,
 ) -> Result<Report, CaptureError> {
-    let (frames, decoder, link_errors) = read_database(path, run)?;
-    Ok(audit::audit(
-        &Input {
-            frames: &frames,
-            decoder,
-            link_errors: &link_errors,
-        },
-        config,
-    ))
-}
-
-/// Reads a run (the latest unless `run` is given) from the log database.
-///
-/// The logger stores the decoder's losses as link-error rows; they become
-/// the audit's decoder counts. Gap, duplicate and restart rows are not
-/// counted again: the audit re-derives them from the stored frames. Each
-/// outage (the link dropped) is a link error.
-pub fn read_database(
-    path: &Path,
-    run: Option<i64>,
-) -> Result<(Vec<Received>, DecoderStats, Vec<LinkError>), CaptureError> {
     let log = Log::open_read(path)?;
-    let runs = log.runs()?;
-    let id = match run {
-        Some(id) if runs.iter().any(|r| r.id == id) => id,
-        Some(id) => {
-            return Err(CaptureError::NoSuchRun {
-                path: path.to_owned(),
-                id,
-            });
-        }
-        None => match runs.last() {
-            Some(r) => r.id,
-            None => {
-                return Err(CaptureError::NoRuns {
-                    path: path.to_owned(),
-                });
-            }
-        },
-    };
-    let mut frames = Vec::new();
-    for stored in log.frames(id)? {
-        let stored = stored?;
-        frames.push(Received {
-            host_ms: Some(stored.host_ms),
-            frame: stored.frame,
-        });
-    }
-    let mut stats = DecoderStats::default();
-    for row in log.link_errors(id)? {
-        match row.kind {
-            LinkErrorKind::Crc => stats.crc_errors += row.count,
-            LinkErrorKind::Overlong => stats.overlong += row.count,
-            LinkErrorKind::Malformed => stats.malformed += row.count,
-            LinkErrorKind::UnknownVersion => stats.unknown_version += row.count,
-            _ => {}
-        }
-    }
-    stats.frames = frames.len() as u64;
-    let link_errors = log
-        .outages(id)?
-        .into_iter()
-        .map(|o| LinkError {
-            host_ms: Some(o.started_host_ms),
-            message: format!("link down: {}", o.reason),
-        })
-        .collect();
-    Ok((frames, stats, link_errors))
+    Ok(audit::audit_log(&log, run, config)?)
 }
