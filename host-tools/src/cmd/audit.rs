@@ -53,6 +53,16 @@ pub fn run(args: &Args) -> Result<()> {
             bail!("{name}: --run applies to a log database, and this is a raw capture");
         }
         let (frames, decoder) = read_capture(&args.input)?;
+        // Not one frame: this is no capture of ours (an empty file, a CSV,
+        // random bytes), so there is nothing to judge. Unreadable, not
+        // untrustworthy.
+        if frames.is_empty() {
+            let bytes = std::fs::metadata(&args.input).map_or(0, |m| m.len());
+            bail!(
+                "{name}: not a heatbound capture or log: no frame in its {bytes} bytes \
+                 (give a capture from `simulate`/`watch --input`, or a log database)"
+            );
+        }
         audit::audit(
             &Input {
                 frames: &frames,
