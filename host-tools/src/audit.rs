@@ -49,6 +49,9 @@ use heatbound::config::{RigConfig, Uncertainty};
 use heatbound::monitor::{AlarmFigures, Faults, FigureSettings, Metrics};
 use heatbound::wire::{DecoderStats, Frame, Hello, Link, LinkTracker, Summary};
 use serde::Serialize;
+use std::collections::HashMap;
+
+use crate::store::{Impossible, LinkErrorKind, Log, RunId, StoreError};
 
 /// Relative tolerance of the recomputation, against the larger of the two
 /// values and the magnitude of the terms that form the figure.
@@ -99,6 +102,64 @@ pub struct Input<'a> {
     pub link_errors: &'a [LinkError],
 }
 
+/// What a log adds to its frames: how the run ended, rows that cannot be
+/// frames, and what the logger recorded besides the frames. A raw capture
+/// has none of these ([`LogFacts::default`]).
+#[derive(Clone, Debug, Default)]
+pub struct LogFacts {
+    /// Whether the writer closed the run (`runs.ended_host_ms` set);
+    /// `None` for a raw capture.
+    pub closed: Option<bool>,
+    /// Rows no frame can be, or counts no logger writes (the log was
+    /// altered), one readable line each.
+    pub tampered: Vec<String>,
+    /// Indices into [`Input::frames`] of summaries that stand in for a
+    /// tampered row: only their sequence number and device time are used.
+    pub placeholders: Vec<usize>,
+    /// Summaries the logger recognised as replayed and did not store.
+    pub replayed: u64,
+}
+
+/// Why a log could not be audited at all.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum LogAuditError {
+    /// The log could not be read.
+    #[error(transparent)]
+    Store(Box<StoreError>),
+    /// The run asked for is not in the log.
+    #[error("{path}: no run {run} in the log")]
+    NoSuchRun {
+        /// The database file.
+        path: String,
+        /// The run asked for.
+        run: RunId,
+    },
+    /// The log holds no runs.
+    #[error("{path}: the log holds no runs")]
+    NoRuns {
+        /// The database file.
+        path: String,
+    },
+}
+
+impl From<StoreError> for LogAuditError {
+    fn from(e: StoreError) -> Self {
+        LogAuditError::Store(Box::new(e))
+    }
+}
+
+/// Where a record that was never closed ends.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct RecordEnd {
+    /// Sequence number of the last summary, if any.
+    pub seq: Option<u16>,
+    /// Device time of the last frame with one, s.
+    pub t_s: Option<f64>,
+    /// Host receive time of the last frame, Unix ms.
+    pub host_ms: Option<i64>,
+}
+
 /// The audit's verdict and its evidence.
 #[derive(Clone, Debug, Serialize)]
 pub struct Report {
@@ -147,6 +208,23 @@ pub struct Integrity {
     pub unannounced_restarts: u64,
     /// Link errors the logger recorded.
     pub link_errors: u64,
+    /// Summaries sent again: the sequence went back to a summary already
+    /// seen in the current device session (since the last restart),
+    /// identical to it, and not a device starting over (its first summary
+    /// again, right after a Hello). Neither missing nor a restart; not
+    /// checked again.
+    pub replayed: u64,
+    /// Hello and event frames inside replayed sections (not checked again).
+    pub replayed_other: u64,
+    /// Summaries whose device time does not follow the sequence (time went
+    /// back or stood still, or jumped far beyond the summary spacing).
+    pub time_inconsistencies: u64,
+    /// Rows of the log no frame can be, or counts no logger writes.
+    pub tampered_rows: u64,
+    /// Whether the writer closed the run; `None` for a raw capture.
+    pub run_closed: Option<bool>,
+    /// Where the record ends, when the run was never closed.
+    pub record_ends_early: Option<RecordEnd>,
     /// A Hello arrived before the first summary.
     pub hello_before_first_summary: bool,
     /// Whether the latest Hello's config digest matches the configuration
@@ -367,8 +445,208 @@ fn list<T>(v: &mut Vec<T>, item: T) {
     }
 }
 
+/// A span of the audit's timeline, ms, in seconds.
+#[allow(clippy::cast_precision_loss)] // exact below 2^53 ms (285,000 years)
+fn ms_to_s(ms: i64) -> f64 {
+    ms as f64 / 1000.0
+}
+
 fn seconds(t_ms: u32) -> f64 {
     f64::from(t_ms) / 1000.0
+}
+
+/// `host_ms` as `YYYY-MM-DD HH:MM:SS.mmm UTC`.
+fn utc(host_ms: i64) -> String {
+    // Days to civil date (proleptic Gregorian), the well-known
+    // era-of-400-years conversion (common practice).
+    let days = host_ms.div_euclid(86_400_000);
+    let ms = host_ms.rem_euclid(86_400_000);
+    let z = days.saturating_add(719_468);
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe
+        .saturating_add(era.saturating_mul(400))
+        .saturating_add(i64::from(m <= 2));
+    format!(
+        "{y:04}-{m:02}-{d:02} {:02}:{:02}:{:02}.{:03} UTC",
+        ms / 3_600_000,
+        ms / 60_000 % 60,
+        ms / 1000 % 60,
+        ms % 1000
+    )
+}
+
+/// Audits run `run` (the latest if `None`) of `log` against `config`.
+///
+/// The logger stores the decoder's losses as `link_errors` rows; they
+/// become the audit's decoder counts (summed with checked arithmetic: a
+/// sum that overflows is a tampered log). Gap, duplicate and restart rows
+/// are not counted again: the audit re-derives them from the stored
+/// frames. Replay rows count replayed summaries. Each outage is a link
+/// error. A row no frame can be is a failed check, not an error; only a
+/// log that cannot be read at all is an `Err`.
+pub fn audit_log(
+    log: &Log,
+    run: Option<RunId>,
+    config: &RigConfig,
+) -> Result<Report, LogAuditError> {
+    let name = log.path().display().to_string();
+    let runs = log.runs()?;
+    let info = match run {
+        Some(id) => runs
+            .iter()
+            .find(|r| r.id == id)
+            .ok_or(LogAuditError::NoSuchRun {
+                path: name,
+                run: id,
+            })?,
+        None => runs.last().ok_or(LogAuditError::NoRuns { path: name })?,
+    };
+    let id = info.id;
+    let mut facts = LogFacts {
+        closed: Some(info.ended_host_ms.is_some()),
+        ..LogFacts::default()
+    };
+    let mut frames = Vec::new();
+    // Every row was received while the run was open.
+    let (start, end) = (info.started_host_ms, info.ended_host_ms);
+    let outside = |host_ms: i64| host_ms < start || end.is_some_and(|e| host_ms > e);
+    let window = format!(
+        "the run's time (started {start}{})",
+        end.map_or_else(String::new, |e| format!(", ended {e}"))
+    );
+    for stored in log.frames(id)? {
+        match stored {
+            Ok(s) => {
+                if outside(s.host_ms) {
+                    let (table, seq) = match &s.frame {
+                        Frame::Hello(_) => ("hellos", None),
+                        Frame::Summary(x) => ("summaries", Some(x.seq)),
+                        Frame::Event(x) => ("events", Some(x.seq)),
+                    };
+                    let at = seq.map_or_else(String::new, |s| format!(" seq {s}"));
+                    facts.tampered.push(format!(
+                        "{table} row{at}: host_ms {} is outside {window}",
+                        s.host_ms
+                    ));
+                }
+                frames.push(Received {
+                    host_ms: Some(s.host_ms),
+                    frame: s.frame,
+                });
+            }
+            Err(StoreError::ImpossibleValue(v)) => {
+                let Impossible {
+                    table,
+                    ord,
+                    seq,
+                    t_ms,
+                    column,
+                    ref value,
+                    why,
+                    ref also,
+                    ..
+                } = *v;
+                let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
+                facts.tampered.push(format!(
+                    "{table} row {ord}{at}: {column} = {value}: {why}{}",
+                    also.iter().map(|a| format!("; {a}")).collect::<String>()
+                ));
+                if let (Some(seq), Some(t_ms)) = (seq, t_ms) {
+                    facts.placeholders.push(frames.len());
+                    frames.push(Received {
+                        host_ms: None,
+                        frame: Frame::Summary(Summary {
+                            seq,
+                            t_ms,
+                            ..Summary::default()
+                        }),
+                    });
+                }
+            }
+            Err(StoreError::BadRow {
+                table, ord, reason, ..
+            }) => facts.tampered.push(format!("{table} row {ord}: {reason}")),
+            Err(e) => return Err(e.into()),
+        }
+    }
+    let mut stats = DecoderStats::default();
+    let mut overflowed: Vec<&'static str> = Vec::new();
+    for row in log.link_error_rows(id)? {
+        let row = match row {
+            Ok(row) => row,
+            Err(StoreError::BadRow {
+                table, ord, reason, ..
+            }) => {
+                facts.tampered.push(format!("{table} row {ord}: {reason}"));
+                continue;
+            }
+            Err(e) => return Err(e.into()),
+        };
+        if outside(row.host_ms) {
+            facts.tampered.push(format!(
+                "link_errors row {}: host_ms {} is outside {window}",
+                row.ord, row.host_ms
+            ));
+        }
+        let slot = match row.kind {
+            LinkErrorKind::Crc => &mut stats.crc_errors,
+            LinkErrorKind::Overlong => &mut stats.overlong,
+            LinkErrorKind::Malformed => &mut stats.malformed,
+            LinkErrorKind::UnknownVersion => &mut stats.unknown_version,
+            LinkErrorKind::Replay => &mut facts.replayed,
+            _ => continue,
+        };
+        match slot.checked_add(row.count) {
+            Some(n) => *slot = n,
+            None => {
+                *slot = u64::MAX;
+                if !overflowed.contains(&row.kind.as_str()) {
+                    overflowed.push(row.kind.as_str());
+                }
+            }
+        }
+    }
+    for kind in overflowed {
+        facts.tampered.push(format!(
+            "link_errors: the {kind} counts add up to more than 2^64, which no logger writes"
+        ));
+    }
+    stats.frames = u64::try_from(frames.len()).unwrap_or(u64::MAX);
+    let outages = log.outages(id)?;
+    for o in &outages {
+        let ended_before = o.ended_host_ms.is_some_and(|e| e < o.started_host_ms);
+        if outside(o.started_host_ms) || o.ended_host_ms.is_some_and(outside) || ended_before {
+            facts.tampered.push(format!(
+                "outages row {}: its times ({} to {}) are not inside {window} in order",
+                o.id,
+                o.started_host_ms,
+                o.ended_host_ms
+                    .map_or_else(|| "open".to_owned(), |e| e.to_string())
+            ));
+        }
+    }
+    let link_errors: Vec<LinkError> = outages
+        .into_iter()
+        .map(|o| LinkError {
+            host_ms: Some(o.started_host_ms),
+            message: format!("link down: {}", o.reason),
+        })
+        .collect();
+    Ok(audit_with(
+        &Input {
+            frames: &frames,
+            decoder: stats,
+            link_errors: &link_errors,
+        },
+        &facts,
+        config,
+    ))
 }
 
 /// Audits `input` against `config` (the defaults, or the user's `rig.toml`).
@@ -382,11 +660,22 @@ fn seconds(t_ms: u32) -> f64 {
 /// assert!(!report.trustworthy); // nothing received, nothing to trust
 /// ```
 pub fn audit(input: &Input<'_>, config: &RigConfig) -> Report {
+    audit_with(input, &LogFacts::default(), config)
+}
+
+/// [`audit`] with what a log adds to its frames.
+pub fn audit_with(input: &Input<'_>, facts: &LogFacts, config: &RigConfig) -> Report {
     let mut auditor = Auditor::new(config);
-    for r in input.frames {
-        auditor.frame(&r.frame);
+    let mut placeholders = facts.placeholders.iter().copied().peekable();
+    for (i, r) in input.frames.iter().enumerate() {
+        let placeholder = placeholders.next_if_eq(&i).is_some();
+        auditor.frame(&r.frame, !placeholder);
+        if r.host_ms.is_some() {
+            auditor.last_host_ms = r.host_ms;
+        }
     }
-    auditor.finish(input)
+    auditor.take_held_hello();
+    auditor.finish(input, facts)
 }
 
 struct Auditor<'c> {
@@ -407,6 +696,24 @@ struct Auditor<'c> {
     period_ms: i64,
     /// Start of the current run of second-law violations.
     violation_since: Option<i64>,
+    /// The summary of each sequence number seen in the current device
+    /// session (since the last restart), to tell a replay from a restart.
+    session: HashMap<u16, Summary>,
+    /// The first summary of the current device session.
+    session_first: Option<Summary>,
+    /// Sequence number of the latest summary taken (not replayed).
+    last_seq: Option<u16>,
+    /// The previous summary was a replay.
+    in_replay: bool,
+    /// A Hello identical to the latest one, met inside a replay: part of
+    /// the replay if a replayed summary follows, else taken then.
+    held_hello: Option<Hello>,
+    /// Shortest consistent in-order summary spacing, ms.
+    min_step_ms: Option<i64>,
+    /// Host time of the latest frame that has one.
+    last_host_ms: Option<i64>,
+    /// Raw device time of the latest frame that has one.
+    last_t_ms: Option<u32>,
 }
 
 impl<'c> Auditor<'c> {
@@ -435,10 +742,76 @@ impl<'c> Auditor<'c> {
             prev_t: None,
             period_ms: 1000,
             violation_since: None,
+            session: HashMap::new(),
+            session_first: None,
+            last_seq: None,
+            in_replay: false,
+            held_hello: None,
+            min_step_ms: None,
+            last_host_ms: None,
+            last_t_ms: None,
         }
     }
 
-    fn frame(&mut self, frame: &Frame) {
+    /// Whether summary `s` replays one already seen in this device session:
+    /// the sequence went back (or stayed, inside a replay) to a summary of
+    /// this session identical to `s` (same device time, same integrals).
+    /// A restart starts a new session near boot time: with contents of its
+    /// own, or, after its Hello, with the session's first summary again (a
+    /// device that started over).
+    fn is_replay(&self, s: &Summary) -> bool {
+        let Some(last) = self.last_seq else {
+            return false;
+        };
+        let d = s.seq.wrapping_sub(last);
+        let back = d >= 0x8000 || (d == 0 && self.in_replay);
+        // A device that started over sends its first summary again after
+        // its Hello: a restart, even when the contents repeat exactly.
+        let started_over = self.after_hello && !self.in_replay && self.session_first == Some(*s);
+        back && !started_over && self.session.get(&s.seq) == Some(s)
+    }
+
+    /// One frame; `trusted` is false for a placeholder of a tampered row
+    /// (only its sequence number and device time are used).
+    fn frame(&mut self, frame: &Frame, trusted: bool) {
+        match frame {
+            Frame::Summary(s) if self.is_replay(s) => {
+                if self.held_hello.take().is_some() {
+                    self.integrity.replayed_other += 1;
+                }
+                self.integrity.replayed += 1;
+                self.in_replay = true;
+                self.after_hello = false;
+                return;
+            }
+            Frame::Event(_) if self.in_replay => {
+                self.integrity.replayed_other += 1;
+                return;
+            }
+            Frame::Hello(h)
+                if self.in_replay
+                    && self.held_hello.is_none()
+                    && self.hello.as_ref() == Some(h) =>
+            {
+                self.held_hello = Some(*h);
+                return;
+            }
+            _ => {}
+        }
+        self.in_replay = false;
+        self.take_held_hello();
+        self.take(frame, trusted);
+    }
+
+    /// A Hello held at the end of a replay was the stream's own: take it.
+    fn take_held_hello(&mut self) {
+        if let Some(h) = self.held_hello.take() {
+            self.take(&Frame::Hello(h), true);
+        }
+    }
+
+    /// One frame that is not a replay.
+    fn take(&mut self, frame: &Frame, trusted: bool) {
         let link = self.link.observe(frame);
         match frame {
             Frame::Hello(h) => {
@@ -454,6 +827,7 @@ impl<'c> Auditor<'c> {
             }
             Frame::Event(e) => {
                 self.integrity.events += 1;
+                self.last_t_ms = Some(e.event.t_ms);
                 self.event(e.event);
                 self.after_hello = false;
             }
@@ -462,7 +836,17 @@ impl<'c> Auditor<'c> {
                 if self.integrity.summaries == 1 {
                     self.integrity.hello_before_first_summary = self.hello.is_some();
                 }
-                self.summary(s, link);
+                if matches!(link, Link::Restart) {
+                    // A new device session.
+                    self.session.clear();
+                }
+                if self.session.is_empty() {
+                    self.session_first = Some(*s);
+                }
+                self.session.insert(s.seq, *s);
+                self.last_seq = Some(s.seq);
+                self.last_t_ms = Some(s.t_ms);
+                self.summary(s, link, trusted);
                 self.after_hello = false;
             }
         }
@@ -471,7 +855,11 @@ impl<'c> Auditor<'c> {
     /// The event's time on the audit's unwrapped timeline.
     fn unwrap_time(&self, t_ms: u32) -> i64 {
         match self.prev_t {
-            Some((prev, raw)) => prev + i64::from(t_ms.wrapping_sub(raw) as i32),
+            // The wrapping difference read as signed: the shorter way
+            // round the 2^32 ms clock.
+            Some((prev, raw)) => {
+                prev.saturating_add(i64::from(t_ms.wrapping_sub(raw).cast_signed()))
+            }
             None => i64::from(t_ms),
         }
     }
@@ -490,7 +878,7 @@ impl<'c> Auditor<'c> {
         }
     }
 
-    fn summary(&mut self, s: &Summary, link: Link) {
+    fn summary(&mut self, s: &Summary, link: Link, trusted: bool) {
         // The timeline and the continuity with the previous summary.
         let (t, continuous) = match (link, self.prev_t) {
             (Link::Restart, Some((prev, _))) => {
@@ -504,14 +892,58 @@ impl<'c> Auditor<'c> {
             (_, Some(_)) => (self.unwrap_time(s.t_ms), false),
             (_, None) => (i64::from(s.t_ms), false),
         };
-        if continuous && let Some((prev, _)) = self.prev_t {
-            self.period_ms = self.period_ms.max(t - prev);
+        // Device time must follow the sequence: forward, by about the
+        // summary spacing per sequence step.
+        let steps = match link {
+            Link::InOrder => Some(1),
+            Link::Gap { missing } => Some(i64::from(missing) + 1),
+            _ => None,
+        };
+        let mut advance = true;
+        if let (Some(steps), Some((prev, prev_raw))) = (steps, self.prev_t) {
+            let step = t.saturating_sub(prev);
+            let jump = self
+                .min_step_ms
+                .is_some_and(|min| step > min.saturating_mul(4).saturating_mul(steps));
+            if step <= 0 || jump {
+                self.integrity.time_inconsistencies += 1;
+                let what = if step <= 0 {
+                    // Keep the timeline on the earlier, consistent time.
+                    advance = false;
+                    "device time went back or stood still"
+                } else {
+                    "device time jumped far beyond the summary spacing"
+                };
+                list(
+                    &mut self.integrity.problems,
+                    format!(
+                        "summaries row seq {}: t_ms = {} ({:.3} s) after {:.3} s at the previous \
+                         summary: {what} while the sequence went on",
+                        s.seq,
+                        s.t_ms,
+                        seconds(s.t_ms),
+                        seconds(prev_raw)
+                    ),
+                );
+            } else {
+                if continuous {
+                    self.period_ms = self.period_ms.max(step);
+                }
+                if steps == 1 {
+                    self.min_step_ms = Some(self.min_step_ms.map_or(step, |m| m.min(step)));
+                }
+            }
         }
         if matches!(link, Link::Restart) {
             self.tracks = Default::default();
             self.violation_since = None;
         }
-        self.prev_t = Some((t, s.t_ms));
+        if advance {
+            self.prev_t = Some((t, s.t_ms));
+        }
+        if !trusted {
+            return;
+        }
 
         let m = self.recompute(s);
         self.check_second_law(s, &m, t);
@@ -563,15 +995,22 @@ impl<'c> Auditor<'c> {
         for (name, device, host, scale) in figures {
             rc.figures += 1;
             let (dv, hv) = (f(device), f(host));
+            // A tolerance is only ever computed from finite values: a
+            // non-finite figure (or term) is a mismatch, never a free pass.
+            let finite = |x: Option<f64>| x.is_none_or(f64::is_finite);
             let tolerance = match (dv, hv) {
-                (Some(a), Some(b)) => REL_TOL * a.abs().max(b.abs()).max(scale) + ABS_TOL,
+                (Some(a), Some(b)) if a.is_finite() && b.is_finite() && scale.is_finite() => {
+                    REL_TOL * a.abs().max(b.abs()).max(scale) + ABS_TOL
+                }
                 _ => ABS_TOL,
             };
-            let agree = match (dv, hv) {
-                (Some(a), Some(b)) => (a - b).abs() <= tolerance,
-                (None, None) => true,
-                _ => false,
-            };
+            let agree = finite(dv)
+                && finite(hv)
+                && match (dv, hv) {
+                    (Some(a), Some(b)) => (a - b).abs() <= tolerance,
+                    (None, None) => true,
+                    _ => false,
+                };
             if !agree {
                 rc.mismatches += 1;
                 list(
@@ -580,8 +1019,8 @@ impl<'c> Auditor<'c> {
                         seq: s.seq,
                         t_s: seconds(s.t_ms),
                         figure: name,
-                        device: dv,
-                        recomputed: hv,
+                        device: dv.filter(|x| x.is_finite()),
+                        recomputed: hv.filter(|x| x.is_finite()),
                         tolerance,
                     },
                 );
@@ -623,7 +1062,8 @@ impl<'c> Auditor<'c> {
             .filter(|r| self.ctx.enabled[r.index()])
             .map(|r| self.ctx.on_ms[r.index()])
             .max();
-        let pending = grace.is_some_and(|on| t - since <= on + self.period_ms);
+        let pending =
+            grace.is_some_and(|on| t.saturating_sub(since) <= on.saturating_add(self.period_ms));
         if Self::second_law_alarm_active(s) || pending {
             sl.flagged += 1;
         } else {
@@ -641,7 +1081,7 @@ impl<'c> Auditor<'c> {
                     rule: None,
                     message: format!(
                         "{what} for {:.1} s with no second-law alarm active",
-                        (t - since) as f64 / 1000.0
+                        ms_to_s(t.saturating_sub(since))
                     ),
                 },
             );
@@ -699,7 +1139,9 @@ impl<'c> Auditor<'c> {
             let raises = core::mem::take(&mut track.pending_raises);
             let event = track.event_since_summary.take();
             let last_raise = track.last_raise;
-            let supported = |at: i64| last_raise.is_some_and(|r| r >= at - on - period);
+            let supported = |at: i64| {
+                last_raise.is_some_and(|r| r >= at.saturating_sub(on).saturating_sub(period))
+            };
             let mut findings: Vec<String> = Vec::new();
             let newly = bit && !track.last_bit;
             for &(te, raw) in &raises {
@@ -741,13 +1183,13 @@ impl<'c> Auditor<'c> {
                 && !track.missed_reported
                 && track
                     .raise_since
-                    .is_some_and(|since| t - since > on + period)
+                    .is_some_and(|since| t.saturating_sub(since) > on.saturating_add(period))
             {
                 track.missed_reported = true;
                 self.alarms.missed += 1;
                 findings.push(format!(
                     "condition held for {:.1} s without the alarm",
-                    (t - track.raise_since.unwrap_or(t)) as f64 / 1000.0
+                    ms_to_s(t.saturating_sub(track.raise_since.unwrap_or(t)))
                 ));
             }
             if bit
@@ -755,13 +1197,13 @@ impl<'c> Auditor<'c> {
                 && !track.stuck_reported
                 && track
                     .clear_since
-                    .is_some_and(|since| t - since > off + period)
+                    .is_some_and(|since| t.saturating_sub(since) > off.saturating_add(period))
             {
                 track.stuck_reported = true;
                 self.alarms.stuck += 1;
                 findings.push(format!(
                     "still active {:.1} s after its condition cleared",
-                    (t - track.clear_since.unwrap_or(t)) as f64 / 1000.0
+                    ms_to_s(t.saturating_sub(track.clear_since.unwrap_or(t)))
                 ));
             }
             track.last_bit = bit;
@@ -779,7 +1221,7 @@ impl<'c> Auditor<'c> {
         }
     }
 
-    fn finish(mut self, input: &Input<'_>) -> Report {
+    fn finish(mut self, input: &Input<'_>, facts: &LogFacts) -> Report {
         // Raised events after the last summary: judge on what was seen.
         let period = self.period_ms;
         for rule in CHECKED {
@@ -788,7 +1230,10 @@ impl<'c> Auditor<'c> {
             let track = &mut self.tracks[i];
             for (te, raw) in core::mem::take(&mut track.pending_raises) {
                 self.alarms.activations += 1;
-                if track.last_raise.is_none_or(|r| r < te - on - period) {
+                if track
+                    .last_raise
+                    .is_none_or(|r| r < te.saturating_sub(on).saturating_sub(period))
+                {
                     self.alarms.unsupported += 1;
                     list(
                         &mut self.alarms.findings,
@@ -804,7 +1249,7 @@ impl<'c> Auditor<'c> {
         }
         self.alarms.on_delay_s = CHECKED
             .iter()
-            .map(|r| (*r, self.ctx.on_ms[r.index()] as f64 / 1000.0))
+            .map(|r| (*r, ms_to_s(self.ctx.on_ms[r.index()])))
             .collect();
 
         let d = &input.decoder;
@@ -818,23 +1263,63 @@ impl<'c> Auditor<'c> {
         g.bytes_discarded = d.bytes_discarded;
         g.missing_summaries = link.missing_summaries;
         g.duplicates = link.duplicates;
-        g.link_errors = input.link_errors.len() as u64;
-        let mut problems = Vec::new();
+        g.link_errors = u64::try_from(input.link_errors.len()).unwrap_or(u64::MAX);
+        g.replayed = g.replayed.saturating_add(facts.replayed);
+        g.tampered_rows = u64::try_from(facts.tampered.len()).unwrap_or(u64::MAX);
+        g.run_closed = facts.closed;
+        // Found while reading the frames (time against the sequence).
+        let mut problems = core::mem::take(&mut g.problems);
+        for t in facts.tampered.iter().take(MAX_LISTED) {
+            problems.push(format!("tampered log: {t}"));
+        }
+        if facts.tampered.len() > MAX_LISTED {
+            problems.push(format!(
+                "tampered log: {} rows in all",
+                facts.tampered.len()
+            ));
+        }
+        if g.time_inconsistencies > MAX_LISTED as u64 {
+            problems.push(format!(
+                "{} summaries whose device time does not follow the sequence",
+                g.time_inconsistencies
+            ));
+        }
+        if facts.closed == Some(false) {
+            let end = RecordEnd {
+                seq: self.last_seq,
+                t_s: self.last_t_ms.map(seconds),
+                host_ms: self.last_host_ms,
+            };
+            g.record_ends_early = Some(end);
+            problems.push(format!(
+                "the run was never closed (the writer stopped, or is still running): the \
+                 record ends early, at {}",
+                match (end.seq, end.t_s, end.host_ms) {
+                    (None, None, None) => "its start: no frame was logged".to_owned(),
+                    (seq, t, host) => format!(
+                        "seq {}, device time {}, host time {}",
+                        seq.map_or_else(|| "n/a".to_owned(), |s| s.to_string()),
+                        t.map_or_else(|| "n/a".to_owned(), |t| format!("{t:.3} s")),
+                        host.map_or_else(|| "n/a".to_owned(), utc)
+                    ),
+                }
+            ));
+        }
         if g.summaries == 0 {
             problems.push("no summaries: nothing to check".to_owned());
         } else if !g.hello_before_first_summary {
             problems.push("no Hello before the first summary: its settings are unknown".to_owned());
         }
-        if d.losses() > 0 {
+        let losses = d
+            .crc_errors
+            .saturating_add(d.overlong)
+            .saturating_add(d.malformed)
+            .saturating_add(d.unknown_version);
+        if losses > 0 {
             problems.push(format!(
                 "{} frames lost ({} CRC, {} overlong, {} malformed, {} unknown version), \
                  {} bytes discarded",
-                d.losses(),
-                d.crc_errors,
-                d.overlong,
-                d.malformed,
-                d.unknown_version,
-                d.bytes_discarded
+                losses, d.crc_errors, d.overlong, d.malformed, d.unknown_version, d.bytes_discarded
             ));
         }
         if g.missing_summaries > 0 {
@@ -845,6 +1330,19 @@ impl<'c> Auditor<'c> {
         }
         if g.duplicates > 0 {
             problems.push(format!("{} duplicate summaries", g.duplicates));
+        }
+        if g.replayed > 0 {
+            problems.push(format!(
+                "{} summaries replayed (sent again, identical to summaries already seen \
+                 since the device's last restart){}: not checked again, not counted as missing \
+                 or as a restart",
+                g.replayed,
+                if g.replayed_other > 0 {
+                    format!(", with {} Hello and event frames", g.replayed_other)
+                } else {
+                    String::new()
+                }
+            ));
         }
         if g.unannounced_restarts > 0 {
             problems.push(format!(
@@ -865,8 +1363,9 @@ impl<'c> Auditor<'c> {
         let rc = &mut self.recomputation;
         rc.pass = rc.mismatches == 0 && rc.summaries > 0;
         let sl = &mut self.second_law;
-        sl.violation_fraction =
-            (sl.evaluable > 0).then(|| sl.violations as f64 / sl.evaluable as f64);
+        #[allow(clippy::cast_precision_loss)] // a fraction: 2^53 summaries are far off
+        let fraction = |a: u64, b: u64| a as f64 / b as f64;
+        sl.violation_fraction = (sl.evaluable > 0).then(|| fraction(sl.violations, sl.evaluable));
         sl.pass = sl.unflagged == 0;
         let a = &mut self.alarms;
         a.pass =
@@ -904,7 +1403,7 @@ impl Report {
             o,
             "integrity           {}  {} frames ({} hello, {} summary, {} event); lost: {} CRC, \
              {} overlong, {} malformed, {} unknown version; {} missing, {} duplicate, \
-             {} restarts ({} unannounced); {} link errors",
+             {} restarts ({} unannounced), {} replayed; {} link errors",
             verdict(g.pass),
             g.frames,
             g.hellos,
@@ -918,6 +1417,7 @@ impl Report {
             g.duplicates,
             g.restarts,
             g.unannounced_restarts,
+            g.replayed,
             g.link_errors
         );
         for p in &g.problems {
@@ -1041,6 +1541,19 @@ mod tests {
         let hello = Hello::from_config(id, (0, 1, 0), 100, &c);
         let eff = effective_config(&RigConfig::default(), &hello);
         assert_eq!(Hello::config_digest(&eff), hello.config_digest);
+    }
+
+    #[test]
+    fn host_times_read_as_utc_and_never_panic() {
+        // Unix time 1_700_000_000 s is 2023-11-14 22:13:20 UTC (from memory;
+        // POSIX.1-2017 §4.16 gives the formula the conversion follows).
+        assert_eq!(utc(1_700_000_000_123), "2023-11-14 22:13:20.123 UTC");
+        // The epoch itself, and a time before it (POSIX §4.16, day 0).
+        assert_eq!(utc(0), "1970-01-01 00:00:00.000 UTC");
+        assert_eq!(utc(-1), "1969-12-31 23:59:59.999 UTC");
+        // A crafted log may hold any i64.
+        assert!(!utc(i64::MIN).is_empty());
+        assert!(!utc(i64::MAX).is_empty());
     }
 
     #[test]

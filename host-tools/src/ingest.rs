@@ -8,7 +8,11 @@
 //!
 //! Decoder losses are found by diffing [`DecoderStats`] after each
 //! [`Ingest::feed`]: one `link_errors` row per kind and feed, with the count.
-//! Sequence gaps, duplicates and restarts get one row each. Per frame, the
+//! Sequence gaps, duplicates and restarts get one row each. A replayed
+//! section (the sequence back, with no Hello right before, to a summary of
+//! the current device session identical to it) is not stored: its
+//! summaries are counted in one `replay` row per section and feed, and its
+//! Hello and event frames are named in that row's detail. Per frame, the
 //! only allocation is what SQLite's batch needs; the live line is written
 //! into one reused buffer.
 //!
@@ -33,6 +37,7 @@
 //! let totals = ingest.finish(20).unwrap();
 //! assert_eq!(totals.summaries, 1);
 //! ```
+use std::collections::HashMap;
 use std::fmt::Write as _;
 
 use heatbound::alarm::{RuleId, Severity};
@@ -101,6 +106,10 @@ pub struct Totals {
     pub duplicates: u64,
     /// Controller restarts.
     pub restarts: u64,
+    /// Summaries replayed (sent again), not stored.
+    pub replayed: u64,
+    /// Hello and event frames inside replayed sections, not stored.
+    pub replayed_other: u64,
     /// Link outages.
     pub outages: u64,
 }
@@ -108,7 +117,10 @@ pub struct Totals {
 impl Totals {
     /// Frames lost by the decoder, of every kind.
     pub const fn losses(&self) -> u64 {
-        self.crc_errors + self.overlong + self.malformed + self.unknown_version
+        self.crc_errors
+            .saturating_add(self.overlong)
+            .saturating_add(self.malformed)
+            .saturating_add(self.unknown_version)
     }
 }
 
@@ -131,6 +143,33 @@ pub struct Ingest {
     totals: Totals,
     limit: Option<u64>,
     outage: Option<i64>,
+    /// The summary of each sequence number in the current device session
+    /// (since the last restart).
+    session: HashMap<u16, Summary>,
+    /// The first summary of the current device session.
+    session_first: Option<Summary>,
+    /// The latest Hello.
+    hello: Option<Hello>,
+    /// The previous frame taken was a Hello.
+    after_hello: bool,
+    /// The replayed section being counted, not yet logged.
+    replay: Option<Replay>,
+    /// The previous frame was part of a replay (logged or not).
+    in_replay: bool,
+    /// A Hello identical to the latest one, met inside a replay, with its
+    /// receive time: part of the replay if a replayed summary follows, else
+    /// logged then.
+    held_hello: Option<(Hello, i64)>,
+}
+
+/// A replayed section not yet logged.
+#[derive(Clone, Copy, Debug)]
+struct Replay {
+    host_ms: i64,
+    first_seq: u16,
+    last_seq: u16,
+    summaries: u64,
+    other: u64,
 }
 
 impl Ingest {
@@ -161,6 +200,13 @@ impl Ingest {
             },
             limit: None,
             outage: None,
+            session: HashMap::new(),
+            session_first: None,
+            hello: None,
+            after_hello: false,
+            replay: None,
+            in_replay: false,
+            held_hello: None,
         })
     }
 
@@ -217,7 +263,8 @@ impl Ingest {
                 }
             }
         }
-        self.record_losses(host_ms)
+        self.record_losses(host_ms)?;
+        self.record_replay()
     }
 
     /// Commits the open batch if it is older than the batching age.
@@ -257,6 +304,8 @@ impl Ingest {
             self.totals.bytes = self.totals.bytes.saturating_sub(1);
         }
         self.record_losses(host_ms)?;
+        self.record_replay()?;
+        self.take_held_hello(&mut |_| {})?;
         if let Some(id) = self.outage.take() {
             self.log.end_outage(id, host_ms)?;
         }
@@ -267,17 +316,26 @@ impl Ingest {
     fn record_losses(&mut self, host_ms: i64) -> Result<(), StoreError> {
         let now = *self.decoder.stats();
         let before = self.seen;
-        if now.losses() == before.losses() {
+        if now == before {
             self.seen = now;
             return Ok(());
         }
         let deltas = [
-            (LinkErrorKind::Crc, now.crc_errors - before.crc_errors),
-            (LinkErrorKind::Overlong, now.overlong - before.overlong),
-            (LinkErrorKind::Malformed, now.malformed - before.malformed),
+            (
+                LinkErrorKind::Crc,
+                now.crc_errors.saturating_sub(before.crc_errors),
+            ),
+            (
+                LinkErrorKind::Overlong,
+                now.overlong.saturating_sub(before.overlong),
+            ),
+            (
+                LinkErrorKind::Malformed,
+                now.malformed.saturating_sub(before.malformed),
+            ),
             (
                 LinkErrorKind::UnknownVersion,
-                now.unknown_version - before.unknown_version,
+                now.unknown_version.saturating_sub(before.unknown_version),
             ),
         ];
         self.seen = now;
@@ -307,16 +365,139 @@ impl Ingest {
         Ok(())
     }
 
+    /// Logs the replayed section counted so far, if any.
+    fn record_replay(&mut self) -> Result<(), StoreError> {
+        let Some(r) = self.replay.take() else {
+            return Ok(());
+        };
+        self.line.clear();
+        let _ = write!(
+            self.line,
+            "{} summaries sent again (seq {} to {}), not stored",
+            r.summaries, r.first_seq, r.last_seq
+        );
+        if r.other > 0 {
+            let _ = write!(
+                self.line,
+                "; {} Hello and event frames in them, not stored",
+                r.other
+            );
+        }
+        let detail = std::mem::take(&mut self.line);
+        let result = self.log.insert_link_error(
+            self.run,
+            r.host_ms,
+            LinkErrorKind::Replay,
+            r.summaries,
+            &detail,
+        );
+        self.line = detail;
+        result
+    }
+
+    /// Whether summary `s` replays one already seen in this device
+    /// session: the same rule as the audit's (`heatbound_host::audit`,
+    /// `Integrity::replayed`).
+    fn is_replay(&self, s: &Summary) -> bool {
+        let Some(last) = self.last_seq else {
+            return false;
+        };
+        let d = s.seq.wrapping_sub(last);
+        let back = d >= 0x8000 || (d == 0 && self.in_replay);
+        // A device that started over sends its first summary again after
+        // its Hello: a restart, even when the contents repeat exactly.
+        let started_over = self.after_hello && !self.in_replay && self.session_first == Some(*s);
+        back && !started_over && self.session.get(&s.seq) == Some(s)
+    }
+
+    /// Counts a Hello or event frame inside a replayed section.
+    fn replayed_other(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        self.totals.replayed_other += 1;
+        let seq = self.last_seq.unwrap_or_default();
+        let r = self.replay.get_or_insert(Replay {
+            host_ms,
+            first_seq: seq,
+            last_seq: seq,
+            summaries: 0,
+            other: 0,
+        });
+        r.other += 1;
+        Ok(())
+    }
+
     fn on_frame(
         &mut self,
         frame: &Frame,
         host_ms: i64,
         on_line: &mut impl FnMut(&str),
     ) -> Result<(), StoreError> {
+        match frame {
+            Frame::Summary(s) if self.is_replay(s) => {
+                if let Some((_, at)) = self.held_hello.take() {
+                    self.replayed_other(at)?;
+                }
+                self.totals.replayed += 1;
+                self.in_replay = true;
+                let r = self.replay.get_or_insert(Replay {
+                    host_ms,
+                    first_seq: s.seq,
+                    last_seq: s.seq,
+                    summaries: 0,
+                    other: 0,
+                });
+                r.last_seq = s.seq;
+                r.summaries += 1;
+                return Ok(());
+            }
+            Frame::Event(_) if self.in_replay => return self.replayed_other(host_ms),
+            Frame::Hello(h)
+                if self.in_replay
+                    && self.held_hello.is_none()
+                    && self.hello.as_ref() == Some(h) =>
+            {
+                self.held_hello = Some((*h, host_ms));
+                return Ok(());
+            }
+            _ => {
+                self.in_replay = false;
+                self.record_replay()?;
+                self.take_held_hello(on_line)?;
+            }
+        }
+        self.take(frame, host_ms, on_line)
+    }
+
+    /// A Hello held at the end of a replay was the stream's own: log it.
+    fn take_held_hello(&mut self, on_line: &mut impl FnMut(&str)) -> Result<(), StoreError> {
+        match self.held_hello.take() {
+            Some((h, at)) => self.take(&Frame::Hello(h), at, on_line),
+            None => Ok(()),
+        }
+    }
+
+    /// Logs one frame that is not a replay.
+    fn take(
+        &mut self,
+        frame: &Frame,
+        host_ms: i64,
+        on_line: &mut impl FnMut(&str),
+    ) -> Result<(), StoreError> {
         let link = self.link.observe(frame);
-        if let Frame::Summary(s) = frame {
-            self.link_event(link, s.seq, host_ms)?;
-            self.last_seq = Some(s.seq);
+        self.after_hello = matches!(frame, Frame::Hello(_));
+        match frame {
+            Frame::Hello(h) => self.hello = Some(*h),
+            Frame::Summary(s) => {
+                if matches!(link, Link::Restart) {
+                    self.session.clear();
+                }
+                if self.session.is_empty() {
+                    self.session_first = Some(*s);
+                }
+                self.session.insert(s.seq, *s);
+                self.link_event(link, s.seq, host_ms)?;
+                self.last_seq = Some(s.seq);
+            }
+            Frame::Event(_) => {}
         }
         self.log.insert_frame(self.run, host_ms, frame)?;
         self.totals.frames += 1;
@@ -348,7 +529,10 @@ impl Ingest {
         let (kind, count) = match link {
             Link::Gap { missing } => {
                 self.totals.gaps += 1;
-                self.totals.missing_summaries += u64::from(missing);
+                self.totals.missing_summaries = self
+                    .totals
+                    .missing_summaries
+                    .saturating_add(u64::from(missing));
                 (LinkErrorKind::Gap, u64::from(missing))
             }
             Link::Duplicate => {

@@ -1,10 +1,31 @@
 //! `heatbound-host`: the host tool's library half, shared by the `heatbound`
 //! binary, its integration tests and examples.
 //!
-//! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
-//! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`).
+//! The engines, in the order data flows through them:
 //!
-//! The subcommands themselves (`cmd`) live in the binary.
+//! - [`cycle_file`]: an ideal-gas reference cycle from TOML, evaluated, as a table or JSON;
+//! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
+//! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
+//! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
+//! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
+//! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
+//! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
+//! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
+//! - [`audit`]: the audit engine, pure: integrity, recomputation, second law, alarm consistency;
+//! - [`chart`]: the chart renderer, a run of the log as a PNG or SVG picture;
+//! - [`term`]: what every command prints beside its output (the safety note).
+//!
+//! The subcommands themselves (`cmd`) live in the binary; each parses its
+//! arguments, calls these engines and prints.
+#![warn(missing_docs)]
 pub mod audit;
+pub mod capture;
+pub mod chart;
+pub mod cycle_file;
 pub mod ingest;
+pub mod link;
+pub mod replay;
+pub mod rigfile;
+pub mod sil;
 pub mod store;
+pub mod term;

@@ -4,14 +4,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod cmd;
-use heatbound_host::{ingest, store};
-mod sil;
-
-/// Cautions printed beside reports and in the help text.
-pub const SAFETY_NOTE: &str = "Caution: heat-engine rigs have hot surfaces, pressurised parts, \
-rotating parts and electric heaters. heatbound alarms are monitoring aids, not a safety-rated \
-interlock: keep hardwired cut-outs, relief devices and guards in place, and follow local codes \
-and licensed practice.";
+use heatbound_host::term::SAFETY_NOTE;
 
 #[derive(Parser)]
 #[command(name = "heatbound", version, about = "Thermodynamic checks for heat-engine test rigs", after_help = SAFETY_NOTE)]
@@ -91,8 +84,11 @@ fn main() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(err) => {
-            // One line, the whole cause chain: file, place and reason.
-            eprintln!("heatbound: error: {err:#}");
+            // One line: file, place and reason, each cause once.
+            eprintln!(
+                "heatbound: error: {}",
+                heatbound_host::term::error_line(err.as_ref())
+            );
             ExitCode::from(2)
         }
     }

@@ -13,9 +13,12 @@
 //!
 //! Writes are batched: one transaction stays open and is committed every
 //! [`Batching::max_rows`] rows, when [`Log::commit_if_due`] finds it older
-//! than [`Batching::max_age_ms`], and on [`Log::commit`]. The journal is WAL
-//! with `synchronous=NORMAL`, so a killed process leaves a database that
-//! opens with every committed batch.
+//! than [`Batching::max_age_ms`], and on [`Log::commit`]. While a writer has
+//! the log open the journal is WAL with `synchronous=NORMAL`, so a killed
+//! process leaves a database that opens with every committed batch. A
+//! writer whose last act was [`Log::end_run`] switches the file back to
+//! `journal_mode=DELETE` when it is dropped, so that reading a closed log
+//! ([`Log::open_read`], read-only) leaves no `-wal`/`-shm` files.
 //!
 //! ```
 //! use heatbound::wire::{Frame, Summary};
@@ -132,6 +135,10 @@ pub const MIGRATIONS: &[&str] = &[
         reason          TEXT NOT NULL
     );
     CREATE INDEX outages_run ON outages(run_id, started_host_ms);",
+    // 2: `link_errors.kind` may be 'replay' (summaries sent again, not
+    // stored); the view lists them.
+    "CREATE VIEW replays AS
+        SELECT run_id, ord, host_ms, count, detail FROM link_errors WHERE kind = 'replay';",
 ];
 
 /// What went wrong with the log.
@@ -171,6 +178,10 @@ pub enum StoreError {
         /// [`SCHEMA_VERSION`].
         known: i64,
     },
+    /// A stored value no frame can hold: not finite, outside the f32 range,
+    /// not an f32 at all, or undefined bits (the log was altered).
+    #[error("{0}")]
+    ImpossibleValue(Box<Impossible>),
     /// A stored row cannot be turned back into a frame.
     #[error("{path}: run {run_id}, {table} row {ord}: {reason}")]
     BadRow {
@@ -185,6 +196,52 @@ pub enum StoreError {
         /// What is wrong.
         reason: String,
     },
+}
+
+/// A stored value no frame can hold (see [`StoreError::ImpossibleValue`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Impossible {
+    /// The database file.
+    pub path: PathBuf,
+    /// The run.
+    pub run_id: i64,
+    /// The table.
+    pub table: &'static str,
+    /// The row's `ord`.
+    pub ord: i64,
+    /// The summary's sequence number, when it could be read.
+    pub seq: Option<u16>,
+    /// The summary's device time, ms, when it could be read.
+    pub t_ms: Option<u32>,
+    /// The column.
+    pub column: &'static str,
+    /// The stored value, as text.
+    pub value: String,
+    /// Why no frame can hold it.
+    pub why: &'static str,
+    /// Further impossible values of the same row, `column = value: why` each.
+    pub also: Vec<String>,
+}
+
+impl std::fmt::Display for Impossible {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "{}: run {}, {} row {}",
+            self.path.display(),
+            self.run_id,
+            self.table,
+            self.ord
+        )?;
+        if let Some(seq) = self.seq {
+            write!(f, " (seq {seq})")?;
+        }
+        write!(f, ": {} = {}: {}", self.column, self.value, self.why)?;
+        for a in &self.also {
+            write!(f, "; {a}")?;
+        }
+        Ok(())
+    }
 }
 
 /// When a batch is committed.
@@ -252,11 +309,15 @@ pub enum LinkErrorKind {
     Duplicate,
     /// The sequence went back: the controller restarted.
     Restart,
+    /// Summaries sent again (sequence and device time back to values
+    /// already seen since the last Hello, no Hello between): not stored;
+    /// `count` = how many summaries. Schema version 2.
+    Replay,
 }
 
 impl LinkErrorKind {
     /// Every kind.
-    pub const ALL: [LinkErrorKind; 7] = [
+    pub const ALL: [LinkErrorKind; 8] = [
         LinkErrorKind::Crc,
         LinkErrorKind::Overlong,
         LinkErrorKind::Malformed,
@@ -264,6 +325,7 @@ impl LinkErrorKind {
         LinkErrorKind::Gap,
         LinkErrorKind::Duplicate,
         LinkErrorKind::Restart,
+        LinkErrorKind::Replay,
     ];
 
     /// The text stored in `link_errors.kind`.
@@ -276,6 +338,7 @@ impl LinkErrorKind {
             LinkErrorKind::Gap => "gap",
             LinkErrorKind::Duplicate => "duplicate",
             LinkErrorKind::Restart => "restart",
+            LinkErrorKind::Replay => "replay",
         }
     }
 
@@ -330,6 +393,9 @@ pub struct Log {
     /// The next `ord` of the run being written.
     next_ord: i64,
     ord_run: RunId,
+    /// The latest write was [`Log::end_run`]: on close, the journal goes
+    /// back to `DELETE` so that readers leave no `-wal`/`-shm` files.
+    run_closed: bool,
 }
 
 const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
@@ -395,8 +461,10 @@ impl Log {
         Ok(log)
     }
 
-    /// Opens an existing log read-only. Refuses a file that is not a log of
-    /// this schema version (newer, older or empty).
+    /// Opens an existing log read-only: nothing is written, and no journal
+    /// file is created beside a log its writer closed. Refuses a file that
+    /// is not a log (empty, unmigrated) or is of a newer schema; an older
+    /// schema reads as it is (every change is additive).
     pub fn open_read(path: &Path) -> Result<Log, StoreError> {
         let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
         let conn = Connection::open_with_flags(path, flags)
@@ -413,7 +481,7 @@ impl Log {
                 known: SCHEMA_VERSION,
             });
         }
-        if found != SCHEMA_VERSION {
+        if found < 1 {
             return Err(StoreError::NotALog {
                 path: log.path.clone(),
                 found,
@@ -433,7 +501,18 @@ impl Log {
             batch_started_ms: 0,
             next_ord: 0,
             ord_run: -1,
+            run_closed: false,
         }
+    }
+
+    /// A run whose `ord` cannot grow (only an altered log gets there).
+    fn full_run(&self, run: RunId, ord: i64) -> StoreError {
+        self.bad(
+            run,
+            "runs",
+            ord,
+            "ord is at its largest value: no row can follow",
+        )
     }
 
     fn err(&self, what: &'static str, source: rusqlite::Error) -> StoreError {
@@ -511,6 +590,7 @@ impl Log {
 
     /// Opens the batch transaction if none is open and counts one row.
     fn row(&mut self, host_ms: i64) -> Result<(), StoreError> {
+        self.run_closed = false;
         match &mut self.pending {
             Some(n) => *n += 1,
             None => {
@@ -544,11 +624,14 @@ impl Log {
                     |r| r.get(0),
                 )
                 .map_err(|e| self.err("cannot find the run's last row", e))?;
-            self.next_ord = max.map_or(0, |m| m + 1);
+            self.next_ord = match max {
+                None => 0,
+                Some(m) => m.checked_add(1).ok_or_else(|| self.full_run(run, m))?,
+            };
             self.ord_run = run;
         }
         let ord = self.next_ord;
-        self.next_ord += 1;
+        self.next_ord = ord.checked_add(1).ok_or_else(|| self.full_run(run, ord))?;
         Ok(ord)
     }
 
@@ -565,7 +648,8 @@ impl Log {
     /// Commits the open batch if it began more than [`Batching::max_age_ms`]
     /// before `now_host_ms`.
     pub fn commit_if_due(&mut self, now_host_ms: i64) -> Result<(), StoreError> {
-        if self.pending.is_some() && now_host_ms - self.batch_started_ms >= self.batching.max_age_ms
+        if self.pending.is_some()
+            && now_host_ms.saturating_sub(self.batch_started_ms) >= self.batching.max_age_ms
         {
             self.commit()?;
         }
@@ -583,6 +667,7 @@ impl Log {
             )
             .map_err(|e| self.err("cannot start a run", e))?;
         let id = self.conn.last_insert_rowid();
+        self.run_closed = false;
         self.ord_run = id;
         self.next_ord = 0;
         Ok(id)
@@ -597,6 +682,7 @@ impl Log {
                 params![run, ended_host_ms],
             )
             .map_err(|e| self.err("cannot end the run", e))?;
+        self.run_closed = true;
         Ok(())
     }
 
@@ -792,7 +878,26 @@ impl Log {
         let host_ms: i64 = r.get(1).map_err(|e| self.bad(run, "frames", ord, e))?;
         let frame = match kind {
             0 => Frame::Hello(self.hello_row(run, ord, r)?),
-            1 => Frame::Summary(summary_row(r).map_err(|e| self.bad(run, "summaries", ord, e))?),
+            1 => Frame::Summary(summary_row(r).map_err(|e| match e {
+                RowError::Sql(e) => self.bad(run, "summaries", ord, e),
+                RowError::Value {
+                    column,
+                    value,
+                    why,
+                    also,
+                } => StoreError::ImpossibleValue(Box::new(Impossible {
+                    path: self.path.clone(),
+                    run_id: run,
+                    table: "summaries",
+                    ord,
+                    seq: r.get(3).ok(),
+                    t_ms: r.get(4).ok(),
+                    column,
+                    value,
+                    why,
+                    also,
+                })),
+            })?),
             _ => Frame::Event(self.event_row(run, ord, r)?),
         };
         Ok(Stored { host_ms, frame })
@@ -810,7 +915,46 @@ impl Log {
 
     fn hello_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Hello, StoreError> {
         let bad = |e: &dyn std::fmt::Display| self.bad(run, "hellos", ord, e);
-        let get_f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
+        const REALS: [&str; 7] = [
+            "coverage_factor",
+            "ambient_k",
+            "u_hot_k",
+            "u_cold_k",
+            "u_heat_in_rel",
+            "u_work_rel",
+            "u_heat_out_rel",
+        ];
+        let impossible = |i: usize, e: RowError| match e {
+            RowError::Sql(e) => bad(&e),
+            RowError::Value {
+                value, why, also, ..
+            } => StoreError::ImpossibleValue(Box::new(Impossible {
+                path: self.path.clone(),
+                run_id: run,
+                table: "hellos",
+                ord,
+                seq: None,
+                t_ms: None,
+                column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
+                value,
+                why,
+                also,
+            })),
+        };
+        let checked = |i: usize| -> Result<Option<f32>, StoreError> {
+            r.get::<_, Option<f64>>(i)
+                .map_err(|e| bad(&e))?
+                .map(|x| exact_f32("", x).map_err(|e| impossible(i, e)))
+                .transpose()
+        };
+        let need = |i: usize| -> Result<f32, StoreError> {
+            checked(i)?.ok_or_else(|| {
+                bad(&format!(
+                    "{} is NULL",
+                    REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?")
+                ))
+            })
+        };
         let rig: String = r.get(4).map_err(|e| bad(&e))?;
         let fw: String = r.get(5).map_err(|e| bad(&e))?;
         let mode: String = r.get(8).map_err(|e| bad(&e))?;
@@ -820,16 +964,15 @@ impl Log {
         let firmware_version =
             parse_version(&fw).ok_or_else(|| bad(&format!("bad firmware_version {fw:?}")))?;
         let mode = parse_mode(&mode).ok_or_else(|| bad(&format!("bad mode {mode:?}")))?;
-        let u = (|| {
-            Ok::<_, rusqlite::Error>(Uncertainties {
-                hot_k: get_f(11)?,
-                cold_k: get_f(12)?,
-                heat_in_rel: get_f(13)?,
-                work_rel: get_f(14)?,
-                heat_out_rel: get_f(15)?,
-            })
-        })()
-        .map_err(|e| bad(&e))?;
+        let u = Uncertainties {
+            hot_k: need(11)?,
+            cold_k: need(12)?,
+            heat_in_rel: need(13)?,
+            work_rel: need(14)?,
+            heat_out_rel: need(15)?,
+        };
+        let coverage_factor = need(9)?;
+        let ambient_k = checked(10)?;
         (|| {
             Ok::<_, rusqlite::Error>(Hello {
                 rig_id,
@@ -837,8 +980,8 @@ impl Log {
                 sample_period_ms: r.get(6)?,
                 window_samples: r.get(7)?,
                 mode,
-                coverage_factor: get_f(9)?,
-                ambient_k: r.get::<_, Option<f64>>(10)?.map(|x| x as f32),
+                coverage_factor,
+                ambient_k,
                 uncertainty: u,
                 config_digest: r.get(16)?,
             })
@@ -865,8 +1008,19 @@ impl Log {
         })
     }
 
-    /// The link errors of `run`, in order.
+    /// The link errors of `run`, in order. A row with an unknown kind or a
+    /// negative count is an error ([`StoreError::BadRow`]).
     pub fn link_errors(&self, run: RunId) -> Result<Vec<LinkErrorRow>, StoreError> {
+        self.link_error_rows(run)?.into_iter().collect()
+    }
+
+    /// The link errors of `run`, in order, each row checked on its own: a
+    /// row with an unknown kind or a negative count is an `Err` in its
+    /// place, so that a reader can report it and go on.
+    pub fn link_error_rows(
+        &self,
+        run: RunId,
+    ) -> Result<Vec<Result<LinkErrorRow, StoreError>>, StoreError> {
         let mut st = self
             .conn
             .prepare(
@@ -886,20 +1040,29 @@ impl Log {
             })
             .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
             .map_err(|e| self.err("cannot read link errors", e))?;
-        rows.into_iter()
+        Ok(rows
+            .into_iter()
             .map(|(ord, host_ms, kind, count, detail)| {
                 let kind = LinkErrorKind::parse(&kind).ok_or_else(|| {
                     self.bad(run, "link_errors", ord, format!("bad kind {kind:?}"))
+                })?;
+                let count = u64::try_from(count).map_err(|_| {
+                    self.bad(
+                        run,
+                        "link_errors",
+                        ord,
+                        format!("count {count} is negative"),
+                    )
                 })?;
                 Ok(LinkErrorRow {
                     ord,
                     host_ms,
                     kind,
-                    count: u64::try_from(count).unwrap_or(0),
+                    count,
                     detail,
                 })
             })
-            .collect()
+            .collect())
     }
 
     /// The outages of `run`, in order.
@@ -929,6 +1092,15 @@ impl Drop for Log {
         // Best effort: an error here has nowhere to go, and WAL keeps every
         // earlier batch either way.
         let _ = self.commit();
+        if self.run_closed {
+            // A cleanly closed log goes back to a rollback journal, so that a
+            // read-only reader (audit, chart) needs no `-wal`/`-shm` files and
+            // leaves none. Fails harmlessly (stays WAL) while another
+            // connection has the file open; the next writer switches to WAL.
+            let _ = self
+                .conn
+                .pragma_update_and_check(None, "journal_mode", "DELETE", |r| r.get::<_, String>(0));
+        }
     }
 }
 
@@ -972,11 +1144,124 @@ fn sql_err(path: &Path, what: &'static str, source: rusqlite::Error) -> StoreErr
     }
 }
 
-fn summary_row(r: &Row<'_>) -> Result<Summary, rusqlite::Error> {
-    let f = |i: usize| r.get::<_, f64>(i).map(|x| x as f32);
-    let o = |i: usize| r.get::<_, Option<f64>>(i).map(|x| x.map(|x| x as f32));
+/// Why a stored row cannot be the frame it claims to be.
+enum RowError {
+    /// A column of the wrong type or range (SQLite's own check).
+    Sql(rusqlite::Error),
+    /// A value no frame can hold (the first), and any further ones as
+    /// `column = value: why`.
+    Value {
+        column: &'static str,
+        value: String,
+        why: &'static str,
+        also: Vec<String>,
+    },
+}
+
+impl From<rusqlite::Error> for RowError {
+    fn from(e: rusqlite::Error) -> Self {
+        RowError::Sql(e)
+    }
+}
+
+/// The summary columns 5..=19 of [`SELECT_FRAMES`], in order.
+const SUMMARY_REALS: [&str; 15] = [
+    "duration_s",
+    "heat_in_j",
+    "work_j",
+    "heat_out_j",
+    "entropy_in_j_per_k",
+    "entropy_out_j_per_k",
+    "hot_mean_k",
+    "ambient_k",
+    "performance",
+    "bound",
+    "entropy_rate_w_per_k",
+    "u_performance",
+    "u_bound",
+    "u_margin",
+    "u_entropy_rate_w_per_k",
+];
+
+/// `x` as the f32 it must be: the log widens each f32 to f64 exactly, so a
+/// value that is not finite or not exactly an f32 was not written by it.
+/// Never narrows silently.
+fn exact_f32(column: &'static str, x: f64) -> Result<f32, RowError> {
+    // The cast rounds, or saturates to an infinity; the comparison below
+    // rejects every value the cast changed.
+    #[allow(clippy::cast_possible_truncation)]
+    let n = x as f32;
+    if !x.is_finite() {
+        return Err(RowError::Value {
+            column,
+            value: format!("{x}"),
+            why: "not a finite number",
+            also: Vec::new(),
+        });
+    }
+    if f64::from(n) != x {
+        return Err(RowError::Value {
+            column,
+            value: format!("{x:e}"),
+            why: if x.abs() > f64::from(f32::MAX) {
+                "outside the f32 range a frame carries"
+            } else {
+                "not an f32 value, so not written by the logger"
+            },
+            also: Vec::new(),
+        });
+    }
+    Ok(n)
+}
+
+fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
+    let f = |i: usize| -> Result<f32, RowError> {
+        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
+        exact_f32(name, r.get::<_, f64>(i)?)
+    };
+    let o = |i: usize| -> Result<Option<f32>, RowError> {
+        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
+        r.get::<_, Option<f64>>(i)?
+            .map(|x| exact_f32(name, x))
+            .transpose()
+    };
     let status: u8 = r.get(20)?;
     let faults: u8 = r.get(21)?;
+    let alarms: u8 = r.get(22)?;
+    let defined = STATUS_STEADY | STATUS_HEAT_OUT_MEASURED | STATUS_TRIP_ACTIVE | STATUS_ANY_FAULT;
+    // Every impossible value of the row, so that the report names them all.
+    let mut bad: Vec<(&'static str, String, &'static str)> = Vec::new();
+    for (i, name) in (5..).zip(SUMMARY_REALS) {
+        if let Some(x) = r.get::<_, Option<f64>>(i)?
+            && let Err(RowError::Value {
+                column, value, why, ..
+            }) = exact_f32(name, x)
+        {
+            bad.push((column, value, why));
+        }
+    }
+    for (column, value, undefined) in [
+        ("status", status, status & !defined != 0),
+        (
+            "faults",
+            faults,
+            faults & !(FAULT_CHANNELS | FAULT_STALE) != 0,
+        ),
+        ("alarms", alarms, u32::from(alarms) >> RuleId::COUNT != 0),
+    ] {
+        if undefined {
+            bad.push((column, format!("{value:#04x}"), "undefined bits set"));
+        }
+    }
+    let mut bad = bad.into_iter();
+    if let Some((column, value, why)) = bad.next() {
+        return Err(RowError::Value {
+            column,
+            value,
+            why,
+            also: bad.map(|(c, v, w)| format!("{c} = {v}: {w}")).collect(),
+        });
+    }
     Ok(Summary {
         seq: r.get(3)?,
         t_ms: r.get(4)?,
@@ -1005,7 +1290,7 @@ fn summary_row(r: &Row<'_>) -> Result<Summary, rusqlite::Error> {
             channels: faults & FAULT_CHANNELS,
             stale: faults & FAULT_STALE != 0,
         },
-        alarms: r.get(22)?,
+        alarms,
     })
 }
 

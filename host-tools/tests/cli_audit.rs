@@ -256,3 +256,35 @@ fn a_log_database_is_audited_from_its_latest_run() {
         .expect("run heatbound");
     assert_eq!(out.status.code(), Some(1));
 }
+
+#[test]
+fn input_with_no_frame_at_all_is_unreadable_not_untrustworthy() {
+    let dir = tempfile::tempdir().unwrap();
+    let cases: [(&str, Vec<u8>); 3] = [
+        ("empty.bin", Vec::new()),
+        ("run.csv", b"t_s,hot_c,cold_c\n0,500,20\n".to_vec()),
+        // Bytes from a fixed xorshift sequence stand in for random data.
+        ("noise.bin", {
+            let mut x: u32 = 0x9E37_79B9;
+            (0..4096)
+                .map(|_| {
+                    x ^= x << 13;
+                    x ^= x >> 17;
+                    x ^= x << 5;
+                    x as u8
+                })
+                .collect()
+        }),
+    ];
+    for (name, bytes) in cases {
+        let path = dir.path().join(name);
+        std::fs::write(&path, bytes).unwrap();
+        let out = heatbound().arg("audit").arg(&path).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{name}");
+        let err = String::from_utf8(out.stderr).unwrap();
+        assert!(
+            err.contains("not a heatbound capture or log"),
+            "{name}: {err}"
+        );
+    }
+}

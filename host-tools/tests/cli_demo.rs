@@ -97,3 +97,20 @@ fn demo_rejects_a_bad_speed_in_one_line() {
     assert_eq!(err.lines().count(), 1, "{err}");
     assert!(err.contains("--speed"), "{err}");
 }
+
+#[test]
+fn demo_refuses_a_db_that_is_not_a_heatbound_log_and_leaves_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("run.csv");
+    std::fs::write(&csv, "t_s,hot_c\n0,500\n").unwrap();
+    let out = Command::cargo_bin("heatbound")
+        .unwrap()
+        .args(["demo", "--speed", "0", "--quiet", "--db"])
+        .arg(&csv)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.contains("not a heatbound log"), "{err}");
+    assert_eq!(std::fs::read_to_string(&csv).unwrap(), "t_s,hot_c\n0,500\n");
+}

@@ -519,3 +519,71 @@ fn a_killed_watch_leaves_every_committed_batch() {
         .unwrap();
     assert_eq!(ended, None, "a killed run is left open");
 }
+
+#[test]
+fn a_malformed_address_or_a_missing_port_is_a_usage_error_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("w.sqlite");
+    for source in [["--tcp", "nohost"], ["--serial", "/dev/ttyNOPE-heatbound"]] {
+        let start = Instant::now();
+        let out = spawn_watch()
+            .arg("watch")
+            .args(source)
+            .arg("--db")
+            .arg(&db)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{source:?}");
+        assert!(
+            start.elapsed() < Duration::from_secs(5),
+            "{source:?} retried"
+        );
+        let err = String::from_utf8(out.stderr).unwrap();
+        assert!(err.starts_with("heatbound: error:"), "{err}");
+        assert!(!db.exists(), "{source:?}: a log was started");
+    }
+}
+
+#[test]
+fn a_silent_tcp_peer_is_an_outage() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("stall.sqlite");
+    let listener = TcpListener::bind("127.0.0.1:0").unwrap();
+    let addr = listener.local_addr().unwrap().to_string();
+    let child = spawn_watch()
+        .args([
+            "watch",
+            "--quiet",
+            "--tcp",
+            &addr,
+            "--stall-s",
+            "0.5",
+            "--max-duration-s",
+            "3",
+            "--db",
+        ])
+        .arg(&db)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let (mut first, _) = listener.accept().unwrap();
+    first.write_all(&encode(&[hello(), summary(1)])).unwrap();
+    // Then silence, with the connection left open.
+    let out = child.wait_with_output().unwrap();
+    drop(first);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let conn = Connection::open(&db).unwrap();
+    let reason: String = conn
+        .query_row(
+            "SELECT reason FROM outages ORDER BY started_host_ms LIMIT 1",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert!(reason.contains("stalled"), "{reason}");
+}

@@ -7,22 +7,16 @@
 //! DB (SQLite log)  --store reader---> Received frames + link errors  --+--> audit::audit --> report / JSON
 //! ```
 //!
-//! The input kind is decided by content, not by name: a file that starts
+//! The readers are [`heatbound_host::capture`]. The input kind is decided by content, not by name: a file that starts
 //! with the 16-byte SQLite header is a log database, anything else a raw
 //! capture.
-use std::fs::File;
-use std::io::{BufReader, Read, Write as _};
-use std::path::{Path, PathBuf};
+use std::io::Write as _;
+use std::path::PathBuf;
 
 use anyhow::{Context, Result, bail};
-use heatbound::wire::{self, Decoder, DecoderStats};
-
-use heatbound::config::RigConfig;
-use heatbound_host::audit::{self, Input, LinkError, Received, Report};
-use heatbound_host::store::{LinkErrorKind, Log};
-
-/// The first 16 bytes of every SQLite 3 database file.
-const SQLITE_HEADER: &[u8; 16] = b"SQLite format 3\0";
+use heatbound_host::audit::{self, Input};
+use heatbound_host::capture::{audit_database, is_database, read_capture};
+use heatbound_host::term::SAFETY_NOTE;
 
 /// Arguments of `heatbound audit`.
 #[derive(clap::Args)]
@@ -50,7 +44,7 @@ pub struct Args {
 /// Runs the subcommand. Exits the process with status 1 when the record is
 /// not trustworthy (after printing the report); errors are status 2.
 pub fn run(args: &Args) -> Result<()> {
-    let config = crate::cmd::analyze::load_config(args.config.as_deref())?;
+    let config = heatbound_host::rigfile::load_config(args.config.as_deref())?;
     let name = args.input.display().to_string();
     let report = if is_database(&args.input)? {
         audit_database(&args.input, args.run, &config)?
@@ -59,6 +53,16 @@ pub fn run(args: &Args) -> Result<()> {
             bail!("{name}: --run applies to a log database, and this is a raw capture");
         }
         let (frames, decoder) = read_capture(&args.input)?;
+        // Not one frame: this is no capture of ours (an empty file, a CSV,
+        // random bytes), so there is nothing to judge. Unreadable, not
+        // untrustworthy.
+        if frames.is_empty() {
+            let bytes = std::fs::metadata(&args.input).map_or(0, |m| m.len());
+            bail!(
+                "{name}: not a heatbound capture or log: no frame in its {bytes} bytes \
+                 (give a capture from `simulate`/`watch --input`, or a log database)"
+            );
+        }
         audit::audit(
             &Input {
                 frames: &frames,
@@ -74,127 +78,11 @@ pub fn run(args: &Args) -> Result<()> {
         writeln!(stdout, "{text}").context("writing the report")?;
     } else {
         write!(stdout, "{}", report.text(&name)).context("writing the report")?;
-        writeln!(stdout, "{}", crate::SAFETY_NOTE).context("writing the report")?;
+        writeln!(stdout, "{}", SAFETY_NOTE).context("writing the report")?;
     }
     stdout.flush().context("writing the report")?;
     if !report.trustworthy {
         std::process::exit(1);
     }
     Ok(())
-}
-
-/// Whether `path` starts with the SQLite header.
-fn is_database(path: &Path) -> Result<bool> {
-    let mut head = [0u8; 16];
-    let mut file = File::open(path).with_context(|| format!("{}: cannot open", path.display()))?;
-    let mut got = 0;
-    while got < head.len() {
-        match file.read(&mut head[got..]) {
-            Ok(0) => break,
-            Ok(n) => got += n,
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-            Err(e) => return Err(e).with_context(|| format!("{}: cannot read", path.display())),
-        }
-    }
-    Ok(got == head.len() && &head == SQLITE_HEADER)
-}
-
-/// Decodes a raw capture with the core decoder.
-pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats)> {
-    let file = File::open(path).with_context(|| format!("{}: cannot open", path.display()))?;
-    let mut reader = BufReader::new(file);
-    let mut decoder = Decoder::<{ wire::MAX_FRAME_LEN }>::new();
-    let mut frames = Vec::new();
-    let mut buf = [0u8; 64 * 1024];
-    loop {
-        let n = match reader.read(&mut buf) {
-            Ok(0) => break,
-            Ok(n) => n,
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
-            Err(e) => return Err(e).with_context(|| format!("{}: cannot read", path.display())),
-        };
-        decoder.feed(&buf[..n], |r| {
-            if let Ok(frame) = r {
-                frames.push(Received {
-                    host_ms: None,
-                    frame,
-                });
-            }
-        });
-    }
-    // An unterminated tail is a frame cut off by the end of the capture: a
-    // loss, whatever its length.
-    // A complete frame that lacks only its final delimiter is kept, as
-    // `watch` keeps it.
-    if let Some(Ok(frame)) = decoder.end_stream() {
-        frames.push(Received {
-            host_ms: None,
-            frame,
-        });
-    }
-    Ok((frames, *decoder.stats()))
-}
-
-/// Audits a run (the latest unless `run` is given) of the log database at `path`.
-pub(crate) fn audit_database(path: &Path, run: Option<i64>, config: &RigConfig) -> Result<Report> {
-    let (frames, decoder, link_errors) = read_database(path, run)?;
-    Ok(audit::audit(
-        &Input {
-            frames: &frames,
-            decoder,
-            link_errors: &link_errors,
-        },
-        config,
-    ))
-}
-
-/// Reads a run (the latest unless `run` is given) from the log database.
-///
-/// The logger stores the decoder's losses as link-error rows; they become
-/// the audit's decoder counts. Gap, duplicate and restart rows are not
-/// counted again: the audit re-derives them from the stored frames. Each
-/// outage (the link dropped) is a link error.
-fn read_database(
-    path: &Path,
-    run: Option<i64>,
-) -> Result<(Vec<Received>, DecoderStats, Vec<LinkError>)> {
-    let name = path.display().to_string();
-    let log = Log::open_read(path)?;
-    let runs = log.runs()?;
-    let id = match run {
-        Some(id) if runs.iter().any(|r| r.id == id) => id,
-        Some(id) => bail!("{name}: no run {id} in the log"),
-        None => match runs.last() {
-            Some(r) => r.id,
-            None => bail!("{name}: the log holds no runs"),
-        },
-    };
-    let mut frames = Vec::new();
-    for stored in log.frames(id)? {
-        let stored = stored?;
-        frames.push(Received {
-            host_ms: Some(stored.host_ms),
-            frame: stored.frame,
-        });
-    }
-    let mut stats = DecoderStats::default();
-    for row in log.link_errors(id)? {
-        match row.kind {
-            LinkErrorKind::Crc => stats.crc_errors += row.count,
-            LinkErrorKind::Overlong => stats.overlong += row.count,
-            LinkErrorKind::Malformed => stats.malformed += row.count,
-            LinkErrorKind::UnknownVersion => stats.unknown_version += row.count,
-            _ => {}
-        }
-    }
-    stats.frames = frames.len() as u64;
-    let link_errors = log
-        .outages(id)?
-        .into_iter()
-        .map(|o| LinkError {
-            host_ms: Some(o.started_host_ms),
-            message: format!("link down: {}", o.reason),
-        })
-        .collect();
-    Ok((frames, stats, link_errors))
 }

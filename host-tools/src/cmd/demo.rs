@@ -21,17 +21,18 @@ use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
 use heatbound_firmware_example::rig::{Rig, Scenario};
 use heatbound_host::ingest::{Ingest, LineStyle};
+use heatbound_host::link::{self, Bounds, End, now_ms};
 use heatbound_host::store::Log;
 
-use crate::cmd::watch::{Bounds, End, closing_line, now_ms, read_to_end};
-use crate::sil::{self, SimOptions, SimStats, Simulation};
+use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
 #[command(
-    after_help = "The demo starts a fresh log at --db (an existing file of that name is \
-replaced), ends with the audit of what it logged, and draws its chart beside the log \
-(--db heatbound-demo.sqlite: heatbound-demo.png)."
+    after_help = "The demo starts a fresh log at --db: an existing heatbound log of that \
+name is replaced, any other file is refused and left untouched. It ends with the audit of \
+what it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: \
+heatbound-demo.png)."
 )]
 pub struct Args {
     /// The log database the demo writes.
@@ -56,14 +57,16 @@ pub fn run(args: &Args) -> Result<()> {
     if !(args.speed.is_finite() && args.speed >= 0.0) {
         bail!("--speed {}: must be a finite factor ≥ 0", args.speed);
     }
-    if crate::cmd::chart::default_out(&args.db) == args.db {
+    if heatbound_host::chart::default_out(&args.db) == args.db {
         bail!(
             "--db {}: the chart drawn beside it would replace the log; name it .sqlite",
             args.db.display()
         );
     }
+    // Refuse a --db that is not a heatbound log before anything starts.
+    link::check_log_target(&args.db)?;
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
-    println!("{}", crate::SAFETY_NOTE);
+    println!("{}", heatbound_host::term::SAFETY_NOTE);
     println!();
 
     let options = SimOptions {
@@ -105,11 +108,12 @@ pub fn run(args: &Args) -> Result<()> {
     let mut ingest = Ingest::new(log, &format!("tcp:{addr}"), now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
     let started = Instant::now();
-    let end = read_to_end(
+    let end = link::read_to_end(
         &mut ingest,
-        &Bounds { deadline: None },
+        &Bounds::default(),
         stream,
         &format!("tcp:{addr}"),
+        |line| println!("{line}"),
     )?;
     let totals = ingest
         .finish(now_ms())
@@ -119,7 +123,7 @@ pub fn run(args: &Args) -> Result<()> {
         Err(_) => bail!("the simulated controller stopped unexpectedly"),
     };
     println!();
-    println!("{}", closing_line(&totals, end, &args.db));
+    println!("{}", link::closing_line(&totals, end, &args.db));
     println!(
         "streamed {} samples as {} frames in {:.1} s",
         stats.samples,
@@ -138,12 +142,12 @@ pub fn run(args: &Args) -> Result<()> {
     }
 
     // Re-check what was logged, from the database, as `heatbound audit` would.
-    let report = crate::cmd::audit::audit_database(&args.db, None, &config)?;
+    let report = heatbound_host::capture::audit_database(&args.db, None, &config)?;
     println!();
     print!("{}", report.text(&args.db.display().to_string()));
     // Draw it, as `heatbound chart` would.
-    let chart = crate::cmd::chart::default_out(&args.db);
-    crate::cmd::chart::write_chart(&args.db, None, &chart)?;
+    let chart = heatbound_host::chart::default_out(&args.db);
+    heatbound_host::chart::write_chart(&args.db, None, &chart)?;
     let shown = std::fs::canonicalize(&args.db).unwrap_or_else(|_| args.db.clone());
     let chart_shown = std::fs::canonicalize(&chart).unwrap_or_else(|_| chart.clone());
     println!();
@@ -151,7 +155,7 @@ pub fn run(args: &Args) -> Result<()> {
     println!("chart written to {}", chart_shown.display());
     println!("re-check it with `heatbound audit {}`", args.db.display());
     println!("redraw it with `heatbound chart {}`", args.db.display());
-    println!("{}", crate::SAFETY_NOTE);
+    println!("{}", heatbound_host::term::SAFETY_NOTE);
     std::io::stdout().flush().context("writing the report")?;
 
     let raised = stats
@@ -167,7 +171,8 @@ pub fn run(args: &Args) -> Result<()> {
     Ok(())
 }
 
-/// Removes a previous demo log (and its WAL files), so the demo starts fresh.
+/// Removes a previous heatbound log (and its WAL files), so the demo starts
+/// fresh; [`link::check_log_target`] has refused anything else.
 fn fresh_log(db: &Path) -> Result<()> {
     for suffix in ["", "-wal", "-shm"] {
         let mut name = db.as_os_str().to_owned();

@@ -1,5 +1,5 @@
 //! `heatbound simulate`: run the simulated bench rig through the
-//! controller's monitor and alarms ([`crate::sil`]) and emit the wire
+//! controller's monitor and alarms ([`heatbound_host::sil`]) and emit the wire
 //! stream a controller would send, to a file, stdout or a TCP peer.
 //!
 //! ```text
@@ -21,7 +21,7 @@ use heatbound::alarm::EventKind;
 use heatbound::wire::Frame;
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
-use crate::sil::{self, SimOptions, Simulation};
+use heatbound_host::sil::{self, SimOptions, Simulation};
 
 /// Arguments of `heatbound simulate`.
 #[derive(clap::Args)]
@@ -89,7 +89,7 @@ pub fn run(args: &Args) -> Result<()> {
         summary_period_s: args.summary_period_s,
     };
     let config = match &args.config {
-        Some(path) => crate::cmd::analyze::load_config(Some(path))?,
+        Some(path) => heatbound_host::rigfile::load_config(Some(path))?,
         None => sil::default_config(&Rig::bench_stirling(args.scenario, args.seed)),
     };
     let mut sim = Simulation::new(&options, &config)?;
@@ -211,6 +211,6 @@ fn run_summary(args: &Args, sim: &Simulation, bytes: u64, target: &str) -> Strin
     } else {
         let _ = writeln!(out, "  alarms raised: {}", raised.join(", "));
     }
-    let _ = writeln!(out, "{}", crate::SAFETY_NOTE);
+    let _ = writeln!(out, "{}", heatbound_host::term::SAFETY_NOTE);
     out
 }
