@@ -153,7 +153,14 @@ impl<const N: usize> Cycle<N> {
                 .max(libm::fabs(s.work_j))
                 .max(libm::fabs(s.delta_u_j))
         });
-        let tiny = TINY_HEAT * scale;
+        // Heat below rounding is no heat: rounding in a step's heat is
+        // relative to the gas's internal energy (n·Cv·T), not to the step's
+        // own size, so a step of nearly nothing cannot pass for heat in.
+        let t_top = steps
+            .iter()
+            .fold(self.start.temperature_k(), |m, s| m.max(s.t_max_k()));
+        let u_scale = libm::fabs(self.gas.heat_capacity_v_j_per_k() * t_top);
+        let tiny = TINY_HEAT * scale.max(u_scale);
         let mut net_work_j = 0.0;
         let (mut heat_in_j, mut entropy_in_j_per_k) = (0.0, 0.0);
         let (mut heat_out_j, mut entropy_out_j_per_k) = (0.0, 0.0);
