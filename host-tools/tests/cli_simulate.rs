@@ -183,7 +183,10 @@ fn bad_options_are_one_line_errors() {
         &["--scenario", "meltdown"][..],
         &["--rate-hz", "0"],
         &["--summary-period-s", "0.01"],
+        // The old spelling is a hidden alias of --speed; negative numbers
+        // need no `=`.
         &["--realtime-factor", "-1"],
+        &["--speed", "-1"],
     ] {
         let out = heatbound()
             .arg("simulate")

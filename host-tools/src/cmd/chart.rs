@@ -25,7 +25,7 @@ pub struct Args {
     pub run: Option<RunId>,
     /// Where to write the picture: `.png` or `.svg` (default: the log's name
     /// with `.png`, beside it).
-    #[arg(long, value_name = "PATH")]
+    #[arg(long, short, value_name = "PATH")]
     pub out: Option<PathBuf>,
 }
 

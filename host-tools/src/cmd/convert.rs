@@ -15,7 +15,7 @@ use serde::Serialize;
 
 /// Arguments of `heatbound convert`.
 #[derive(clap::Args, Debug)]
-#[command(group(
+#[command(allow_negative_numbers = true, group(
     ArgGroup::new("input")
         .required(true)
         .multiple(false)

@@ -29,6 +29,7 @@ use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
 #[command(
+    allow_negative_numbers = true,
     after_help = "The demo starts a fresh log at --db: an existing heatbound log of that \
 name is replaced, any other file is refused and left untouched. It ends with the audit of \
 what it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: \

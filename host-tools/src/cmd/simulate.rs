@@ -26,12 +26,13 @@ use heatbound_host::sil::{self, SimOptions, Simulation};
 /// Arguments of `heatbound simulate`.
 #[derive(clap::Args)]
 #[command(
+    allow_negative_numbers = true,
     after_help = "Scenarios: steady, warm-up, thermocouple-drift, coolant-loss, \
 open-thermocouple, power-meter-scale-error (faults begin at 120 s).\n\
 Without --config the built-in defaults are used with ambient_k set to the rig's room \
 temperature (293.15 K): the rig measures heat out, so its balance residual is heat lost \
 to the room. With --config the file is used as written.\n\
-The stream goes to stdout unless --output, --listen or --connect is given; the run \
+The stream goes to stdout unless --out, --listen or --connect is given; the run \
 summary goes to stderr."
 )]
 pub struct Args {
@@ -54,8 +55,8 @@ pub struct Args {
     #[arg(long, value_name = "RIG.toml")]
     pub config: Option<PathBuf>,
     /// Write the stream to FILE (`-` = stdout).
-    #[arg(long, short, value_name = "FILE", conflicts_with_all = ["listen", "connect"])]
-    pub output: Option<PathBuf>,
+    #[arg(long, short, alias = "output", value_name = "FILE", conflicts_with_all = ["listen", "connect"])]
+    pub out: Option<PathBuf>,
     /// Accept one TCP client on PORT and stream to it (0 = any free port;
     /// the address is printed on stderr).
     #[arg(long, value_name = "PORT", conflicts_with = "connect")]
@@ -66,9 +67,14 @@ pub struct Args {
     /// Connect to HOST:PORT and stream to it.
     #[arg(long, value_name = "HOST:PORT")]
     pub connect: Option<String>,
-    /// Pace the output at F times real time (0 = as fast as possible).
-    #[arg(long, value_name = "F", default_value_t = 0.0)]
-    pub realtime_factor: f64,
+    /// Rig time played per second of wall time (0 = as fast as possible), as for `demo`.
+    #[arg(
+        long,
+        alias = "realtime-factor",
+        value_name = "F",
+        default_value_t = 0.0
+    )]
+    pub speed: f64,
 }
 
 fn parse_scenario(s: &str) -> Result<Scenario, String> {
@@ -77,9 +83,9 @@ fn parse_scenario(s: &str) -> Result<Scenario, String> {
 
 /// Runs the subcommand.
 pub fn run(args: &Args) -> Result<()> {
-    let f = args.realtime_factor;
+    let f = args.speed;
     if !(f.is_finite() && f >= 0.0) {
-        bail!("--realtime-factor must be finite and at least 0 (got {f})");
+        bail!("--speed {f}: must be a finite factor ≥ 0");
     }
     let options = SimOptions {
         scenario: args.scenario,
@@ -149,7 +155,7 @@ fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
         let _ = stream.set_nodelay(true);
         return Ok((Box::new(BufWriter::new(stream)), peer.clone()));
     }
-    match &args.output {
+    match &args.out {
         Some(path) if path.as_os_str() != "-" => {
             let file = File::create(path)
                 .with_context(|| format!("{}: cannot create the file", path.display()))?;
@@ -159,8 +165,8 @@ fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
             let stdout = std::io::stdout();
             if explicit.is_none() && stdout.is_terminal() {
                 bail!(
-                    "refusing to write the binary stream to a terminal: give --output FILE, \
-                     --output - or redirect stdout"
+                    "refusing to write the binary stream to a terminal: give --out FILE, \
+                     --out - or redirect stdout"
                 );
             }
             Ok((Box::new(BufWriter::new(stdout.lock())), "stdout".to_owned()))

@@ -31,7 +31,7 @@ static STOP: AtomicBool = AtomicBool::new(false);
 
 /// Arguments of `heatbound watch`.
 #[derive(clap::Args)]
-#[command(group(clap::ArgGroup::new("source").required(true).args(["serial", "tcp", "input"])))]
+#[command(allow_negative_numbers = true, group(clap::ArgGroup::new("source").required(true).args(["serial", "tcp", "input"])))]
 pub struct Args {
     /// Read from a serial port (raw 8N1), e.g. /dev/ttyUSB0.
     #[arg(long, value_name = "PATH")]
