@@ -131,7 +131,7 @@ struct Temperature {
 }
 
 /// The header, checked: where each channel is.
-#[derive(Clone, Copy, Debug)]
+#[derive(Clone, Debug)]
 struct Columns {
     time: usize,
     hot: Temperature,
@@ -139,6 +139,7 @@ struct Columns {
     heat_in: usize,
     work: usize,
     heat_out: Option<usize>,
+    unused: Vec<UnusedColumn>,
 }
 
 impl Columns {
@@ -162,7 +163,21 @@ impl Columns {
             }
             Ok(first)
         };
-        let found = || names.join(", ");
+        // The header as quoted back: each name and the whole list bounded,
+        // control bytes escaped (a damaged file may have a huge first line).
+        let found = || {
+            let list: Vec<String> = names
+                .iter()
+                .take(MAX_LISTED_COLUMNS)
+                .map(|n| crate::term::excerpt(n, 40))
+                .collect();
+            let more = names.len().saturating_sub(MAX_LISTED_COLUMNS);
+            let mut text = list.join(", ");
+            if more > 0 {
+                text.push_str(&format!(" and {more} more"));
+            }
+            text
+        };
         let required = |name: &'static str| -> Result<usize, CsvError> {
             find(name)?.ok_or_else(|| CsvError::MissingColumn {
                 column: name,
@@ -201,9 +216,66 @@ impl Columns {
             heat_in: required("heat_in_w")?,
             work: required("work_w")?,
             heat_out: find("heat_out_w")?,
+            unused: unused_columns(&names),
         })
     }
 }
+
+/// Every column name the replay reads.
+const KNOWN_COLUMNS: [&str; 8] = [
+    "time_s",
+    "hot_c",
+    "hot_k",
+    "cold_c",
+    "cold_k",
+    "heat_in_w",
+    "work_w",
+    "heat_out_w",
+];
+
+/// Header names quoted back in an error, at most.
+const MAX_LISTED_COLUMNS: usize = 24;
+
+/// The header's columns that nothing reads, each with the reason; a name
+/// that differs from a known one only in case or blanks says which it
+/// resembles (`heat_out_W` is not `heat_out_w`, and would silently turn
+/// heat out from measured to inferred).
+fn unused_columns(names: &[String]) -> Vec<UnusedColumn> {
+    names
+        .iter()
+        .filter(|n| !KNOWN_COLUMNS.contains(&n.as_str()))
+        .take(MAX_LISTED_COLUMNS)
+        .map(|n| {
+            let folded: String = n
+                .to_lowercase()
+                .chars()
+                .filter(|c| !c.is_whitespace())
+                .collect();
+            let why = match KNOWN_COLUMNS.iter().find(|k| **k == folded) {
+                Some(k) => {
+                    format!("not read: did you mean {k}? (column names are exact, lower case)")
+                }
+                None => "not a column heatbound reads".to_string(),
+            };
+            UnusedColumn {
+                name: crate::term::excerpt(n, 40),
+                why,
+            }
+        })
+        .collect()
+}
+
+/// A header column the replay did not use, and why.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize)]
+pub struct UnusedColumn {
+    /// The column's name, as quoted back.
+    pub name: String,
+    /// Why it was not used.
+    pub why: String,
+}
+
+/// Line numbers of invalid rows kept for the report, at most.
+const INVALID_LINES_KEPT: usize = 5;
 
 /// A field, trimmed of ASCII blanks, or the short-row error.
 #[inline]
@@ -285,7 +357,7 @@ fn reading(bytes: &[u8], column: &'static str, line: u64) -> Result<f64, CsvErro
         .ok_or_else(|| CsvError::Number {
             line,
             column,
-            text: String::from_utf8_lossy(bytes).into_owned(),
+            text: crate::term::excerpt(&String::from_utf8_lossy(bytes), 40),
         })
 }
 
@@ -312,6 +384,10 @@ pub struct Replay {
     pub samples: u64,
     /// Rows the monitor skipped as invalid.
     pub invalid_samples: u64,
+    /// The line numbers of the first few invalid rows (the header is line 1).
+    pub invalid_lines: Vec<u64>,
+    /// Header columns nothing read, and why.
+    pub unused_columns: Vec<UnusedColumn>,
     /// Last `time_s` − first `time_s`, seconds.
     pub duration_s: f64,
     /// Integration restarts after gaps.
@@ -405,6 +481,7 @@ pub fn replay<R: Read>(
     let mut first_s: Option<f64> = None;
     let mut last_s = 0.0_f64;
     let mut rows = 0u64;
+    let mut invalid_lines: Vec<u64> = Vec::new();
 
     loop {
         let more = reader
@@ -423,7 +500,7 @@ pub fn replay<R: Read>(
         if !t_s.is_finite() {
             return Err(CsvError::NoTime {
                 line,
-                text: String::from_utf8_lossy(time_text).into_owned(),
+                text: crate::term::excerpt(&String::from_utf8_lossy(time_text), 40),
             });
         }
         let first = match first_s {
@@ -475,7 +552,11 @@ pub fn replay<R: Read>(
             heat_out_w,
         };
         // Invalid samples go in too: the sensor_fault rule needs them.
+        let invalid_before = monitor.invalid_samples();
         monitor.push(&sample);
+        if monitor.invalid_samples() != invalid_before && invalid_lines.len() < INVALID_LINES_KEPT {
+            invalid_lines.push(line);
+        }
         for event in alarms.update(sample.t_ms, &monitor.alarm_inputs()) {
             events.push(TimedEvent { t_s, event });
         }
@@ -491,6 +572,8 @@ pub fn replay<R: Read>(
         coverage_factor: config.coverage_factor,
         samples: rows,
         invalid_samples: monitor.invalid_samples(),
+        invalid_lines,
+        unused_columns: cols.unused.clone(),
         duration_s: first_s.map_or(0.0, |first| last_s - first),
         restarts: monitor.restarts(),
         heat_out_measured: monitor.heat_out_measured(),
@@ -612,6 +695,28 @@ struct ReportJson {
     coverage_factor: f64,
     restarts: u64,
     steady_at_end: bool,
+    invalid_lines: Vec<u64>,
+    unused_columns: Vec<UnusedColumn>,
+}
+
+/// Where the invalid rows are: `; first at lines 7, 9` (with `…` when
+/// there are more than the lines kept).
+fn invalid_where(lines: &[u64], count: u64) -> String {
+    if lines.is_empty() {
+        return String::new();
+    }
+    let list: Vec<String> = lines.iter().map(u64::to_string).collect();
+    let more = if count > lines.len() as u64 {
+        ", …"
+    } else {
+        ""
+    };
+    let word = if lines.len() == 1 && count == 1 {
+        "line"
+    } else {
+        "first at lines"
+    };
+    format!("; {word} {}{more}", list.join(", "))
 }
 
 impl Replay {
@@ -625,6 +730,8 @@ impl Replay {
         ReportJson {
             samples: self.samples,
             invalid_samples: self.invalid_samples,
+            invalid_lines: self.invalid_lines.clone(),
+            unused_columns: self.unused_columns.clone(),
             duration_s: self.duration_s,
             totals: TotalsJson {
                 figures: FiguresJson::new(t),
@@ -736,10 +843,19 @@ impl Replay {
             &mut out,
             "samples",
             format!(
-                "{} ({} invalid, skipped)",
-                self.samples, self.invalid_samples
+                "{} ({} invalid, skipped{})",
+                self.samples,
+                self.invalid_samples,
+                invalid_where(&self.invalid_lines, self.invalid_samples)
             ),
         );
+        for c in &self.unused_columns {
+            row(
+                &mut out,
+                "column not used",
+                format!("{}: {}", c.name, c.why),
+            );
+        }
         row(
             &mut out,
             "duration",

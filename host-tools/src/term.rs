@@ -120,3 +120,40 @@ mod tests {
         assert_eq!(line.matches("not a database").count(), 0, "{line}");
     }
 }
+
+/// Text from the user's input, fit to quote in a message: control bytes
+/// escaped (`\n`, `\u{1b}`), cut to `max` characters with the count of
+/// what was left out, so a damaged file cannot flood the terminal.
+pub fn excerpt(text: &str, max: usize) -> String {
+    let mut out = String::new();
+    let mut shown = 0usize;
+    let mut chars = text.chars();
+    for c in chars.by_ref() {
+        if shown >= max {
+            let rest = 1 + chars.count();
+            out.push_str(&format!("… ({rest} more characters)"));
+            return out;
+        }
+        if c.is_control() {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+        shown += 1;
+    }
+    out
+}
+
+#[cfg(test)]
+mod excerpt_tests {
+    use super::excerpt;
+
+    #[test]
+    fn control_bytes_are_escaped_and_long_text_is_cut() {
+        assert_eq!(excerpt("a\u{1b}[2Jb\n", 80), "a\\u{1b}[2Jb\\n");
+        let long = "x".repeat(50_000_000 / 1000);
+        let e = excerpt(&long, 100);
+        assert!(e.len() < 200, "{}", e.len());
+        assert!(e.ends_with("(49900 more characters)"), "{e}");
+    }
+}

@@ -179,7 +179,13 @@ fn json_has_exactly_the_documented_keys_in_order() {
         "steady_fraction",
         "alarms",
     ];
-    expected.extend(["coverage_factor", "restarts", "steady_at_end"]);
+    expected.extend([
+        "coverage_factor",
+        "restarts",
+        "steady_at_end",
+        "invalid_lines",
+        "unused_columns",
+    ]);
     let mut sorted_expected = expected.clone();
     sorted_expected.sort_unstable();
     assert_eq!(
@@ -793,4 +799,49 @@ fn shipped_example_runs_and_shows_the_coolant_loss() {
         text.contains("over_temperature") && text.contains("trip"),
         "{text}"
     );
+}
+
+#[test]
+fn unused_columns_and_invalid_rows_are_located_and_a_huge_header_is_not_echoed() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("run.csv");
+    std::fs::write(
+        &csv,
+        "time_s,hot_c,cold_c,heat_in_w,work_w,heat_out_W,comment\n\
+         0,500,20,100,20,80,a\n1,,20,100,20,80,b\n2,500,20,100,20,80,c\n3,NaN,20,100,20,80,d\n",
+    )
+    .unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_heatbound"))
+        .arg("analyze")
+        .arg(&csv)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("2 invalid, skipped; first at lines 3, 5"),
+        "{text}"
+    );
+    assert!(
+        text.contains("heat_out_W: not read: did you mean heat_out_w?"),
+        "{text}"
+    );
+    assert!(
+        text.contains("comment: not a column heatbound reads"),
+        "{text}"
+    );
+
+    // A 1 MB first line with an escape sequence: the error quotes a bounded,
+    // escaped excerpt of it.
+    let huge = dir.path().join("huge.csv");
+    std::fs::write(&huge, format!("{}\u{1b}[2J\n1,2\n", "x".repeat(1 << 20))).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_heatbound"))
+        .arg("analyze")
+        .arg(&huge)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.len() < 1000, "{} bytes of error", err.len());
+    assert!(!err.contains('\u{1b}'), "{err}");
 }
