@@ -596,6 +596,9 @@ impl Ingest {
         if s.status.steady {
             out.push_str(" steady");
         }
+        if let Some(why) = why_undefined(s) {
+            let _ = write!(out, " (n/a: {why})");
+        }
         for rule in RuleId::ALL {
             if s.alarms & (1 << rule.index()) != 0 {
                 let sev = self.severity[rule.index()];
@@ -605,6 +608,33 @@ impl Ingest {
             }
         }
     }
+}
+
+/// Why a summary's figures are undefined, when some are: the first cause
+/// that the window's integrals show, in the operator's words.
+pub fn why_undefined(s: &Summary) -> Option<&'static str> {
+    let t_c = (s.entropy_out_j_per_k > 0.0).then(|| s.heat_out_j / s.entropy_out_j_per_k);
+    let any_na = s.performance.is_none()
+        || s.bound.is_none()
+        || s.entropy_rate_w_per_k.is_none()
+        || s.hot_mean_k.is_none()
+        || t_c.is_none();
+    if !any_na {
+        return None;
+    }
+    Some(if s.duration_s <= 0.0 {
+        "no valid sample in the window"
+    } else if s.heat_in_j <= 0.0 || s.entropy_in_j_per_k <= 0.0 {
+        "no heat in during the window, so T_h and the figures are undefined"
+    } else if t_c.is_none() {
+        "no heat out during the window, so T_c and the Carnot bound are undefined (check the coolant flow)"
+    } else if s.hot_mean_k.zip(t_c).is_some_and(|(h, c)| h <= c) {
+        "T_h is not above T_c, so there is no Carnot bound"
+    } else if s.performance.is_none() {
+        "the efficiency's denominator is not positive in the window"
+    } else {
+        "a figure's denominator is not positive in the window"
+    })
 }
 
 /// ANSI start and end codes for `severity` in `style`.

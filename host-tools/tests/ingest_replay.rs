@@ -245,3 +245,46 @@ fn a_reconnect_after_an_overlong_tail_accepts_the_first_hello() {
     let t = ingest.finish(50).expect("finish");
     assert_eq!(t.hellos, 1, "{t:?}");
 }
+
+/// The reasons the live line gives for an undefined figure follow from the
+/// window's integrals (DESIGN.md §4: T_c = Q_out/S_out, η_C needs T_h > T_c).
+#[test]
+fn an_undefined_figure_says_why() {
+    use heatbound::wire::Summary;
+    use heatbound_host::ingest::why_undefined;
+    let ok = Summary {
+        duration_s: 1.0,
+        heat_in_j: 100.0,
+        entropy_in_j_per_k: 100.0 / 650.0,
+        work_j: 20.0,
+        heat_out_j: 80.0,
+        entropy_out_j_per_k: 80.0 / 300.0,
+        hot_mean_k: Some(650.0),
+        performance: Some(0.2),
+        bound: Some(0.54),
+        entropy_rate_w_per_k: Some(0.1),
+        ..Summary::default()
+    };
+    assert_eq!(why_undefined(&ok), None);
+    let no_heat_out = Summary {
+        heat_out_j: 0.0,
+        entropy_out_j_per_k: 0.0,
+        bound: None,
+        ..ok
+    };
+    assert!(why_undefined(&no_heat_out).is_some_and(|w| w.contains("no heat out")));
+    let inverted = Summary {
+        hot_mean_k: Some(290.0),
+        bound: None,
+        ..ok
+    };
+    assert!(why_undefined(&inverted).is_some_and(|w| w.contains("T_h is not above T_c")));
+    let no_heat_in = Summary {
+        heat_in_j: 0.0,
+        entropy_in_j_per_k: 0.0,
+        performance: None,
+        hot_mean_k: None,
+        ..ok
+    };
+    assert!(why_undefined(&no_heat_in).is_some_and(|w| w.contains("no heat in")));
+}
