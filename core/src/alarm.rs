@@ -21,9 +21,54 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::config::{Alarms as AlarmConfig, RigConfig};
-use crate::monitor::{AlarmFigures, Faults};
+pub use crate::monitor::{AlarmInputs, RuleInputs};
 use crate::num::Real;
+
+/// Validated settings of one alarm rule.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Rule {
+    /// Whether the rule is evaluated.
+    pub enabled: bool,
+    /// Severity of its events; an active `trip` drives the trip output.
+    pub severity: Severity,
+    /// Hysteresis in the rule's unit.
+    pub deadband: f64,
+    /// On-delay, seconds of sample time.
+    pub on_delay_s: f64,
+    /// Off-delay, seconds of sample time.
+    pub off_delay_s: f64,
+    /// Hold until acknowledged.
+    pub latching: bool,
+}
+
+/// Validated alarm settings.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Alarms {
+    /// Fraction of the Carnot bound above which `near_carnot` is raised.
+    pub near_carnot_fraction: f64,
+    /// Hot-side limit for `over_temperature`, kelvin.
+    pub hot_max_k: f64,
+    /// Per-rule settings, indexed by [`RuleId::index`].
+    pub rules: [Rule; RuleId::COUNT],
+}
+
+impl Alarms {
+    /// The settings of one rule.
+    pub fn rule(&self, id: RuleId) -> &Rule {
+        &self.rules[id.index()]
+    }
+}
+
+/// Anything that holds the alarm settings, such as the validated rig
+/// configuration: the rules' own settings and the coverage factor k.
+pub trait AlarmConfig {
+    /// The rules' settings.
+    fn alarms(&self) -> &Alarms;
+    /// Coverage factor k of the second-law rules.
+    fn coverage_factor(&self) -> f64;
+}
 
 /// The alarm rules. Their ids ([`RuleId::as_str`]) are part of the interface.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
@@ -444,59 +489,6 @@ pub enum Verdict {
     Clear,
 }
 
-/// What the rules look at, every figure computed up front: the window
-/// figures, the latest hot-side temperature and the channel faults. Replays
-/// that already hold the figures build this; the monitor's live inputs are a
-/// [`WindowAlarmInputs`](crate::monitor::WindowAlarmInputs), whose
-/// `resolve()` gives this form.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct AlarmInputs<R: Real> {
-    /// The sliding window's figures that the rules read.
-    pub figures: AlarmFigures<R>,
-    /// Latest valid hot-side temperature, kelvin.
-    pub t_hot_k: Option<R>,
-    /// Channel faults.
-    pub faults: Faults,
-}
-
-/// Where the rules read their inputs.
-///
-/// [`AlarmInputs`] holds every figure up front. The monitor's
-/// [`WindowAlarmInputs`](crate::monitor::WindowAlarmInputs) leaves the
-/// uncertainties until a rule asks for them, which it does only within its
-/// deadband of a second-law limit: each such rule tests `a − k·u` with
-/// `k·u ≥ 0`, so a reading that clears with `u = 0` clears whatever `u` is,
-/// and the usual reading, far from the bound, costs no uncertainty work. The
-/// verdicts are the same either way.
-pub trait RuleInputs {
-    /// The type the figures are in.
-    type Real: Real;
-    /// The figures; the `var_*` fields may be `None` here.
-    fn figures(&self) -> AlarmFigures<Self::Real>;
-    /// The figures with their variances.
-    fn figures_with_variances(&self) -> AlarmFigures<Self::Real>;
-    /// Latest valid hot-side temperature, kelvin.
-    fn t_hot_k(&self) -> Option<Self::Real>;
-    /// Channel faults.
-    fn faults(&self) -> Faults;
-}
-
-impl<R: Real> RuleInputs for AlarmInputs<R> {
-    type Real = R;
-    fn figures(&self) -> AlarmFigures<R> {
-        self.figures
-    }
-    fn figures_with_variances(&self) -> AlarmFigures<R> {
-        self.figures
-    }
-    fn t_hot_k(&self) -> Option<R> {
-        self.t_hot_k
-    }
-    fn faults(&self) -> Faults {
-        self.faults
-    }
-}
-
 /// Turns `x` (positive = beyond the limit) into a verdict with `deadband`.
 fn level<R: Real>(x: Option<R>, deadband: R) -> Verdict {
     match x {
@@ -536,16 +528,16 @@ struct SingleLimits {
 
 impl Limits {
     /// The limits of `config`.
-    pub fn new(config: &RigConfig) -> Self {
-        let a: &AlarmConfig = &config.alarms;
+    pub fn new(config: &impl AlarmConfig) -> Self {
+        let a: &Alarms = config.alarms();
         let deadband = RuleId::ALL.map(|id| a.rule(id).deadband);
         Self {
-            coverage_factor: config.coverage_factor,
+            coverage_factor: config.coverage_factor(),
             near_carnot_fraction: a.near_carnot_fraction,
             hot_max_k: a.hot_max_k,
             deadband,
             single: SingleLimits {
-                coverage_factor: config.coverage_factor as f32,
+                coverage_factor: config.coverage_factor() as f32,
                 near_carnot_fraction: a.near_carnot_fraction as f32,
                 hot_max_k: a.hot_max_k as f32,
                 deadband: deadband.map(|d| d as f32),
@@ -669,8 +661,8 @@ pub struct AlarmSet {
 
 impl AlarmSet {
     /// Every rule in `Normal`, with the settings of `config`.
-    pub fn new(config: &RigConfig) -> Self {
-        let rule = |id: RuleId| config.alarms.rule(id);
+    pub fn new(config: &impl AlarmConfig) -> Self {
+        let rule = |id: RuleId| config.alarms().rule(id);
         Self {
             limits: Limits::new(config),
             states: [AlarmState::Normal; RuleId::COUNT],

@@ -32,51 +32,11 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::alarm::AlarmConfig;
+pub use crate::alarm::{Alarms, Rule};
 use crate::alarm::{RuleId, Severity};
-
-/// Which way the machine runs, which decides the figure of merit.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-#[serde(rename_all = "snake_case")]
-pub enum Mode {
-    /// A heat engine: efficiency η = W/Q_in against η_C = 1 − T_c/T_h.
-    ///
-    /// Channels: `heat_in_w` is heat drawn from the hot side, `work_w` the
-    /// work delivered, `heat_out_w` the heat rejected to the cold side.
-    #[default]
-    Engine,
-    /// A heat pump: COP = Q_hot/W against T_h/(T_h − T_c).
-    ///
-    /// Channels: `heat_in_w` is the heat delivered to the hot side, `work_w`
-    /// the work driving the machine, `heat_out_w` the heat drawn from the
-    /// cold side.
-    HeatPump,
-    /// A cooler: COP = Q_cold/W against T_c/(T_h − T_c); channels as for
-    /// [`Mode::HeatPump`].
-    Cooler,
-}
-
-impl Mode {
-    /// The name used in `rig.toml`.
-    pub const fn as_str(self) -> &'static str {
-        match self {
-            Mode::Engine => "engine",
-            Mode::HeatPump => "heat_pump",
-            Mode::Cooler => "cooler",
-        }
-    }
-
-    /// Whether the machine runs backwards (heat pump or cooler).
-    pub const fn is_reverse(self) -> bool {
-        !matches!(self, Mode::Engine)
-    }
-}
-
-impl core::fmt::Display for Mode {
-    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
+pub use crate::monitor::{Health, Mode, Steady, Uncertainty};
+use crate::monitor::{MonitorConfig, MonitorSettings};
 
 /// `rig.toml` as written: every key optional, unknown keys rejected.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
@@ -196,118 +156,6 @@ pub struct RuleFile {
     pub off_delay_s: Option<f64>,
     /// Hold the alarm until acknowledged, even after the condition clears.
     pub latching: Option<bool>,
-}
-
-/// Validated standard uncertainties.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Uncertainty {
-    /// Hot-side temperature, kelvin.
-    pub hot_k: f64,
-    /// Cold-side temperature, kelvin.
-    pub cold_k: f64,
-    /// Heat input, relative.
-    pub heat_in_rel: f64,
-    /// Work, relative.
-    pub work_rel: f64,
-    /// Heat out, relative.
-    pub heat_out_rel: f64,
-}
-
-impl Default for Uncertainty {
-    fn default() -> Self {
-        // See the module docs for the tolerance class behind each value.
-        const SQRT3: f64 = 1.732_050_807_568_877_2;
-        Self {
-            hot_k: 2.0 / SQRT3,
-            cold_k: 0.25 / SQRT3,
-            heat_in_rel: 0.01 / SQRT3,
-            work_rel: 0.01 / SQRT3,
-            heat_out_rel: 0.02 / SQRT3,
-        }
-    }
-}
-
-/// Validated steady-state settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Steady {
-    /// Seconds every channel must stay in band.
-    pub duration_s: f64,
-    /// Hot-side band, kelvin.
-    pub hot_band_k: f64,
-    /// Cold-side band, kelvin.
-    pub cold_band_k: f64,
-    /// Heat-input band, relative.
-    pub heat_in_band_rel: f64,
-    /// Work band, relative.
-    pub work_band_rel: f64,
-    /// Heat-out band, relative.
-    pub heat_out_band_rel: f64,
-}
-
-impl Default for Steady {
-    fn default() -> Self {
-        Self {
-            duration_s: 60.0,
-            hot_band_k: 2.0,
-            cold_band_k: 2.0,
-            heat_in_band_rel: 0.05,
-            work_band_rel: 0.05,
-            heat_out_band_rel: 0.05,
-        }
-    }
-}
-
-/// Validated health settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Health {
-    /// Consecutive identical readings that make a channel stuck; 0 = off.
-    pub stuck_samples: u32,
-    /// Sample spacing that makes the channels stale, seconds.
-    pub stale_s: f64,
-    /// Lowest plausible temperature, kelvin.
-    pub min_temperature_k: f64,
-    /// Highest plausible temperature, kelvin.
-    pub max_temperature_k: f64,
-}
-
-/// Validated settings of one alarm rule.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Rule {
-    /// Whether the rule is evaluated.
-    pub enabled: bool,
-    /// Severity of its events; an active `trip` drives the trip output.
-    pub severity: Severity,
-    /// Hysteresis in the rule's unit.
-    pub deadband: f64,
-    /// On-delay, seconds of sample time.
-    pub on_delay_s: f64,
-    /// Off-delay, seconds of sample time.
-    pub off_delay_s: f64,
-    /// Hold until acknowledged.
-    pub latching: bool,
-}
-
-/// Validated alarm settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Alarms {
-    /// Fraction of the Carnot bound above which `near_carnot` is raised.
-    pub near_carnot_fraction: f64,
-    /// Hot-side limit for `over_temperature`, kelvin.
-    pub hot_max_k: f64,
-    /// Per-rule settings, indexed by [`RuleId::index`].
-    pub rules: [Rule; RuleId::COUNT],
-}
-
-impl Alarms {
-    /// The settings of one rule.
-    pub fn rule(&self, id: RuleId) -> &Rule {
-        &self.rules[id.index()]
-    }
 }
 
 /// The validated rig configuration.
@@ -656,6 +504,29 @@ impl RigFile {
                 rules,
             },
         })
+    }
+}
+
+impl MonitorConfig for RigConfig {
+    fn monitor_settings(&self) -> MonitorSettings {
+        MonitorSettings {
+            mode: self.mode,
+            ambient_k: self.ambient_k,
+            window_samples: self.window_samples,
+            max_gap_s: self.max_gap_s,
+            uncertainty: self.uncertainty,
+            steady: self.steady,
+            health: self.health,
+        }
+    }
+}
+
+impl AlarmConfig for RigConfig {
+    fn alarms(&self) -> &Alarms {
+        &self.alarms
+    }
+    fn coverage_factor(&self) -> f64 {
+        self.coverage_factor
     }
 }
 

@@ -26,7 +26,8 @@
 //! - [`wire`]: the frames the controller streams, and the host's decoder;
 //! - [`config`]: what the monitor and alarms need to know about a rig;
 //! - [`gas`]: ideal-gas reference cycles to compare a rig with;
-//! - [`num`]: the float type the monitor computes in, and its sums.
+//! - [`num`]: the float type the monitor computes in, and its sums;
+//! - [`units`]: physical constants every module may use (a leaf).
 //!
 //! Units are SI throughout and carried in names (`t_hot_k`, `heat_in_w`);
 //! temperatures are kelvin inside the library, with °C only at the sensor edge.
@@ -44,12 +45,7 @@ pub mod gas;
 pub mod monitor;
 pub mod num;
 pub mod sensor;
+pub mod units;
 pub mod wire;
 
-/// The molar gas constant R in J/(mol·K): N_A·k with both defining constants
-/// exact in the 2019 SI (CODATA 2018, unchanged in 2022).
-pub const MOLAR_GAS_CONSTANT: f64 = 8.314_462_618_153_24;
-
-/// The offset between the Celsius and kelvin scales, exact by the SI
-/// definition of the degree Celsius.
-pub const ZERO_CELSIUS_K: f64 = 273.15;
+pub use units::{MOLAR_GAS_CONSTANT, ZERO_CELSIUS_K};

@@ -51,15 +51,165 @@
 //! [`Real`] it computes in: `f32` on a controller, `f64` on the host.
 //!
 //! `size_of::<Monitor<64>>()` (f32) is 3 232 bytes on x86-64, and the
-//! [`AlarmSet`](crate::alarm::AlarmSet) adds 232: together well under the
+//! `alarm::AlarmSet` adds 232: together well under the
 //! 8 KiB budget (a unit test checks it; `cargo run -p heatbound --example
 //! sizes` prints the figures).
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
-use crate::alarm::{AlarmInputs, RuleInputs};
-use crate::config::{Mode, RigConfig, Uncertainty};
 use crate::num::{Real, WindowSums, lanes};
+
+/// Which way the machine runs, which decides the figure of merit.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[serde(rename_all = "snake_case")]
+pub enum Mode {
+    /// A heat engine: efficiency η = W/Q_in against η_C = 1 − T_c/T_h.
+    ///
+    /// Channels: `heat_in_w` is heat drawn from the hot side, `work_w` the
+    /// work delivered, `heat_out_w` the heat rejected to the cold side.
+    #[default]
+    Engine,
+    /// A heat pump: COP = Q_hot/W against T_h/(T_h − T_c).
+    ///
+    /// Channels: `heat_in_w` is the heat delivered to the hot side, `work_w`
+    /// the work driving the machine, `heat_out_w` the heat drawn from the
+    /// cold side.
+    HeatPump,
+    /// A cooler: COP = Q_cold/W against T_c/(T_h − T_c); channels as for
+    /// [`Mode::HeatPump`].
+    Cooler,
+}
+
+impl Mode {
+    /// The name used in `rig.toml`.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            Mode::Engine => "engine",
+            Mode::HeatPump => "heat_pump",
+            Mode::Cooler => "cooler",
+        }
+    }
+
+    /// Whether the machine runs backwards (heat pump or cooler).
+    pub const fn is_reverse(self) -> bool {
+        !matches!(self, Mode::Engine)
+    }
+}
+
+impl core::fmt::Display for Mode {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// Validated standard uncertainties.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Uncertainty {
+    /// Hot-side temperature, kelvin.
+    pub hot_k: f64,
+    /// Cold-side temperature, kelvin.
+    pub cold_k: f64,
+    /// Heat input, relative.
+    pub heat_in_rel: f64,
+    /// Work, relative.
+    pub work_rel: f64,
+    /// Heat out, relative.
+    pub heat_out_rel: f64,
+}
+
+impl Default for Uncertainty {
+    fn default() -> Self {
+        // See the config module docs for the tolerance class behind each value.
+        const SQRT3: f64 = 1.732_050_807_568_877_2;
+        Self {
+            hot_k: 2.0 / SQRT3,
+            cold_k: 0.25 / SQRT3,
+            heat_in_rel: 0.01 / SQRT3,
+            work_rel: 0.01 / SQRT3,
+            heat_out_rel: 0.02 / SQRT3,
+        }
+    }
+}
+
+/// Validated steady-state settings.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Steady {
+    /// Seconds every channel must stay in band.
+    pub duration_s: f64,
+    /// Hot-side band, kelvin.
+    pub hot_band_k: f64,
+    /// Cold-side band, kelvin.
+    pub cold_band_k: f64,
+    /// Heat-input band, relative.
+    pub heat_in_band_rel: f64,
+    /// Work band, relative.
+    pub work_band_rel: f64,
+    /// Heat-out band, relative.
+    pub heat_out_band_rel: f64,
+}
+
+impl Default for Steady {
+    fn default() -> Self {
+        Self {
+            duration_s: 60.0,
+            hot_band_k: 2.0,
+            cold_band_k: 2.0,
+            heat_in_band_rel: 0.05,
+            work_band_rel: 0.05,
+            heat_out_band_rel: 0.05,
+        }
+    }
+}
+
+/// Validated health settings.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Health {
+    /// Consecutive identical readings that make a channel stuck; 0 = off.
+    pub stuck_samples: u32,
+    /// Sample spacing that makes the channels stale, seconds.
+    pub stale_s: f64,
+    /// Lowest plausible temperature, kelvin.
+    pub min_temperature_k: f64,
+    /// Highest plausible temperature, kelvin.
+    pub max_temperature_k: f64,
+}
+
+/// What the monitor needs to know about a rig: the settings the
+/// configuration gathers ([`MonitorConfig`] gives them).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct MonitorSettings {
+    /// Which way the machine runs.
+    pub mode: Mode,
+    /// Ambient temperature T0 for exergy, kelvin; `None`: the cold-side mean.
+    pub ambient_k: Option<f64>,
+    /// Length of the sliding window, in valid samples.
+    pub window_samples: u32,
+    /// Longest gap bridged by the integration, seconds.
+    pub max_gap_s: f64,
+    /// Standard uncertainties of the channels.
+    pub uncertainty: Uncertainty,
+    /// Steady-state detection.
+    pub steady: Steady,
+    /// Channel health.
+    pub health: Health,
+}
+
+/// Anything that holds the monitor's settings, such as the validated rig
+/// configuration.
+pub trait MonitorConfig {
+    /// The monitor's settings.
+    fn monitor_settings(&self) -> MonitorSettings;
+}
+
+impl MonitorConfig for MonitorSettings {
+    fn monitor_settings(&self) -> MonitorSettings {
+        *self
+    }
+}
 
 /// One reading of every channel, already converted to SI units.
 ///
@@ -248,7 +398,8 @@ pub struct FigureSettings {
 
 impl FigureSettings {
     /// The settings of `config`.
-    pub fn new(config: &RigConfig) -> Self {
+    pub fn new(config: &impl MonitorConfig) -> Self {
+        let config = &config.monitor_settings();
         Self {
             mode: config.mode,
             ambient_k: config.ambient_k,
@@ -970,7 +1121,8 @@ struct SteadyTracker<R> {
 }
 
 impl<R: Real> SteadyTracker<R> {
-    fn new(config: &RigConfig) -> Self {
+    fn new(config: &impl MonitorConfig) -> Self {
+        let config = &config.monitor_settings();
         let s = &config.steady;
         let bucket_ms = (s.duration_s * 1000.0 / BUCKETS as f64).clamp(1.0, u32::MAX as f64) as u32;
         let z = 0.0;
@@ -1183,7 +1335,8 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// assert_eq!(w.efficiency, Some(0.15));
     /// assert!((w.entropy_rate_w_per_k.unwrap() - 1.166_666_7).abs() < 1e-5);
     /// ```
-    pub fn new(config: &RigConfig) -> Result<Self, MonitorError> {
+    pub fn new(config: &impl MonitorConfig) -> Result<Self, MonitorError> {
+        let config = &config.monitor_settings();
         let window_len = config.window_samples as usize;
         if window_len > N || window_len < 2 {
             return Err(MonitorError::WindowTooLong {
@@ -1425,11 +1578,10 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         self.totals_integrals().metrics(&self.settings)
     }
 
-    /// What the alarm rules need now, for [`AlarmSet::update`]: the
+    /// What the alarm rules need now, for `alarm::AlarmSet::update`: the
     /// uncertainties are worked out only if a rule needs them (see
     /// [`RuleInputs`]).
     ///
-    /// [`AlarmSet::update`]: crate::alarm::AlarmSet::update
     pub fn alarm_inputs(&self) -> WindowAlarmInputs<'_, R> {
         WindowAlarmInputs {
             integrals: self.window_integrals(),
@@ -1494,121 +1646,55 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use crate::alarm::AlarmSet;
+/// What the rules look at, every figure computed up front: the window
+/// figures, the latest hot-side temperature and the channel faults. Replays
+/// that already hold the figures build this; the monitor's live inputs are a
+/// [`WindowAlarmInputs`], whose
+/// `resolve()` gives this form.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct AlarmInputs<R: Real> {
+    /// The sliding window's figures that the rules read.
+    pub figures: AlarmFigures<R>,
+    /// Latest valid hot-side temperature, kelvin.
+    pub t_hot_k: Option<R>,
+    /// Channel faults.
+    pub faults: Faults,
+}
 
-    fn steady(t_ms: u32) -> Sample {
-        Sample {
-            t_ms,
-            t_hot_k: 600.0,
-            t_cold_k: 300.0,
-            heat_in_w: 1000.0,
-            work_w: 150.0,
-            heat_out_w: None,
-        }
+/// Where the rules read their inputs.
+///
+/// [`AlarmInputs`] holds every figure up front. The monitor's
+/// [`WindowAlarmInputs`] leaves the
+/// uncertainties until a rule asks for them, which it does only within its
+/// deadband of a second-law limit: each such rule tests `a − k·u` with
+/// `k·u ≥ 0`, so a reading that clears with `u = 0` clears whatever `u` is,
+/// and the usual reading, far from the bound, costs no uncertainty work. The
+/// verdicts are the same either way.
+pub trait RuleInputs {
+    /// The type the figures are in.
+    type Real: Real;
+    /// The figures; the `var_*` fields may be `None` here.
+    fn figures(&self) -> AlarmFigures<Self::Real>;
+    /// The figures with their variances.
+    fn figures_with_variances(&self) -> AlarmFigures<Self::Real>;
+    /// Latest valid hot-side temperature, kelvin.
+    fn t_hot_k(&self) -> Option<Self::Real>;
+    /// Channel faults.
+    fn faults(&self) -> Faults;
+}
+
+impl<R: Real> RuleInputs for AlarmInputs<R> {
+    type Real = R;
+    fn figures(&self) -> AlarmFigures<R> {
+        self.figures
     }
-
-    fn small_window() -> RigConfig {
-        RigFile {
-            window_samples: Some(16),
-            ..Default::default()
-        }
-        .validate()
-        .unwrap()
+    fn figures_with_variances(&self) -> AlarmFigures<R> {
+        self.figures
     }
-
-    #[test]
-    fn monitor_and_alarms_fit_the_ram_budget() {
-        let monitor = core::mem::size_of::<Monitor<64>>();
-        let alarms = core::mem::size_of::<AlarmSet>();
-        assert!(
-            monitor + alarms <= 8 * 1024,
-            "monitor {monitor} + alarms {alarms} bytes"
-        );
+    fn t_hot_k(&self) -> Option<R> {
+        self.t_hot_k
     }
-
-    #[test]
-    fn window_slides_over_the_last_n_samples() {
-        let config = RigFile {
-            window_samples: Some(4),
-            ..Default::default()
-        }
-        .validate()
-        .unwrap();
-        let mut m: Monitor<8, f64> = Monitor::new(&config).unwrap();
-        for i in 0..10u32 {
-            let s = Sample {
-                t_ms: i * 1000,
-                t_hot_k: 600.0,
-                t_cold_k: 300.0,
-                heat_in_w: f64::from(i),
-                work_w: 0.0,
-                heat_out_w: None,
-            };
-            m.push(&s);
-        }
-        // Last four samples: q_in = 6, 7, 8, 9 W at 1 s spacing.
-        let w = m.window_integrals();
-        assert_eq!(w.duration_s, 3.0);
-        assert_eq!(w.heat_in_j, 6.5 + 7.5 + 8.5);
-        assert_eq!(m.totals_integrals().heat_in_j, 40.5);
-    }
-
-    use crate::config::RigFile;
-
-    #[test]
-    fn gap_restarts_integration_and_invalid_samples_are_bridged() {
-        let mut m: Monitor<64, f64> = Monitor::new(&RigConfig::default()).unwrap();
-        let s = |t_ms: u32, q: f64| Sample {
-            t_ms,
-            t_hot_k: 600.0,
-            t_cold_k: 300.0,
-            heat_in_w: q,
-            work_w: 0.0,
-            heat_out_w: None,
-        };
-        assert_eq!(m.push(&s(0, 1.0)), Pushed::Started);
-        assert_eq!(m.push(&s(1000, 1.0)), Pushed::Integrated);
-        assert!(matches!(
-            m.push(&s(2000, f64::NAN)),
-            Pushed::Invalid(Invalid::NonFinite(Channel::HeatIn))
-        ));
-        assert_eq!(m.push(&s(3000, 1.0)), Pushed::Integrated); // bridged over 2 s
-        assert_eq!(m.push(&s(30_000, 1.0)), Pushed::Started); // 27 s > max_gap_s = 10 s
-        assert_eq!(m.push(&s(31_000, 1.0)), Pushed::Integrated);
-        assert_eq!(m.totals_integrals().duration_s, 4.0);
-        assert_eq!(m.invalid_samples(), 1);
-        assert_eq!(m.restarts(), 1);
-    }
-
-    #[test]
-    fn millisecond_clock_wrap_is_a_normal_step() {
-        let mut m: Monitor<16, f64> = Monitor::new(&small_window()).unwrap();
-        let start = u32::MAX - 1500;
-        for i in 0..4u32 {
-            let s = Sample {
-                t_ms: start.wrapping_add(i * 1000),
-                t_hot_k: 600.0,
-                t_cold_k: 300.0,
-                heat_in_w: 1000.0,
-                work_w: 150.0,
-                heat_out_w: None,
-            };
-            m.push(&s);
-        }
-        assert_eq!(m.totals_integrals().duration_s, 3.0);
-        assert_eq!(m.restarts(), 0);
-    }
-
-    #[test]
-    fn nothing_available_before_two_samples() {
-        let mut m: Monitor<16> = Monitor::new(&small_window()).unwrap();
-        m.push(&steady(0));
-        let w = m.window_metrics();
-        assert_eq!(w.efficiency, None);
-        assert_eq!(w.carnot_efficiency, None);
-        assert_eq!(w.entropy_rate_w_per_k, None);
+    fn faults(&self) -> Faults {
+        self.faults
     }
 }

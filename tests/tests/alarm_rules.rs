@@ -41,7 +41,10 @@ fn rule_config(rule: RuleId, on: f64, off: f64, latching: bool) -> RigConfig {
     match rule {
         RuleId::OverTemperature => a.over_temperature = r,
         RuleId::NearCarnot => a.near_carnot = r,
-        _ => unreachable!("only used for these two"),
+        RuleId::BeyondCarnot => a.beyond_carnot = r,
+        RuleId::NegativeEntropyProduction => a.negative_entropy_production = r,
+        RuleId::EnergyBalance => a.energy_balance = r,
+        RuleId::SensorFault => a.sensor_fault = r,
     }
     config(RigFile {
         alarms: Some(a),
@@ -117,6 +120,11 @@ fn deadband_sits_below_the_limit() {
     assert_eq!(at(1100.0), Verdict::Hold, "at the limit is not beyond it");
     assert_eq!(at(1089.5), Verdict::Hold);
     assert_eq!(at(1088.5), Verdict::Clear);
+    // Just either side of both edges, so that the deadband is pinned to
+    // better than 1 % of its 11 K (0.11 K): ±0.01 K.
+    assert_eq!(at(1100.01), RAISE);
+    assert_eq!(at(1089.01), Verdict::Hold, "0.01 K inside the deadband");
+    assert_eq!(at(1088.99), Verdict::Clear, "0.01 K beyond the deadband");
     // Not evaluable (no valid hot reading yet) counts as clear.
     let none = AlarmInputs {
         figures: AlarmFigures::<f32>::default(),
@@ -666,4 +674,110 @@ fn near_carnot_above_three_quarters_of_the_bound() {
     // η = 0.37 is 0.74 of Carnot: not raised.
     let (rig, _) = steady_engine(0.37, None);
     assert!(rig.events.is_empty(), "{:?}", rig.events);
+}
+
+/// Window figures with only the second-law quantities of one rule set, in
+/// `f64`; every other figure not evaluable.
+fn figures(f: impl FnOnce(&mut AlarmFigures<f64>)) -> AlarmInputs<f64> {
+    let mut figures = AlarmFigures::<f64>::default();
+    f(&mut figures);
+    AlarmInputs {
+        figures,
+        t_hot_k: None,
+        faults: Faults::default(),
+    }
+}
+
+/// Runs `rule` (on-delay 0, off-delay 2 s, not latching) through raise,
+/// hold inside the deadband, and clear beyond it, at 1 s steps:
+/// DESIGN.md §4 "Alarm rules": a rule raises when its reading is beyond the
+/// limit by more than k·u, stays raised while it is back inside the
+/// deadband, and clears once it is beyond the deadband for the off-delay.
+fn raise_hold_clear(
+    rule: RuleId,
+    raise: AlarmInputs<f64>,
+    hold: AlarmInputs<f64>,
+    clear: AlarmInputs<f64>,
+) {
+    let limits = Limits::new(&RigConfig::default());
+    let v = |i: &AlarmInputs<f64>| limits.verdicts(i)[rule.index()];
+    assert_eq!(v(&raise), RAISE, "{rule:?}: raise point");
+    assert_eq!(v(&hold), Verdict::Hold, "{rule:?}: inside the deadband");
+    assert_eq!(v(&clear), Verdict::Clear, "{rule:?}: beyond the deadband");
+
+    let mut a = AlarmSet::new(&rule_config(rule, 0.0, 2.0, false));
+    assert_eq!(
+        kinds(&a.update(0, &raise)),
+        [(0, rule, EventKind::Raised)],
+        "{rule:?}: on-delay 0 raises at once"
+    );
+    for t in [1000, 2000, 3000, 4000] {
+        assert!(a.update(t, &hold).is_empty(), "{rule:?} at {t} ms");
+        assert_eq!(
+            a.state(rule),
+            AlarmState::Active { acked: false },
+            "{rule:?}: held inside the deadband at {t} ms"
+        );
+    }
+    assert!(a.update(5000, &clear).is_empty());
+    assert!(a.update(6999, &clear).is_empty(), "{rule:?}: off-delay 2 s");
+    assert!(a.is_active(rule));
+    assert_eq!(
+        kinds(&a.update(7000, &clear)),
+        [(7000, rule, EventKind::Cleared)],
+        "{rule:?}: cleared after the off-delay"
+    );
+    assert_eq!(a.state(rule), AlarmState::Normal);
+}
+
+#[test]
+fn beyond_carnot_raises_holds_in_its_deadband_and_clears() {
+    // DESIGN.md §4: raise when η − η_C > k·u(margin). Defaults (config.rs):
+    // k = 2, deadband 0.01 efficiency points. With u(margin) = 0.002,
+    // k·u = 0.004: raise for margin < −0.004, hold while
+    // −margin − k·u ≥ −0.01, i.e. margin ≤ 0.006, clear above (hand derivation).
+    let at = |margin: f64| {
+        figures(|f| {
+            f.carnot_margin = Some(margin);
+            f.var_carnot_margin = Some(0.002 * 0.002);
+        })
+    };
+    raise_hold_clear(RuleId::BeyondCarnot, at(-0.02), at(0.005), at(0.007));
+}
+
+#[test]
+fn negative_entropy_production_raises_holds_in_its_deadband_and_clears() {
+    // DESIGN.md §4: raise when σ̇ < −k·u(σ̇). Deadband 0.01 of the entropy
+    // inflow rate (config.rs), here 2 W/K: 0.02 W/K. With u(σ̇) = 0.005 W/K,
+    // k·u = 0.01 W/K: raise for σ̇ < −0.01, hold while −σ̇ − 0.01 ≥ −0.02,
+    // i.e. σ̇ ≤ 0.01 W/K, clear above (hand derivation).
+    let at = |sigma: f64| {
+        figures(|f| {
+            f.entropy_rate_w_per_k = Some(sigma);
+            f.var_entropy_rate_w_per_k = Some(0.005 * 0.005);
+            f.entropy_in_rate_w_per_k = Some(2.0);
+        })
+    };
+    raise_hold_clear(
+        RuleId::NegativeEntropyProduction,
+        at(-0.05),
+        at(0.005),
+        at(0.015),
+    );
+}
+
+#[test]
+fn energy_balance_raises_holds_in_its_deadband_and_clears() {
+    // DESIGN.md §4: raise when Q_loss < −k·u(Q_loss). Deadband 0.01 of Q_in
+    // (config.rs), here 10 kJ: 100 J. With u(Q_loss) = 25 J, k·u = 50 J:
+    // raise for Q_loss < −50 J, hold while −Q_loss − 50 ≥ −100, i.e.
+    // Q_loss ≤ 50 J, clear above (hand derivation).
+    let at = |loss: f64| {
+        figures(|f| {
+            f.heat_in_j = 10_000.0;
+            f.balance_residual_j = Some(loss);
+            f.var_balance_residual_j = Some(25.0 * 25.0);
+        })
+    };
+    raise_hold_clear(RuleId::EnergyBalance, at(-200.0), at(30.0), at(60.0));
 }

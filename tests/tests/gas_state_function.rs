@@ -11,8 +11,20 @@ use gas_cycles::{
     three_step,
 };
 use heatbound::MOLAR_GAS_CONSTANT;
-use heatbound::gas::{Cycle, EndCondition as E, Process as P, State, delta_s};
+use heatbound::gas::{Cycle, EndCondition as E, Gas, Process as P, State, delta_s};
 use heatbound_verification::rel_diff;
+
+/// ΔS between two states from the closed form n·Cv·ln(T2/T1) + n·R·ln(V2/V1)
+/// (ideal gas, any thermodynamics text: common practice), computed here from
+/// the states' temperatures and volumes, not with the core's `delta_s`.
+/// Returns ΔS and the sum of the two terms' magnitudes, the scale for a
+/// rounding tolerance.
+fn closed_form(g: &Gas, a: &State, b: &State) -> (f64, f64) {
+    let n = g.moles_mol();
+    let thermal = n * g.cv_molar_j_per_mol_k() * (b.temperature_k() / a.temperature_k()).ln();
+    let volume = n * MOLAR_GAS_CONSTANT * (b.volume_m3() / a.volume_m3()).ln();
+    (thermal + volume, thermal.abs() + volume.abs())
+}
 
 fn path_delta_s(c: &Cycle<CAP>) -> f64 {
     c.steps().iter().map(|s| s.delta_s_j_per_k).sum()
@@ -105,6 +117,15 @@ fn adiabatic_steps_have_zero_entropy_change() {
         assert_eq!(step.heat_j, 0.0);
         // The state function agrees to rounding.
         assert!(delta_s(&g, &step.start, &step.end).abs() < 1e-12 * g.nr_j_per_k());
+        // The stored ΔS against the closed form from the step's end states:
+        // fails if the end state is off the adiabat.
+        let (want, scale) = closed_form(&g, &step.start, &step.end);
+        assert!(scale > 1.0, "premise: both terms are large ({scale} J/K)");
+        assert!(
+            (step.delta_s_j_per_k - want).abs() <= 1e-12 * scale,
+            "{end:?}: stored ΔS {} against the closed form {want}",
+            step.delta_s_j_per_k
+        );
     }
 }
 
@@ -132,6 +153,34 @@ fn closed_reversible_cycles_return_entropy_to_zero() {
             path_delta_s(&c).abs() <= 1e-12 * scale,
             "{name}: Σ step ΔS = {:e}",
             path_delta_s(&c)
+        );
+        // Each step's ΔS against the closed form from its own end states,
+        // and the cycle total against the sum of those.
+        let g = c.gas();
+        let (mut total, mut total_scale) = (0.0, 0.0);
+        for (i, step) in c.steps().iter().enumerate() {
+            let (want, scale) = closed_form(g, &step.start, &step.end);
+            assert!(
+                (step.delta_s_j_per_k - want).abs() <= 1e-12 * scale.max(g.nr_j_per_k()),
+                "{name} step {}: ΔS {} against the closed form {want}",
+                i + 1,
+                step.delta_s_j_per_k
+            );
+            total += want;
+            total_scale += scale;
+        }
+        assert!(
+            total_scale > 0.0,
+            "{name}: premise, the cycle changes state"
+        );
+        assert!(
+            (s.total_delta_s_j_per_k - total).abs() <= 1e-12 * total_scale,
+            "{name}: total ΔS {} against Σ closed form {total:e}",
+            s.total_delta_s_j_per_k
+        );
+        assert!(
+            (path_delta_s(&c) - total).abs() <= 1e-12 * total_scale,
+            "{name}: Σ step ΔS against Σ closed form"
         );
         // Energy closes too: ΣQ − ΣW = ΣΔU = 0 around the loop.
         assert!((s.heat_in_j - s.heat_out_j - s.net_work_j).abs() <= 1e-12 * s.heat_in_j);

@@ -1,6 +1,7 @@
 //! Fixed-capacity sequences of process steps: closed cycles and open paths.
 
-use super::{EndCondition, Gas, Process, ProcessError, State, Step, delta_s};
+use super::process::{EndCondition, Process, ProcessError, Step};
+use super::state::{Gas, State, delta_s};
 
 /// A heat in or out smaller than this fraction of the largest energy in the
 /// cycle is rounding, and is classified as neither.

@@ -1,6 +1,6 @@
 //! Reversible ideal-gas processes: one step from a state to an end condition.
 
-use super::{Gas, State, delta_s, ln_ratio, positive_finite, rel_eq};
+use super::state::{Gas, State, delta_s, ln_ratio, positive_finite, rel_eq};
 
 /// A reversible process of an ideal gas.
 ///

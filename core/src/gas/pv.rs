@@ -4,7 +4,7 @@
 //! Inputs are parallel slices of absolute pressure (Pa) and volume (m³), as
 //! an indicator (pressure transducer plus crank-angle encoder) records them.
 
-use super::positive_finite;
+use super::state::positive_finite;
 
 /// Indicated work of one closed p-V loop, `∮p dV` (J), by the trapezoid
 /// rule over the samples, closing the loop from the last sample back to the

@@ -3,7 +3,7 @@
 //! Where it sits: a driver (a ratiometric ADC or an RTD-to-digital converter)
 //! delivers the sensor resistance in ohms; this module turns it into the
 //! temperature that goes into a `Sample` (in kelvin, after adding
-//! [`crate::ZERO_CELSIUS_K`]), and back for checking against a calibrator.
+//! [`crate::units::ZERO_CELSIUS_K`]), and back for checking against a calibrator.
 //!
 //! The Callendar–Van Dusen equation of IEC 60751:2008, −200 to 850 °C:
 //!

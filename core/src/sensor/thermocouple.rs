@@ -3,7 +3,7 @@
 //! Where it sits: a driver (an ADC or a thermocouple front end) delivers the
 //! thermocouple EMF in millivolts and the cold-junction temperature; this
 //! module turns them into the hot-junction temperature that goes into a
-//! `Sample` (in kelvin, after adding [`crate::ZERO_CELSIUS_K`]).
+//! `Sample` (in kelvin, after adding [`crate::units::ZERO_CELSIUS_K`]).
 //!
 //! The reference functions give E(t) in mV for t in °C with the reference
 //! junction at 0 °C, over the full published ranges (K −270 to 1372 °C,

@@ -1,7 +1,7 @@
 //! Liquid water at atmospheric pressure: isobaric heat capacity cp(T) and
 //! density ρ(T), 5 to 95 °C, for coolant calorimetry.
 //!
-//! Where it sits: [`super::power`] uses these to turn a coolant flow and its
+//! Where it sits: `sensor::power` uses these to turn a coolant flow and its
 //! temperature rise into a heat flow (watts) for the `Sample`.
 //!
 //! Both are polynomials in x = t/100 °C fitted by least squares to IAPWS-95

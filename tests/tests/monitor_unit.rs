@@ -1,0 +1,119 @@
+//! Monitor checks moved out of monitor.rs, so that monitor imports neither
+//! config nor alarm (the one-way flow of the core's layout).
+
+use heatbound::alarm::AlarmSet;
+use heatbound::config::RigConfig;
+use heatbound::monitor::*;
+
+fn steady(t_ms: u32) -> Sample {
+    Sample {
+        t_ms,
+        t_hot_k: 600.0,
+        t_cold_k: 300.0,
+        heat_in_w: 1000.0,
+        work_w: 150.0,
+        heat_out_w: None,
+    }
+}
+
+fn small_window() -> RigConfig {
+    RigFile {
+        window_samples: Some(16),
+        ..Default::default()
+    }
+    .validate()
+    .unwrap()
+}
+
+#[test]
+fn monitor_and_alarms_fit_the_ram_budget() {
+    let monitor = core::mem::size_of::<Monitor<64>>();
+    let alarms = core::mem::size_of::<AlarmSet>();
+    assert!(
+        monitor + alarms <= 8 * 1024,
+        "monitor {monitor} + alarms {alarms} bytes"
+    );
+}
+
+#[test]
+fn window_slides_over_the_last_n_samples() {
+    let config = RigFile {
+        window_samples: Some(4),
+        ..Default::default()
+    }
+    .validate()
+    .unwrap();
+    let mut m: Monitor<8, f64> = Monitor::new(&config).unwrap();
+    for i in 0..10u32 {
+        let s = Sample {
+            t_ms: i * 1000,
+            t_hot_k: 600.0,
+            t_cold_k: 300.0,
+            heat_in_w: f64::from(i),
+            work_w: 0.0,
+            heat_out_w: None,
+        };
+        m.push(&s);
+    }
+    // Last four samples: q_in = 6, 7, 8, 9 W at 1 s spacing.
+    let w = m.window_integrals();
+    assert_eq!(w.duration_s, 3.0);
+    assert_eq!(w.heat_in_j, 6.5 + 7.5 + 8.5);
+    assert_eq!(m.totals_integrals().heat_in_j, 40.5);
+}
+
+use heatbound::config::RigFile;
+
+#[test]
+fn gap_restarts_integration_and_invalid_samples_are_bridged() {
+    let mut m: Monitor<64, f64> = Monitor::new(&RigConfig::default()).unwrap();
+    let s = |t_ms: u32, q: f64| Sample {
+        t_ms,
+        t_hot_k: 600.0,
+        t_cold_k: 300.0,
+        heat_in_w: q,
+        work_w: 0.0,
+        heat_out_w: None,
+    };
+    assert_eq!(m.push(&s(0, 1.0)), Pushed::Started);
+    assert_eq!(m.push(&s(1000, 1.0)), Pushed::Integrated);
+    assert!(matches!(
+        m.push(&s(2000, f64::NAN)),
+        Pushed::Invalid(Invalid::NonFinite(Channel::HeatIn))
+    ));
+    assert_eq!(m.push(&s(3000, 1.0)), Pushed::Integrated); // bridged over 2 s
+    assert_eq!(m.push(&s(30_000, 1.0)), Pushed::Started); // 27 s > max_gap_s = 10 s
+    assert_eq!(m.push(&s(31_000, 1.0)), Pushed::Integrated);
+    assert_eq!(m.totals_integrals().duration_s, 4.0);
+    assert_eq!(m.invalid_samples(), 1);
+    assert_eq!(m.restarts(), 1);
+}
+
+#[test]
+fn millisecond_clock_wrap_is_a_normal_step() {
+    let mut m: Monitor<16, f64> = Monitor::new(&small_window()).unwrap();
+    let start = u32::MAX - 1500;
+    for i in 0..4u32 {
+        let s = Sample {
+            t_ms: start.wrapping_add(i * 1000),
+            t_hot_k: 600.0,
+            t_cold_k: 300.0,
+            heat_in_w: 1000.0,
+            work_w: 150.0,
+            heat_out_w: None,
+        };
+        m.push(&s);
+    }
+    assert_eq!(m.totals_integrals().duration_s, 3.0);
+    assert_eq!(m.restarts(), 0);
+}
+
+#[test]
+fn nothing_available_before_two_samples() {
+    let mut m: Monitor<16> = Monitor::new(&small_window()).unwrap();
+    m.push(&steady(0));
+    let w = m.window_metrics();
+    assert_eq!(w.efficiency, None);
+    assert_eq!(w.carnot_efficiency, None);
+    assert_eq!(w.entropy_rate_w_per_k, None);
+}
