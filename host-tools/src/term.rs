@@ -126,9 +126,8 @@ mod tests {
 /// what was left out, so a damaged file cannot flood the terminal.
 pub fn excerpt(text: &str, max: usize) -> String {
     let mut out = String::new();
-    let mut shown = 0usize;
     let mut chars = text.chars();
-    for c in chars.by_ref() {
+    for (shown, c) in chars.by_ref().enumerate() {
         if shown >= max {
             let rest = 1 + chars.count();
             out.push_str(&format!("… ({rest} more characters)"));
@@ -139,7 +138,6 @@ pub fn excerpt(text: &str, max: usize) -> String {
         } else {
             out.push(c);
         }
-        shown += 1;
     }
     out
 }

@@ -1,0 +1,72 @@
+//! The constants of the wire format: protocol version, sizes, kinds and bit layouts.
+
+use crate::alarm::RuleId;
+use crate::monitor::Channel;
+
+/// The protocol version carried in every frame's header.
+///
+/// Any change to a field's order, type or meaning, and any new frame kind,
+/// bumps it; decoders reject frames of other versions and count them.
+pub const PROTOCOL_VERSION: u8 = 1;
+
+/// The longest frame on the wire, delimiter included: a buffer of this size
+/// holds any frame `encode` writes, and a `Decoder` of this capacity
+/// accepts every frame of this version.
+pub const MAX_FRAME_LEN: usize = 128;
+
+/// The worst-case size of a `Summary` on the wire, delimiter included:
+/// every varint at its longest (`seq ≥ 2^14`, `t_ms ≥ 2^28`).
+pub const SUMMARY_MAX_WIRE_LEN: usize = cobs_max_len(SUMMARY_MAX_PAYLOAD + CRC_LEN) + 1;
+
+/// Header (2) + `seq` (≤ 3) + `t_ms` (≤ 5) + 15 f32 + 3 bit bytes.
+pub(super) const SUMMARY_MAX_PAYLOAD: usize = 2 + 3 + 5 + 15 * 4 + 3;
+
+const _: () = assert!(
+    SUMMARY_MAX_WIRE_LEN <= 80,
+    "Summary exceeds its 80-byte budget"
+);
+
+pub(super) const CRC_LEN: usize = 4;
+/// The largest postcard payload plus CRC that still fits in [`MAX_FRAME_LEN`].
+pub(super) const MAX_RAW_LEN: usize = MAX_FRAME_LEN - 2;
+
+/// The CRC over the postcard bytes: CRC-32/ISO-HDLC (the Ethernet, zlib and
+/// PNG CRC), check value `0xCBF43926`.
+pub(super) const CRC: crc::Crc<u32> = crc::Crc::<u32>::new(&crc::CRC_32_ISO_HDLC);
+
+/// The frame kinds, the second header byte.
+pub(super) mod kind {
+    pub const HELLO: u8 = 0;
+    pub const SUMMARY: u8 = 1;
+    pub const EVENT: u8 = 2;
+}
+
+/// Bits of `Summary`'s `status` byte.
+pub(super) mod status_bit {
+    pub const STEADY: u8 = 1 << 0;
+    pub const HEAT_OUT_MEASURED: u8 = 1 << 1;
+    pub const TRIP_ACTIVE: u8 = 1 << 2;
+    pub const ANY_FAULT: u8 = 1 << 3;
+    pub const DEFINED: u8 = STEADY | HEAT_OUT_MEASURED | TRIP_ACTIVE | ANY_FAULT;
+}
+
+/// The channel bits of a fault byte: bits 0–4 = [`Channel::bit`].
+pub(super) const CHANNEL_BITS: u8 = {
+    let mut m = 0;
+    let mut i = 0;
+    while i < Channel::ALL.len() {
+        m |= Channel::ALL[i].bit();
+        i += 1;
+    }
+    m
+};
+/// The stale bit of the fault byte.
+pub(super) const STALE_BIT: u8 = 1 << 5;
+/// The alarm bits: bit i = `RuleId::index`.
+pub(super) const ALARM_BITS: u8 = (1 << RuleId::COUNT) - 1;
+
+/// The longest COBS encoding of `n` bytes: one overhead byte per started
+/// block of 254.
+pub(super) const fn cobs_max_len(n: usize) -> usize {
+    n + n / 254 + 1
+}

@@ -1,0 +1,499 @@
+//! The validated frames (Hello, Summary, Event) and the constants of the wire format.
+
+use serde::{Deserialize, Serialize};
+
+use super::error::*;
+use super::format::*;
+use crate::alarm::{AlarmSet, Event};
+use crate::config::{Mode, RigConfig};
+use crate::monitor::{Channel, Integrals, Monitor};
+
+// ---------------------------------------------------------------------------
+// Validated frames
+// ---------------------------------------------------------------------------
+
+/// One frame, validated.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Frame {
+    /// Who is talking and how it computes: sent at start-up and periodically.
+    Hello(Hello),
+    /// One window's integrals and figures.
+    Summary(Summary),
+    /// An alarm event.
+    Event(EventFrame),
+}
+
+impl Frame {
+    /// The frame's kind byte on the wire.
+    pub const fn kind(&self) -> u8 {
+        match self {
+            Frame::Hello(_) => kind::HELLO,
+            Frame::Summary(_) => kind::SUMMARY,
+            Frame::Event(_) => kind::EVENT,
+        }
+    }
+}
+
+/// A rig identifier: up to 16 printable ASCII bytes.
+///
+/// On the wire it is 16 bytes, zero-padded.
+///
+/// ```
+/// use heatbound::wire::RigId;
+/// let id = RigId::new("stirling-2").unwrap();
+/// assert_eq!(id.as_str(), "stirling-2");
+/// assert!(RigId::new("much-too-long-rig-id").is_err());
+/// ```
+#[derive(Clone, Copy, PartialEq, Eq, Hash, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct RigId(pub(super) [u8; RigId::LEN]);
+
+impl RigId {
+    /// The longest id, bytes.
+    pub const LEN: usize = 16;
+
+    /// `id` if it is at most 16 bytes of printable ASCII (space to `~`).
+    pub fn new(id: &str) -> Result<RigId, WireError> {
+        let mut bytes = [0; RigId::LEN];
+        if id.len() > RigId::LEN {
+            return Err(WireError::BadRigId);
+        }
+        for (dst, b) in bytes.iter_mut().zip(id.bytes()) {
+            if !(0x20..=0x7E).contains(&b) {
+                return Err(WireError::BadRigId);
+            }
+            *dst = b;
+        }
+        Ok(RigId(bytes))
+    }
+
+    /// The padded bytes as they travel, if they form a valid id: printable
+    /// ASCII followed only by zero padding.
+    pub(super) fn from_padded(bytes: [u8; RigId::LEN]) -> Option<RigId> {
+        let len = bytes.iter().position(|&b| b == 0).unwrap_or(RigId::LEN);
+        let (text, pad) = bytes.split_at(len);
+        let ok = text.iter().all(|b| (0x20..=0x7E).contains(b)) && pad.iter().all(|&b| b == 0);
+        ok.then_some(RigId(bytes))
+    }
+
+    /// The id.
+    pub fn as_str(&self) -> &str {
+        let len = self.0.iter().position(|&b| b == 0).unwrap_or(RigId::LEN);
+        // Construction admits only ASCII, so this never fails.
+        core::str::from_utf8(self.0.get(..len).unwrap_or(&[])).unwrap_or("")
+    }
+}
+
+impl core::fmt::Debug for RigId {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.debug_tuple("RigId").field(&self.as_str()).finish()
+    }
+}
+
+impl core::fmt::Display for RigId {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// The five channel standard uncertainties (coverage k = 1), as configured.
+#[derive(Clone, Copy, Debug, PartialEq, Default, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Uncertainties {
+    /// Hot-side temperature, kelvin.
+    pub hot_k: f32,
+    /// Cold-side temperature, kelvin.
+    pub cold_k: f32,
+    /// Heat input, relative.
+    pub heat_in_rel: f32,
+    /// Work, relative.
+    pub work_rel: f32,
+    /// Heat out, relative.
+    pub heat_out_rel: f32,
+}
+
+impl Uncertainties {
+    pub(super) fn all_finite(&self) -> bool {
+        [
+            self.hot_k,
+            self.cold_k,
+            self.heat_in_rel,
+            self.work_rel,
+            self.heat_out_rel,
+        ]
+        .iter()
+        .all(|x| x.is_finite())
+    }
+}
+
+/// Who is talking and how it computes: everything the host needs to
+/// recompute the figures of a `Summary` from its integrals.
+///
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound::wire::{Hello, RigId};
+/// let config = RigConfig::default();
+/// let hello = Hello::from_config(RigId::new("rig-a").unwrap(), (1, 2, 0), 100, &config);
+/// assert_eq!(hello.config_digest, Hello::config_digest(&config));
+/// assert_eq!(hello.coverage_factor, 2.0);
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Hello {
+    /// The rig's identifier.
+    pub rig_id: RigId,
+    /// Firmware version (major, minor, patch).
+    pub firmware_version: (u8, u8, u8),
+    /// Nominal sample period, milliseconds.
+    pub sample_period_ms: u32,
+    /// Sliding-window length, samples.
+    pub window_samples: u16,
+    /// Engine, heat pump or cooler: decides what `performance` and `bound` mean.
+    pub mode: Mode,
+    /// Coverage factor k for expanded uncertainties (finite).
+    pub coverage_factor: f32,
+    /// Configured ambient T0, kelvin (finite); `None` = the cold-side mean.
+    pub ambient_k: Option<f32>,
+    /// Channel standard uncertainties (finite).
+    pub uncertainty: Uncertainties,
+    /// [`Hello::config_digest`] of the configuration in use.
+    pub config_digest: u32,
+}
+
+impl Hello {
+    /// The Hello of a controller running `config`.
+    pub fn from_config(
+        rig_id: RigId,
+        firmware_version: (u8, u8, u8),
+        sample_period_ms: u32,
+        config: &RigConfig,
+    ) -> Hello {
+        let u = &config.uncertainty;
+        Hello {
+            rig_id,
+            firmware_version,
+            sample_period_ms,
+            window_samples: u16::try_from(config.window_samples).unwrap_or(u16::MAX),
+            mode: config.mode,
+            coverage_factor: config.coverage_factor as f32,
+            ambient_k: config.ambient_k.map(|t| t as f32),
+            uncertainty: Uncertainties {
+                hot_k: u.hot_k as f32,
+                cold_k: u.cold_k as f32,
+                heat_in_rel: u.heat_in_rel as f32,
+                work_rel: u.work_rel as f32,
+                heat_out_rel: u.heat_out_rel as f32,
+            },
+            config_digest: Hello::config_digest(config),
+        }
+    }
+
+    /// CRC-32/ISO-HDLC of the postcard encoding of the whole `config`:
+    /// every field of a [`RigConfig`] affects the figures or the alarms, so
+    /// host and device agree on the digest exactly when they agree on the
+    /// configuration.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::wire::Hello;
+    /// let a = RigConfig::default();
+    /// let mut b = a;
+    /// b.coverage_factor = 3.0;
+    /// assert_ne!(Hello::config_digest(&a), Hello::config_digest(&b));
+    /// ```
+    pub fn config_digest(config: &RigConfig) -> u32 {
+        let digest = CrcFlavor(CRC.digest());
+        // The flavor never fails and RigConfig's Serialize never fails.
+        postcard::serialize_with_flavor(config, digest).unwrap_or(0)
+    }
+
+    pub(super) fn is_valid(&self) -> bool {
+        self.coverage_factor.is_finite()
+            && self.ambient_k.is_none_or(f32::is_finite)
+            && self.uncertainty.all_finite()
+    }
+}
+
+/// A postcard flavor that feeds the bytes to a CRC instead of storing them.
+pub(super) struct CrcFlavor(crc::Digest<'static, u32>);
+
+impl postcard::ser_flavors::Flavor for CrcFlavor {
+    type Output = u32;
+    fn try_extend(&mut self, data: &[u8]) -> postcard::Result<()> {
+        self.0.update(data);
+        Ok(())
+    }
+    fn try_push(&mut self, data: u8) -> postcard::Result<()> {
+        self.0.update(&[data]);
+        Ok(())
+    }
+    fn finalize(self) -> postcard::Result<u32> {
+        Ok(self.0.finalize())
+    }
+}
+
+/// The `status` bits of a `Summary`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Status {
+    /// Every channel has stayed in band for the configured duration.
+    pub steady: bool,
+    /// Heat out is measured (else `heat_out_j` is inferred as `Q_in − W`).
+    pub heat_out_measured: bool,
+    /// An active alarm of severity trip drives the trip output.
+    pub trip_active: bool,
+    /// Some channel is faulty.
+    pub any_fault: bool,
+}
+
+impl Status {
+    pub(super) fn to_bits(self) -> u8 {
+        let mut b = 0;
+        if self.steady {
+            b |= status_bit::STEADY;
+        }
+        if self.heat_out_measured {
+            b |= status_bit::HEAT_OUT_MEASURED;
+        }
+        if self.trip_active {
+            b |= status_bit::TRIP_ACTIVE;
+        }
+        if self.any_fault {
+            b |= status_bit::ANY_FAULT;
+        }
+        b
+    }
+
+    pub(super) fn from_bits(b: u8) -> Option<Status> {
+        (b & !status_bit::DEFINED == 0).then_some(Status {
+            steady: b & status_bit::STEADY != 0,
+            heat_out_measured: b & status_bit::HEAT_OUT_MEASURED != 0,
+            trip_active: b & status_bit::TRIP_ACTIVE != 0,
+            any_fault: b & status_bit::ANY_FAULT != 0,
+        })
+    }
+}
+
+/// The `faults` bits of a `Summary`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FaultBits {
+    /// Channels invalid in the latest sample or stuck, as [`Channel::bit`]s
+    /// (bits 0–4 only).
+    pub channels: u8,
+    /// The latest sample came later than `stale_s` after the one before.
+    pub stale: bool,
+}
+
+impl FaultBits {
+    /// Whether `channel` is faulty.
+    pub const fn has(&self, channel: Channel) -> bool {
+        self.channels & channel.bit() != 0
+    }
+}
+
+/// One window's raw integrals, the device's figures and its state.
+///
+/// Optional figures are `None` when not available; present ones and every
+/// integral are finite. `performance` and `bound` are η and η_C for an
+/// engine, COP and Carnot COP in reverse modes (the mode is in [`Hello`]).
+///
+/// ```
+/// use heatbound::alarm::AlarmSet;
+/// use heatbound::config::RigConfig;
+/// use heatbound::monitor::{Monitor, Sample};
+/// use heatbound::wire::{self, Frame, Summary};
+///
+/// let config = RigConfig::default();
+/// let mut monitor = Monitor::<64, f32>::new(&config).unwrap();
+/// for i in 0..10 {
+///     monitor.push(&Sample { t_ms: i * 100, t_hot_k: 600.0, t_cold_k: 300.0,
+///                            heat_in_w: 1000.0, work_w: 300.0, heat_out_w: None });
+/// }
+/// let summary = Summary::from_monitor(7, 900, &monitor, &AlarmSet::new(&config));
+/// assert!((summary.performance.unwrap() - 0.3).abs() < 1e-6);
+///
+/// let mut buf = [0; wire::SUMMARY_MAX_WIRE_LEN];
+/// let n = wire::encode(&Frame::Summary(summary), &mut buf).unwrap();
+/// assert!(n <= 80);
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Summary {
+    /// Sequence number; wraps at 2^16 (see `LinkTracker`).
+    pub seq: u16,
+    /// Sample time of the window's end, milliseconds (wraps like `Sample::t_ms`).
+    pub t_ms: u32,
+    /// Integrated time, seconds.
+    pub duration_s: f32,
+    /// `Q_in`, joules.
+    pub heat_in_j: f32,
+    /// `W`, joules.
+    pub work_j: f32,
+    /// `Q_out`, joules (measured or inferred, see [`Status::heat_out_measured`]).
+    pub heat_out_j: f32,
+    /// `∫q_in/T_hot dt`, J/K.
+    pub entropy_in_j_per_k: f32,
+    /// `∫q_out/T_cold dt`, J/K.
+    pub entropy_out_j_per_k: f32,
+    /// Heat-weighted mean hot-side temperature, kelvin.
+    pub hot_mean_k: Option<f32>,
+    /// T0, kelvin: the configured ambient, else the cold-side mean the
+    /// device used (the time mean of `T_cold` with heat out measured, `T_c`
+    /// inferred). The heat-weighted `T_c` itself follows from the integrals
+    /// as `Q_out / ∫q_out/T_cold`.
+    pub ambient_k: Option<f32>,
+    /// η (engine) or COP (heat pump, cooler).
+    pub performance: Option<f32>,
+    /// η_C (engine) or Carnot COP.
+    pub bound: Option<f32>,
+    /// σ̇, W/K.
+    pub entropy_rate_w_per_k: Option<f32>,
+    /// u(performance), standard.
+    pub u_performance: Option<f32>,
+    /// u(bound), standard.
+    pub u_bound: Option<f32>,
+    /// u(bound − performance), standard.
+    pub u_margin: Option<f32>,
+    /// u(σ̇), W/K, standard.
+    pub u_entropy_rate_w_per_k: Option<f32>,
+    /// Steady, heat-out-measured, trip and fault bits.
+    pub status: Status,
+    /// Faulty channels and staleness.
+    pub faults: FaultBits,
+    /// Active alarms, bit i = `RuleId::index` (bits 0–5 only).
+    pub alarms: u8,
+}
+
+impl Summary {
+    /// The summary of `monitor`'s window and `alarms`' state now.
+    ///
+    /// See the type's docs for an example.
+    pub fn from_monitor<const N: usize>(
+        seq: u16,
+        t_ms: u32,
+        monitor: &Monitor<N, f32>,
+        alarms: &AlarmSet,
+    ) -> Summary {
+        let i = monitor.window_integrals();
+        let m = i.metrics(monitor.settings());
+        let reverse = monitor.settings().mode.is_reverse();
+        let faults = monitor.faults();
+        let pick = |fwd: Option<f32>, rev: Option<f32>| if reverse { rev } else { fwd };
+        Summary {
+            seq,
+            t_ms,
+            duration_s: i.duration_s,
+            heat_in_j: i.heat_in_j,
+            work_j: i.work_j,
+            heat_out_j: i.heat_out_j,
+            entropy_in_j_per_k: i.entropy_in_j_per_k,
+            entropy_out_j_per_k: i.entropy_out_j_per_k,
+            hot_mean_k: m.hot_mean_k,
+            ambient_k: m.ambient_k,
+            performance: pick(m.efficiency, m.cop),
+            bound: pick(m.carnot_efficiency, m.carnot_cop),
+            entropy_rate_w_per_k: m.entropy_rate_w_per_k,
+            u_performance: pick(m.u_efficiency, m.u_cop),
+            u_bound: pick(m.u_carnot_efficiency, m.u_carnot_cop),
+            u_margin: m.u_carnot_margin,
+            u_entropy_rate_w_per_k: m.u_entropy_rate_w_per_k,
+            status: Status {
+                steady: monitor.is_steady(),
+                heat_out_measured: i.heat_out_measured,
+                trip_active: alarms.trip_active(),
+                any_fault: faults.any(),
+            },
+            faults: FaultBits {
+                channels: (faults.invalid | faults.stuck) & CHANNEL_BITS,
+                stale: faults.stale,
+            },
+            alarms: alarms.active_mask() & ALARM_BITS,
+        }
+    }
+
+    /// The integrals, for recomputing the figures on the host with
+    /// [`Integrals::metrics`].
+    ///
+    /// The sensitivity fields (`hot_sensitivity`, `cold_sensitivity`,
+    /// `cold_heat_in_j_per_k`, `cold_work_j_per_k`) do not travel and are
+    /// zero, so the uncertainties recomputed from them are meaningless: the
+    /// uncertainties are the device's, carried in the `u_*` fields.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::FigureSettings;
+    /// use heatbound::wire::Summary;
+    /// let s = Summary { duration_s: 10.0, heat_in_j: 1000.0, work_j: 300.0, heat_out_j: 700.0,
+    ///                   entropy_in_j_per_k: 2.0, entropy_out_j_per_k: 2.8, ..Summary::default() };
+    /// let m = s.integrals().metrics(&FigureSettings::new(&RigConfig::default()));
+    /// assert_eq!(m.efficiency, Some(0.3));
+    /// assert_eq!(m.hot_mean_k, Some(500.0));
+    /// ```
+    pub fn integrals(&self) -> Integrals<f32> {
+        let measured = self.status.heat_out_measured;
+        Integrals {
+            duration_s: self.duration_s,
+            heat_in_j: self.heat_in_j,
+            work_j: self.work_j,
+            heat_out_j: self.heat_out_j,
+            heat_out_measured: measured,
+            entropy_in_j_per_k: self.entropy_in_j_per_k,
+            entropy_out_j_per_k: self.entropy_out_j_per_k,
+            // The device's T0 stands in for the cold-side time integral, so
+            // a default T0 is reproduced (configured ones come from `Hello`).
+            cold_temperature_integral_k_s: match (measured, self.ambient_k) {
+                (true, Some(t0)) => t0 * self.duration_s,
+                _ => 0.0,
+            },
+            ..Integrals::default()
+        }
+    }
+
+    pub(super) fn integral_values(&self) -> [f32; 6] {
+        [
+            self.duration_s,
+            self.heat_in_j,
+            self.work_j,
+            self.heat_out_j,
+            self.entropy_in_j_per_k,
+            self.entropy_out_j_per_k,
+        ]
+    }
+
+    pub(super) fn figures(&self) -> [Option<f32>; 9] {
+        [
+            self.hot_mean_k,
+            self.ambient_k,
+            self.performance,
+            self.bound,
+            self.entropy_rate_w_per_k,
+            self.u_performance,
+            self.u_bound,
+            self.u_margin,
+            self.u_entropy_rate_w_per_k,
+        ]
+    }
+}
+
+/// An alarm event, with the sequence number of the latest `Summary` sent
+/// before it so the host can place it among the summaries.
+///
+/// ```
+/// use heatbound::alarm::{Event, EventKind, RuleId, Severity};
+/// use heatbound::wire::{self, EventFrame, Frame};
+/// let e = EventFrame { seq: 41, event: Event { t_ms: 341_000, rule: RuleId::BeyondCarnot,
+///                      kind: EventKind::Raised, severity: Severity::Trip } };
+/// let mut buf = [0; wire::MAX_FRAME_LEN];
+/// let n = wire::encode(&Frame::Event(e), &mut buf).unwrap();
+/// assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Event(e)));
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct EventFrame {
+    /// `seq` of the latest summary sent before the event.
+    pub seq: u16,
+    /// The event.
+    pub event: Event,
+}

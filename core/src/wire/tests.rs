@@ -1,0 +1,202 @@
+//! Unit tests of the wire layer: COBS, the codec, the decoder and the link tracker.
+
+use super::codec::*;
+use super::decoder::*;
+use super::error::*;
+use super::format::*;
+use super::frames::*;
+use super::link::*;
+use crate::config::RigConfig;
+
+fn roundtrip_cobs(data: &[u8]) {
+    let mut enc = [0u8; 600];
+    let n = cobs_encode(data, &mut enc).unwrap();
+    assert!(n <= cobs_max_len(data.len()));
+    assert!(!enc[..n].contains(&0));
+    let m = cobs_decode_in_place(&mut enc[..n]).unwrap();
+    assert_eq!(&enc[..m], data);
+}
+
+#[test]
+fn cobs_roundtrips_edge_cases() {
+    roundtrip_cobs(&[]);
+    roundtrip_cobs(&[0]);
+    roundtrip_cobs(&[0, 0]);
+    roundtrip_cobs(&[1, 0, 2]);
+    roundtrip_cobs(&[0xFF; 253]);
+    roundtrip_cobs(&[0xFF; 254]);
+    roundtrip_cobs(&[0xFF; 255]);
+    let mut v = [7u8; 300];
+    v[254] = 0;
+    roundtrip_cobs(&v);
+}
+
+#[test]
+fn cobs_matches_reference_vectors() {
+    // From the COBS paper's examples (Cheshire & Baker 1999).
+    let mut out = [0u8; 8];
+    let n = cobs_encode(&[0x11, 0x22, 0x00, 0x33], &mut out).unwrap();
+    assert_eq!(&out[..n], &[0x03, 0x11, 0x22, 0x02, 0x33]);
+    let n = cobs_encode(&[0x00], &mut out).unwrap();
+    assert_eq!(&out[..n], &[0x01, 0x01]);
+}
+
+#[test]
+fn cobs_rejects_bad_codes() {
+    assert_eq!(cobs_decode_in_place(&mut [0x05, 1, 2]), None);
+    assert_eq!(cobs_decode_in_place(&mut [0x02, 0x00]), None);
+}
+
+#[test]
+fn crc_is_iso_hdlc() {
+    assert_eq!(CRC.checksum(b"123456789"), 0xCBF4_3926);
+}
+
+#[test]
+fn summary_budget_holds() {
+    assert_eq!(SUMMARY_MAX_WIRE_LEN, 79);
+    let worst = Summary {
+        seq: u16::MAX,
+        t_ms: u32::MAX,
+        hot_mean_k: Some(1.0),
+        ..Summary::default()
+    };
+    let mut buf = [0u8; MAX_FRAME_LEN];
+    assert_eq!(
+        encode(&Frame::Summary(worst), &mut buf),
+        Ok(SUMMARY_MAX_WIRE_LEN)
+    );
+}
+
+#[test]
+fn encode_rejects_what_cannot_be_decoded() {
+    let mut buf = [0u8; MAX_FRAME_LEN];
+    let nan = Summary {
+        work_j: f32::NAN,
+        ..Summary::default()
+    };
+    assert_eq!(
+        encode(&Frame::Summary(nan), &mut buf),
+        Err(WireError::NotFinite)
+    );
+    let inf = Summary {
+        bound: Some(f32::INFINITY),
+        ..Summary::default()
+    };
+    assert_eq!(
+        encode(&Frame::Summary(inf), &mut buf),
+        Err(WireError::NotFinite)
+    );
+    let bits = Summary {
+        alarms: 0x80,
+        ..Summary::default()
+    };
+    assert_eq!(
+        encode(&Frame::Summary(bits), &mut buf),
+        Err(WireError::ReservedBits)
+    );
+    let short = &mut [0u8; 10];
+    assert_eq!(
+        encode(&Frame::Summary(Summary::default()), short),
+        Err(WireError::BufferTooSmall)
+    );
+}
+
+#[test]
+fn end_stream_counts_a_tail_longer_than_the_buffer() {
+    // A tail that overflowed the buffer holds no bytes, yet it is a loss,
+    // and the next stream starts clean (a reconnect must not throw away
+    // its first frame as overlong).
+    let mut d = Decoder::<32>::new();
+    d.feed(&[1u8; 200], |_| {});
+    assert_eq!(d.pending(), 0);
+    assert!(d.has_unfinished());
+    assert_eq!(d.end_stream(), Some(Err(FrameError::Overlong)));
+    assert_eq!(d.stats().overlong, 1);
+    assert_eq!(d.stats().bytes_discarded, 200);
+    assert!(!d.has_unfinished());
+    assert_eq!(d.end_stream(), None);
+
+    let mut buf = [0u8; MAX_FRAME_LEN];
+    let n = encode(&Frame::Summary(Summary::default()), &mut buf).unwrap();
+    let mut d = Decoder::<{ MAX_FRAME_LEN }>::new();
+    d.feed(&[7u8; 300], |_| {});
+    d.end_stream();
+    let mut got = None;
+    d.feed(&buf[..n], |r| got = Some(r));
+    assert_eq!(got, Some(Ok(Frame::Summary(Summary::default()))));
+}
+
+#[test]
+fn decoder_counts_every_loss_kind() {
+    let mut d = Decoder::<32>::new();
+    assert!(d.push_byte(0).is_none());
+    assert_eq!(d.stats().empty_frames, 1);
+    let mut r = None;
+    d.feed(&[1u8; 40], |x| r = Some(x));
+    d.feed(&[0], |x| r = Some(x));
+    assert_eq!(r, Some(Err(FrameError::Overlong)));
+    d.feed(&[5, 1, 0], |x| r = Some(x));
+    assert_eq!(r, Some(Err(FrameError::Malformed(Malformed::Cobs))));
+    d.feed(&[8, 1, 1, 1, 1, 1, 1, 1, 0], |x| r = Some(x));
+    assert_eq!(r, Some(Err(FrameError::Crc)));
+    let s = d.stats();
+    assert_eq!((s.overlong, s.malformed, s.crc_errors), (1, 1, 1));
+    assert_eq!(s.bytes_discarded, 40 + 2 + 8);
+}
+
+#[test]
+fn unknown_version_and_kind_are_told_apart() {
+    let frame_with = |version: u8, kind: u8| {
+        let mut raw = [version, kind, 0, 0, 0, 0];
+        let crc = CRC.checksum(&raw[..2]).to_le_bytes();
+        raw[2..].copy_from_slice(&crc);
+        let mut enc = [0u8; 16];
+        let n = cobs_encode(&raw, &mut enc).unwrap();
+        decode(&enc[..n])
+    };
+    assert_eq!(frame_with(2, 1), Err(FrameError::UnknownVersion(2)));
+    assert_eq!(
+        frame_with(1, 9),
+        Err(FrameError::Malformed(Malformed::UnknownKind(9)))
+    );
+    assert_eq!(
+        frame_with(1, 1),
+        Err(FrameError::Malformed(Malformed::Postcard))
+    );
+}
+
+#[test]
+fn link_tracker_sees_hello_then_restart() {
+    let s = |seq| {
+        Frame::Summary(Summary {
+            seq,
+            ..Summary::default()
+        })
+    };
+    let hello = Frame::Hello(Hello::from_config(
+        RigId::default(),
+        (0, 0, 0),
+        100,
+        &RigConfig::default(),
+    ));
+    let mut l = LinkTracker::new();
+    l.observe(&hello);
+    assert_eq!(l.observe(&s(0)), Link::First);
+    assert_eq!(l.observe(&s(1)), Link::InOrder);
+    assert_eq!(l.observe(&hello), Link::Hello);
+    assert_eq!(l.observe(&s(0)), Link::Restart);
+    l.observe(&hello);
+    assert_eq!(l.observe(&s(0)), Link::Restart);
+    assert_eq!(l.observe(&s(0)), Link::Duplicate);
+    assert_eq!(
+        *l.stats(),
+        LinkStats {
+            summaries: 5,
+            missing_summaries: 0,
+            duplicates: 1,
+            restarts: 2,
+            hellos: 3
+        }
+    );
+}
