@@ -65,7 +65,12 @@ pub enum Problem {
 
 /// `line L, column C: ` for a byte offset into `text`.
 fn place(text: &str, offset: usize) -> String {
-    let before = &text[..offset.min(text.len())];
+    // An offset inside a multibyte character counts from that character.
+    let mut end = offset.min(text.len());
+    while !text.is_char_boundary(end) {
+        end -= 1;
+    }
+    let before = text.get(..end).unwrap_or(text);
     let line = before.matches('\n').count() + 1;
     let column = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
     format!("line {line}, column {column}: ")
@@ -157,3 +162,21 @@ fn check_capacity(config: &RigConfig) -> Result<(), MonitorError> {
 }
 
 // ---------------------------------------------------------------------------
+
+#[cfg(test)]
+mod place_tests {
+    use super::place;
+
+    #[test]
+    fn an_offset_inside_a_multibyte_character_does_not_panic() {
+        let text = "[rig]\nname = \"Wärme\"\n";
+        for offset in 0..=text.len() + 3 {
+            let at = place(text, offset);
+            assert!(at.starts_with("line "), "{at}");
+        }
+        assert_eq!(
+            place(text, text.find('ä').unwrap() + 1),
+            "line 2, column 10: "
+        );
+    }
+}
