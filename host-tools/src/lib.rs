@@ -8,6 +8,7 @@
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
+//! - [`fanout`]: `simulate --listen` serving every client, dropping one that stops reading;
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
 //! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
@@ -22,6 +23,7 @@ pub mod audit;
 pub mod capture;
 pub mod chart;
 pub mod cycle_file;
+pub mod fanout;
 pub mod ingest;
 pub mod link;
 pub mod replay;

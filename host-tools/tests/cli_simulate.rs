@@ -262,3 +262,65 @@ fn a_config_file_is_used_as_written() {
 fn path(p: &Path) -> &str {
     p.to_str().expect("UTF-8 temp path")
 }
+
+#[test]
+fn listen_serves_a_second_client_from_a_frame_boundary() {
+    let bin = assert_cmd::cargo::cargo_bin("heatbound");
+    let mut child = StdCommand::new(bin)
+        .args([
+            "simulate",
+            "--duration-s",
+            "60",
+            "--speed",
+            "20",
+            "--listen",
+            "0",
+        ])
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn heatbound");
+    let mut stderr = BufReader::new(child.stderr.take().expect("stderr"));
+    let mut line = String::new();
+    stderr.read_line(&mut line).expect("the listening line");
+    let addr = line
+        .trim()
+        .rsplit(' ')
+        .next()
+        .expect("an address")
+        .to_owned();
+    let first = TcpStream::connect(&addr).expect("connect");
+    let reader = std::thread::spawn(move || {
+        let mut first = first;
+        let mut bytes = Vec::new();
+        first.read_to_end(&mut bytes).expect("read the stream");
+        bytes
+    });
+    std::thread::sleep(std::time::Duration::from_millis(800));
+    let mut second = TcpStream::connect(&addr).expect("connect a second client");
+    let mut late = Vec::new();
+    second.read_to_end(&mut late).expect("read the stream");
+    let whole = reader.join().expect("first reader");
+    assert!(child.wait().expect("wait").success());
+    let (frames, stats) = decode(&whole);
+    assert_eq!(stats.losses(), 0);
+    assert_eq!(
+        frames
+            .iter()
+            .filter(|f| matches!(f, Frame::Summary(_)))
+            .count(),
+        60
+    );
+    // The late client joined mid-run: fewer bytes, every one in a whole frame.
+    let (late_frames, late_stats) = decode(&late);
+    assert_eq!(
+        late_stats.losses(),
+        0,
+        "the late client starts at a frame boundary"
+    );
+    assert!(!late_frames.is_empty() && late.len() < whole.len());
+    assert!(
+        whole.ends_with(&late),
+        "the late client gets the rest of the same stream"
+    );
+}

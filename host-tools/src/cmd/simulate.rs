@@ -21,6 +21,7 @@ use heatbound::alarm::EventKind;
 use heatbound::wire::Frame;
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
+use heatbound_host::fanout::Fanout;
 use heatbound_host::sil::{self, SimOptions, Simulation};
 
 /// Arguments of `heatbound simulate`.
@@ -57,8 +58,8 @@ pub struct Args {
     /// Write the stream to FILE (`-` = stdout).
     #[arg(long, short, alias = "output", value_name = "FILE", conflicts_with_all = ["listen", "connect"])]
     pub out: Option<PathBuf>,
-    /// Accept one TCP client on PORT and stream to it (0 = any free port;
-    /// the address is printed on stderr).
+    /// Serve the stream on TCP PORT to every client that connects, from the
+    /// first (0 = any free port; the address is printed on stderr).
     #[arg(long, value_name = "PORT", conflicts_with = "connect")]
     pub listen: Option<u16>,
     /// Address to listen on with --listen.
@@ -143,11 +144,11 @@ fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
             .with_context(|| format!("cannot listen on {}:{port}", args.bind))?;
         let addr = listener.local_addr().context("listening socket")?;
         eprintln!("heatbound simulate: listening on {addr}");
-        let (stream, peer) = listener
-            .accept()
+        // Every client that connects is served; one that stops reading is
+        // dropped, so it cannot stall the run.
+        let fanout = Fanout::accept_first(listener, |n| eprintln!("heatbound simulate: {n}"))
             .with_context(|| format!("accepting a client on {addr}"))?;
-        let _ = stream.set_nodelay(true);
-        return Ok((Box::new(BufWriter::new(stream)), format!("client {peer}")));
+        return Ok((Box::new(fanout), format!("the clients of {addr}")));
     }
     if let Some(peer) = &args.connect {
         let stream = TcpStream::connect(peer.as_str())
