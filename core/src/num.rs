@@ -289,3 +289,15 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
         out
     }
 }
+
+/// `Some(x)` if `x` is finite.
+#[inline]
+pub(crate) fn fin<R: Real>(x: R) -> Option<R> {
+    if x.is_finite() { Some(x) } else { None }
+}
+
+/// `a / b` if `b > 0` and the quotient is finite.
+#[inline]
+pub(crate) fn ratio<R: Real>(a: R, b: R) -> Option<R> {
+    if b > R::ZERO { fin(a / b) } else { None }
+}

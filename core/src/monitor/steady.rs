@@ -1,0 +1,178 @@
+//! The steady-state test: min and max of every channel in time buckets,
+//! amortised O(1) per sample.
+
+use crate::num::{Real, lanes};
+
+use super::settings::MonitorConfig;
+
+const BUCKETS: usize = 8;
+pub(super) const STEADY_CHANNELS: usize = 5;
+
+/// Min and max of each channel over a stretch of time. An empty span has
+/// `min = MAX` and `max = −MAX`, so including and merging need no branches.
+#[derive(Clone, Copy, Debug)]
+struct Span<R> {
+    min: [R; STEADY_CHANNELS],
+    max: [R; STEADY_CHANNELS],
+}
+
+#[inline]
+fn lesser<R: Real>(a: R, b: R) -> R {
+    if b < a { b } else { a }
+}
+
+#[inline]
+fn greater<R: Real>(a: R, b: R) -> R {
+    if b > a { b } else { a }
+}
+
+impl<R: Real> Span<R> {
+    fn empty() -> Self {
+        Self {
+            min: [R::MAX; STEADY_CHANNELS],
+            max: [-R::MAX; STEADY_CHANNELS],
+        }
+    }
+
+    #[inline]
+    fn merge(&mut self, other: &Self) {
+        lanes::<STEADY_CHANNELS>(|i| {
+            self.min[i] = lesser(self.min[i], other.min[i]);
+            self.max[i] = greater(self.max[i], other.max[i]);
+        });
+    }
+
+    /// Includes one sample; returns whether it widened the span.
+    #[inline]
+    fn include(&mut self, v: &[R; STEADY_CHANNELS]) -> bool {
+        let mut widened = false;
+        lanes::<STEADY_CHANNELS>(|i| {
+            let x = v[i];
+            if x < self.min[i] {
+                self.min[i] = x;
+                widened = true;
+            }
+            if x > self.max[i] {
+                self.max[i] = x;
+                widened = true;
+            }
+        });
+        widened
+    }
+}
+
+/// Steady-state test over time buckets: amortised O(1) per sample.
+///
+/// The duration is split into 8 buckets; each keeps the min and max of every
+/// channel. The flag says that the last 8 complete buckets and the current
+/// one, together at least the configured duration, stayed within the bands.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct SteadyTracker<R> {
+    bucket_ms: u32,
+    bucket_start_ms: u32,
+    current: Span<R>,
+    done: [Span<R>; BUCKETS],
+    /// Merge of `done`, refreshed when a bucket completes.
+    done_merged: Span<R>,
+    next: usize,
+    completed: usize,
+    /// Absolute part of each band (the temperatures), and relative part (the
+    /// powers, as a fraction of the larger magnitude).
+    band_abs: [R; STEADY_CHANNELS],
+    band_rel: [R; STEADY_CHANNELS],
+    started: bool,
+    /// The last verdict: a sample inside the spans seen so far cannot change
+    /// it, which spares the band test on most samples.
+    steady: bool,
+}
+
+impl<R: Real> SteadyTracker<R> {
+    pub(super) fn new(config: &impl MonitorConfig) -> Self {
+        let config = &config.monitor_settings();
+        let s = &config.steady;
+        let bucket_ms = (s.duration_s * 1000.0 / BUCKETS as f64).clamp(1.0, u32::MAX as f64) as u32;
+        let z = 0.0;
+        Self {
+            bucket_ms,
+            bucket_start_ms: 0,
+            current: Span::empty(),
+            done: [Span::empty(); BUCKETS],
+            done_merged: Span::empty(),
+            next: 0,
+            completed: 0,
+            band_abs: [s.hot_band_k, s.cold_band_k, z, z, z].map(R::from_f64),
+            band_rel: [
+                z,
+                z,
+                s.heat_in_band_rel,
+                s.work_band_rel,
+                s.heat_out_band_rel,
+            ]
+            .map(R::from_f64),
+            started: false,
+            steady: false,
+        }
+    }
+
+    pub(super) fn restart(&mut self, t_ms: u32) {
+        self.started = true;
+        self.bucket_start_ms = t_ms;
+        self.current = Span::empty();
+        self.done = [Span::empty(); BUCKETS];
+        self.done_merged = Span::empty();
+        self.completed = 0;
+        self.next = 0;
+        self.steady = false;
+    }
+
+    /// Adds a sample at `t_ms`; returns whether every channel has stayed in
+    /// band for at least the configured duration.
+    pub(super) fn push(&mut self, t_ms: u32, v: &[R; STEADY_CHANNELS]) -> bool {
+        if !self.started {
+            self.restart(t_ms);
+        }
+        let mut elapsed = t_ms.wrapping_sub(self.bucket_start_ms);
+        let mut rotated = false;
+        if elapsed >= self.bucket_ms {
+            // Close the current bucket, and any empty ones after it.
+            let mut closed = 0;
+            while elapsed >= self.bucket_ms && closed <= BUCKETS {
+                if let Some(slot) = self.done.get_mut(self.next) {
+                    *slot = self.current;
+                }
+                self.current = Span::empty();
+                self.next = (self.next + 1) % BUCKETS;
+                self.completed = (self.completed + 1).min(BUCKETS);
+                self.bucket_start_ms = self.bucket_start_ms.wrapping_add(self.bucket_ms);
+                elapsed -= self.bucket_ms;
+                closed += 1;
+            }
+            if elapsed >= self.bucket_ms {
+                self.bucket_start_ms = t_ms;
+            }
+            let mut merged = Span::empty();
+            for b in &self.done {
+                merged.merge(b);
+            }
+            self.done_merged = merged;
+            rotated = true;
+        }
+        let widened = self.current.include(v);
+        if self.completed < BUCKETS {
+            return false;
+        }
+        if !rotated && !widened {
+            return self.steady;
+        }
+        let mut all = self.done_merged;
+        all.merge(&self.current);
+        let mut steady = true;
+        for i in 0..STEADY_CHANNELS {
+            let (lo, hi) = (all.min[i], all.max[i]);
+            let scale = greater(hi.abs(), lo.abs());
+            steady &= hi - lo <= self.band_abs[i] + self.band_rel[i] * scale;
+        }
+        self.steady = steady;
+        steady
+    }
+}
