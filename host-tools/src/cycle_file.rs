@@ -315,7 +315,17 @@ pub struct Report {
 /// Reads, checks and evaluates a cycle file.
 pub fn evaluate_file(path: &Path) -> Result<Report, CycleFileError> {
     let text = std::fs::read_to_string(path).map_err(FileError::Read)?;
-    evaluate(&parse(&text)?)
+    evaluate_text(&text)
+}
+
+/// Checks and evaluates the text of a cycle file.
+///
+/// ```
+/// let text = "[gas]\nname = \"air\"\n";
+/// assert!(heatbound_host::cycle_file::evaluate_text(text).is_err());
+/// ```
+pub fn evaluate_text(text: &str) -> Result<Report, CycleFileError> {
+    evaluate(&parse(text)?)
 }
 
 fn evaluate(spec: &CycleSpec) -> Result<Report, CycleFileError> {

@@ -115,19 +115,32 @@ pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
         return Ok(config);
     };
     let name = path.display().to_string();
+    let mut text = String::new();
+    if let Err(e) = File::open(path).and_then(|mut f| f.read_to_string(&mut text)) {
+        return Err(RigFileError {
+            file: name,
+            problem: Problem::Read(e),
+        });
+    }
+    config_from_text(&text, &name)
+}
+
+/// Checks the text of a `rig.toml`; `name` is how errors refer to the file.
+///
+/// ```
+/// let config = heatbound_host::rigfile::config_from_text("", "rig.toml").unwrap();
+/// assert!(config.window_samples > 0);
+/// ```
+pub fn config_from_text(text: &str, name: &str) -> Result<RigConfig, RigFileError> {
     let load = || -> Result<RigConfig, Problem> {
-        let mut text = String::new();
-        File::open(path)
-            .and_then(|mut f| f.read_to_string(&mut text))
-            .map_err(Problem::Read)?;
-        let file: RigFile = toml::from_str(&text).map_err(|e| Problem::Toml {
-            at: e.span().map(|s| place(&text, s.start)).unwrap_or_default(),
+        let file: RigFile = toml::from_str(text).map_err(|e| Problem::Toml {
+            at: e.span().map(|s| place(text, s.start)).unwrap_or_default(),
             message: one_line(e.message()),
         })?;
         let config = file.validate().map_err(|source| {
             let at = match source {
                 ConfigError::OutOfRange { key, .. } => {
-                    locate_key(&text, key).map(|o| place(&text, o))
+                    locate_key(text, key).map(|o| place(text, o))
                 }
                 _ => None,
             };
@@ -137,15 +150,15 @@ pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
             }
         })?;
         check_capacity(&config).map_err(|e| {
-            let at = locate_key(&text, "window_samples")
-                .map(|o| place(&text, o))
+            let at = locate_key(text, "window_samples")
+                .map(|o| place(text, o))
                 .unwrap_or_default();
             Problem::Monitor(format!("{at}{e}"))
         })?;
         Ok(config)
     };
     load().map_err(|problem| RigFileError {
-        file: name,
+        file: name.to_owned(),
         problem,
     })
 }
