@@ -25,7 +25,7 @@ pub use crate::monitor::{AlarmInputs, RuleInputs};
 use crate::num::Real;
 
 /// Validated settings of one alarm rule.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Rule {
     /// Whether the rule is evaluated.
@@ -43,7 +43,7 @@ pub struct Rule {
 }
 
 /// Validated alarm settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Alarms {
     /// Fraction of the Carnot bound above which `near_carnot` is raised.
@@ -672,6 +672,40 @@ impl AlarmSet {
             on_delay_ms: RuleId::ALL.map(|id| ms(rule(id).on_delay_s)),
             off_delay_ms: RuleId::ALL.map(|id| ms(rule(id).off_delay_s)),
         }
+    }
+
+    /// Takes the rule settings of `config` at `t_ms`, keeping every rule's
+    /// state: an alarm that is raised stays raised (and a trip keeps
+    /// tripping) until its condition clears under the new settings. A rule
+    /// that `config` disables is cleared, with a `cleared` event if it was
+    /// annunciated, so nothing is dropped silently.
+    ///
+    /// ```
+    /// use heatbound::alarm::{AlarmSet, AlarmState, EventKind, RuleId};
+    /// use heatbound::config::RigConfig;
+    /// let mut config = RigConfig::default();
+    /// let mut alarms = AlarmSet::new(&config);
+    /// config.alarms.hot_max_k = 900.0;
+    /// assert!(alarms.reconfigure(&config, 1000).is_empty());
+    /// assert_eq!(alarms.limits(), AlarmSet::new(&config).limits());
+    /// assert_eq!(alarms.state(RuleId::OverTemperature), AlarmState::Normal);
+    /// ```
+    pub fn reconfigure(&mut self, config: &impl AlarmConfig, t_ms: u32) -> Events {
+        let states = self.states;
+        *self = AlarmSet::new(config);
+        let mut events = Events::at(t_ms);
+        for id in RuleId::ALL {
+            let i = id.index();
+            let state = states[i];
+            if !self.enabled[i] {
+                if state.is_active() {
+                    events.push(id, EventKind::Cleared, self.severity[i]);
+                }
+            } else {
+                self.states[i] = state;
+            }
+        }
+        events
     }
 
     /// Evaluates every rule on `inputs` at sample time `t_ms` and advances

@@ -159,7 +159,7 @@ pub struct RuleFile {
 }
 
 /// The validated rig configuration.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct RigConfig {
     /// Engine, heat pump or cooler.
@@ -504,6 +504,124 @@ impl RigFile {
                 rules,
             },
         })
+    }
+}
+
+impl RigConfig {
+    /// The file that validates to exactly this configuration: every key
+    /// written out, no default left to fill in.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// let mut c = RigConfig::default();
+    /// c.alarms.hot_max_k = 900.0;
+    /// assert_eq!(c.to_file().validate(), Ok(c));
+    /// ```
+    pub fn to_file(&self) -> RigFile {
+        let rule = |id: RuleId| {
+            let r = self.alarms.rule(id);
+            Some(RuleFile {
+                enabled: Some(r.enabled),
+                severity: Some(r.severity),
+                deadband: Some(r.deadband),
+                on_delay_s: Some(r.on_delay_s),
+                off_delay_s: Some(r.off_delay_s),
+                latching: Some(r.latching),
+            })
+        };
+        let (u, st, h) = (&self.uncertainty, &self.steady, &self.health);
+        let first = self.alarms.rule(RuleId::BeyondCarnot);
+        RigFile {
+            mode: Some(self.mode),
+            ambient_k: self.ambient_k,
+            window_samples: Some(self.window_samples),
+            max_gap_s: Some(self.max_gap_s),
+            coverage_factor: Some(self.coverage_factor),
+            uncertainty: Some(UncertaintyFile {
+                hot_k: Some(u.hot_k),
+                cold_k: Some(u.cold_k),
+                heat_in_rel: Some(u.heat_in_rel),
+                work_rel: Some(u.work_rel),
+                heat_out_rel: Some(u.heat_out_rel),
+            }),
+            steady: Some(SteadyFile {
+                duration_s: Some(st.duration_s),
+                hot_band_k: Some(st.hot_band_k),
+                cold_band_k: Some(st.cold_band_k),
+                heat_in_band_rel: Some(st.heat_in_band_rel),
+                work_band_rel: Some(st.work_band_rel),
+                heat_out_band_rel: Some(st.heat_out_band_rel),
+            }),
+            health: Some(HealthFile {
+                stuck_samples: Some(h.stuck_samples),
+                stale_s: Some(h.stale_s),
+                min_temperature_k: Some(h.min_temperature_k),
+                max_temperature_k: Some(h.max_temperature_k),
+            }),
+            alarms: Some(AlarmsFile {
+                near_carnot_fraction: Some(self.alarms.near_carnot_fraction),
+                hot_max_k: Some(self.alarms.hot_max_k),
+                on_delay_s: Some(first.on_delay_s),
+                off_delay_s: Some(first.off_delay_s),
+                beyond_carnot: rule(RuleId::BeyondCarnot),
+                negative_entropy_production: rule(RuleId::NegativeEntropyProduction),
+                near_carnot: rule(RuleId::NearCarnot),
+                energy_balance: rule(RuleId::EnergyBalance),
+                over_temperature: rule(RuleId::OverTemperature),
+                sensor_fault: rule(RuleId::SensorFault),
+            }),
+        }
+    }
+
+    /// Checks a configuration that arrived whole (over the wire, say)
+    /// rather than through [`RigFile::validate`]: it passes exactly when
+    /// validating its own file gives it back unchanged.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// let mut c = RigConfig::default();
+    /// assert!(c.check().is_ok());
+    /// c.window_samples = 1;
+    /// assert!(c.check().is_err());
+    /// ```
+    pub fn check(&self) -> Result<(), ConfigError> {
+        match self.to_file().validate() {
+            Ok(c) if c == *self => Ok(()),
+            Ok(_) => Err(ConfigError::Inconsistent {
+                what: "the configuration does not validate to itself",
+            }),
+            Err(e) => Err(e),
+        }
+    }
+
+    /// Whether every number in it is finite.
+    pub fn all_finite(&self) -> bool {
+        let (u, st, h, a) = (&self.uncertainty, &self.steady, &self.health, &self.alarms);
+        let scalars = [
+            self.ambient_k.unwrap_or(0.0),
+            self.max_gap_s,
+            self.coverage_factor,
+            u.hot_k,
+            u.cold_k,
+            u.heat_in_rel,
+            u.work_rel,
+            u.heat_out_rel,
+            st.duration_s,
+            st.hot_band_k,
+            st.cold_band_k,
+            st.heat_in_band_rel,
+            st.work_band_rel,
+            st.heat_out_band_rel,
+            h.stale_s,
+            h.min_temperature_k,
+            h.max_temperature_k,
+            a.near_carnot_fraction,
+            a.hot_max_k,
+        ];
+        scalars.iter().all(|x| x.is_finite())
+            && a.rules.iter().all(|r| {
+                r.deadband.is_finite() && r.on_delay_s.is_finite() && r.off_delay_s.is_finite()
+            })
     }
 }
 

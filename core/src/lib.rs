@@ -14,6 +14,8 @@
 //! sensors --> sensor (ITS-90, IEC 60751, calorimetry, shaft power, channel health)
 //!         --> monitor (window + run totals, O(1) per sample) --> alarm
 //!         --> wire (postcard + CRC-32 + COBS frames) --> UART --> host
+//!         <-- wire commands (HMAC-sealed, counted) <-- UART <-- host
+//! control:    the controller itself: monitor + alarms + both link directions
 //! config:     rig settings, validated, with documented defaults
 //! design:     gas (ideal-gas processes, cycles, p-V loops)
 //! ```
@@ -23,7 +25,10 @@
 //! - [`monitor`]: the figures of a sliding window and of the whole run, with
 //!   their GUM uncertainties;
 //! - [`alarm`]: the rules and their state machines;
-//! - [`wire`]: the frames the controller streams, and the host's decoder;
+//! - [`wire`]: the frames the controller streams, the commands it is sent,
+//!   and the decoders of both;
+//! - [`control`]: the controller: one monitor, its alarms, the frames it
+//!   streams and the commands it answers;
 //! - [`config`]: what the monitor and alarms need to know about a rig;
 //! - [`gas`]: ideal-gas reference cycles to compare a rig with;
 //! - [`num`]: the float type the monitor computes in, and its sums;
@@ -41,6 +46,7 @@
 
 pub mod alarm;
 pub mod config;
+pub mod control;
 pub mod gas;
 pub mod monitor;
 pub mod num;

@@ -39,11 +39,12 @@ use embedded_hal::digital::OutputPin;
 use embedded_hal::i2c::I2c;
 use embedded_hal::spi::SpiDevice;
 use heatbound::ZERO_CELSIUS_K;
-use heatbound::alarm::{AlarmSet, Events};
+use heatbound::alarm::AlarmSet;
 use heatbound::config::RigConfig;
+use heatbound::control::{Controller, ControllerSettings};
 use heatbound::monitor::{Monitor, MonitorError, Pushed, Sample};
 use heatbound::sensor::power;
-use heatbound::wire::{self, EventFrame, Frame, Hello, RigId, Summary};
+use heatbound::wire::{self, CommandKey, Frame, RigId};
 
 use crate::drivers::flow::HeatOut;
 use crate::drivers::ina226::{self, Calibration, Config, Ina226};
@@ -76,7 +77,7 @@ pub const BENCH_GENERATOR_ADDRESS: u8 = 0x41;
 pub const BENCH_HEATER_DIVIDER: f32 = 2.0;
 
 /// What the application needs to know besides its devices.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct AppConfig {
     /// The monitor and alarm configuration.
     pub rig: RigConfig,
@@ -92,12 +93,19 @@ pub struct AppConfig {
     pub heater: Ina226,
     /// The generator-power INA226.
     pub generator: Ina226,
+    /// The rig's command key; `None`: the controller accepts no command
+    /// but a Hello request (a real board never falls back to the demo key).
+    pub key: Option<CommandKey>,
+    /// This boot's session number, from a random source where the board
+    /// has one (see [`Hello::session`](heatbound::wire::Hello::session)).
+    pub session: u32,
 }
 
 impl AppConfig {
     /// The bench rig's configuration: 10 Hz samples, 1 s summaries, a Hello
     /// every minute, the INA226s at 0x40 (heater, with its 2:1 divider) and
-    /// 0x41 (generator), default averaging and conversion times.
+    /// 0x41 (generator), default averaging and conversion times; no command
+    /// key and session 0 until the board sets them.
     ///
     /// ```
     /// use heatbound::config::RigConfig;
@@ -125,6 +133,18 @@ impl AppConfig {
                 Config::default(),
                 BENCH_GENERATOR_CALIBRATION,
             ),
+            key: None,
+            session: 0,
+        }
+    }
+
+    fn controller_settings(&self) -> ControllerSettings {
+        ControllerSettings {
+            rig_id: self.rig_id,
+            firmware_version: FIRMWARE_VERSION,
+            sample_period_ms: self.sample_period_ms,
+            summary_period_ms: self.summary_period_ms,
+            hello_period_ms: self.hello_period_ms,
         }
     }
 }
@@ -188,6 +208,8 @@ pub struct AppStats {
     pub uart_errors: u32,
     /// Frames that could not be encoded (a non-finite Hello field).
     pub encode_errors: u32,
+    /// Bytes received on the link (commands and noise).
+    pub rx_bytes: u32,
     /// Failed writes to the trip pin.
     pub trip_pin_errors: u32,
 }
@@ -252,15 +274,8 @@ pub struct App<HOT, COLD, I2C, TRIP, UART, HO, const N: usize> {
     trip_high: bool,
     uart: UART,
     heat_out: HO,
-    monitor: Monitor<N>,
-    alarms: AlarmSet,
-    hello: Hello,
-    summary_period_ms: u32,
-    hello_period_ms: u32,
+    controller: Controller<N>,
     started: bool,
-    last_seq: Option<u16>,
-    summary_from_ms: Option<u32>,
-    hello_from_ms: u32,
     stats: AppStats,
 }
 
@@ -280,7 +295,12 @@ where
         config: &AppConfig,
         devices: Devices<HOT, COLD, I2C, TRIP, UART, HO>,
     ) -> Result<Self, MonitorError> {
-        let monitor = Monitor::new(&config.rig)?;
+        let controller = Controller::new(
+            &config.controller_settings(),
+            &config.rig,
+            config.key.as_ref(),
+            config.session,
+        )?;
         Ok(App {
             hot: Max31855::new(devices.hot_spi),
             cold: Max31855::new(devices.cold_spi),
@@ -293,20 +313,8 @@ where
             trip_high: false,
             uart: devices.uart,
             heat_out: devices.heat_out,
-            monitor,
-            alarms: AlarmSet::new(&config.rig),
-            hello: Hello::from_config(
-                config.rig_id,
-                FIRMWARE_VERSION,
-                config.sample_period_ms,
-                &config.rig,
-            ),
-            summary_period_ms: config.summary_period_ms.max(1),
-            hello_period_ms: config.hello_period_ms,
+            controller,
             started: false,
-            last_seq: None,
-            summary_from_ms: None,
-            hello_from_ms: 0,
             stats: AppStats::default(),
         })
     }
@@ -324,8 +332,9 @@ where
         self.generator_ready =
             Self::init_ina(&self.generator, &mut self.i2c, &mut self.stats.generator);
         self.heat_out.start(t_ms);
-        self.summary_from_ms = Some(t_ms);
-        self.send_hello(t_ms);
+        let (uart, stats) = (&mut self.uart, &mut self.stats);
+        self.controller
+            .start(t_ms, &mut |f: &Frame| send_frame(uart, stats, f));
     }
 
     /// One sample at `t_ms`: read, convert, push, update the alarms, drive
@@ -338,55 +347,59 @@ where
         }
         self.stats.ticks = self.stats.ticks.wrapping_add(1);
         let sample = self.read_sample(t_ms);
-        let pushed = self.monitor.push(&sample);
-        let events = self.alarms.update(t_ms, &self.monitor.alarm_inputs());
-        let trip = self.alarms.trip_active();
-        self.drive_trip(trip);
-        self.send_events(&events);
-
-        if self.hello_period_ms > 0 && t_ms.wrapping_sub(self.hello_from_ms) >= self.hello_period_ms
-        {
-            self.send_hello(t_ms);
-        }
-        let summary_sent = match self.summary_from_ms {
-            None => {
-                self.summary_from_ms = Some(t_ms);
-                false
-            }
-            Some(from) if t_ms.wrapping_sub(from) >= self.summary_period_ms => {
-                self.summary_from_ms = Some(t_ms);
-                self.send_summary(t_ms);
-                true
-            }
-            Some(_) => false,
-        };
+        let (uart, stats) = (&mut self.uart, &mut self.stats);
+        let step = self
+            .controller
+            .step(&sample, &mut |f: &Frame| send_frame(uart, stats, f));
+        self.drive_trip(step.trip);
         Tick {
             sample,
-            pushed,
-            events: events.len(),
-            summary_sent,
-            trip,
+            pushed: step.pushed,
+            events: step.events,
+            summary_sent: step.summary_sent,
+            trip: step.trip,
         }
+    }
+
+    /// Bytes received on the link at sample time `t_ms` (call it with what
+    /// the UART's receive buffer holds, never waiting for more): each
+    /// command they complete is checked, carried out or refused, and
+    /// answered; the trip output follows at once. Costs O(1) per byte, so
+    /// an endless stream without a delimiter costs only the bytes.
+    pub fn receive(&mut self, bytes: &[u8], t_ms: u32) {
+        let n = u32::try_from(bytes.len()).unwrap_or(u32::MAX);
+        self.stats.rx_bytes = self.stats.rx_bytes.wrapping_add(n);
+        let (uart, stats) = (&mut self.uart, &mut self.stats);
+        self.controller
+            .receive(bytes, t_ms, &mut |f: &Frame| send_frame(uart, stats, f));
+        self.drive_trip(self.controller.trip_active());
     }
 
     /// The operator acknowledges every active alarm at `t_ms` (the reset
     /// button): the acknowledged and cleared events go out at once and the
     /// trip output follows. Returns the number of events.
     pub fn acknowledge_all(&mut self, t_ms: u32) -> usize {
-        let events = self.alarms.acknowledge_all(t_ms);
-        self.drive_trip(self.alarms.trip_active());
-        self.send_events(&events);
-        events.len()
+        let (uart, stats) = (&mut self.uart, &mut self.stats);
+        let n = self
+            .controller
+            .acknowledge_all(t_ms, &mut |f: &Frame| send_frame(uart, stats, f));
+        self.drive_trip(self.controller.trip_active());
+        n
+    }
+
+    /// The controller (monitor, alarms, link state).
+    pub fn controller(&self) -> &Controller<N> {
+        &self.controller
     }
 
     /// The monitor.
     pub fn monitor(&self) -> &Monitor<N> {
-        &self.monitor
+        self.controller.monitor()
     }
 
     /// The alarms.
     pub fn alarms(&self) -> &AlarmSet {
-        &self.alarms
+        self.controller.alarms()
     }
 
     /// The counters.
@@ -543,46 +556,25 @@ where
             self.stats.trip_pin_errors = self.stats.trip_pin_errors.wrapping_add(1);
         }
     }
+}
 
-    fn send_events(&mut self, events: &Events) {
-        for e in events {
-            let frame = Frame::Event(EventFrame {
-                seq: self.last_seq.unwrap_or(0),
-                event: e,
-            });
-            self.send(&frame);
-        }
-    }
-
-    fn send_summary(&mut self, t_ms: u32) {
-        let seq = self.last_seq.map_or(0, |s| s.wrapping_add(1));
-        self.last_seq = Some(seq);
-        let s = Summary::from_monitor(seq, t_ms, &self.monitor, &self.alarms);
-        self.send(&Frame::Summary(s));
-    }
-
-    fn send_hello(&mut self, t_ms: u32) {
-        self.hello_from_ms = t_ms;
-        self.send(&Frame::Hello(self.hello));
-    }
-
-    fn send(&mut self, frame: &Frame) {
-        let mut buf = [0u8; wire::MAX_FRAME_LEN];
-        let Ok(n) = wire::encode(frame, &mut buf) else {
-            self.stats.encode_errors = self.stats.encode_errors.wrapping_add(1);
-            return;
-        };
-        let mut rest = buf.get(..n).unwrap_or(&[]);
-        // Not `write_all`: it panics on a writer that accepts nothing.
-        while !rest.is_empty() {
-            match self.uart.write(rest) {
-                Ok(k) if k > 0 => rest = rest.get(k..).unwrap_or(&[]),
-                _ => {
-                    self.stats.uart_errors = self.stats.uart_errors.wrapping_add(1);
-                    return;
-                }
+/// Encodes `frame` onto `uart`, counting what was sent and what was lost.
+fn send_frame<UART: embedded_io::Write>(uart: &mut UART, stats: &mut AppStats, frame: &Frame) {
+    let mut buf = [0u8; wire::MAX_FRAME_LEN];
+    let Ok(n) = wire::encode(frame, &mut buf) else {
+        stats.encode_errors = stats.encode_errors.wrapping_add(1);
+        return;
+    };
+    let mut rest = buf.get(..n).unwrap_or(&[]);
+    // Not `write_all`: it panics on a writer that accepts nothing.
+    while !rest.is_empty() {
+        match uart.write(rest) {
+            Ok(k) if k > 0 => rest = rest.get(k..).unwrap_or(&[]),
+            _ => {
+                stats.uart_errors = stats.uart_errors.wrapping_add(1);
+                return;
             }
         }
-        self.stats.frames_sent = self.stats.frames_sent.wrapping_add(1);
     }
+    stats.frames_sent = stats.frames_sent.wrapping_add(1);
 }

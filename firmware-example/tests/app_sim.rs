@@ -382,7 +382,22 @@ fn ram_sizes() {
     println!(
         "size_of: App<sim, UART 0 B, N = 64> = {app} B, Monitor<64> = {monitor} B, AlarmSet = {alarms} B, SimBench = {bench} B"
     );
-    // The App adds its drivers, counters and Hello to the monitor and alarms.
-    assert!(app < monitor + alarms + 512, "{app}");
+    // The App adds its drivers, counters and Hello to the monitor and alarms,
+    // and the downlink its state: the command buffer, the keyed HMAC, the
+    // configuration in use and one waiting for the window boundary.
+    let config = core::mem::size_of::<RigConfig>();
+    let auth = core::mem::size_of::<heatbound::wire::Authenticator>();
+    let downlink = heatbound::wire::MAX_COMMAND_LEN + auth + 2 * config;
+    println!(
+        "downlink: command buffer {} B, HMAC {auth} B, RigConfig {config} B",
+        heatbound::wire::MAX_COMMAND_LEN
+    );
+    let controller = core::mem::size_of::<heatbound::control::Controller<64>>();
+    println!("Controller<64> = {controller} B");
+    assert!(
+        controller < monitor + alarms + downlink + 512,
+        "{controller}"
+    );
+    assert!(app < controller + 512, "{app}");
     assert!(app <= 8 * 1024 + 512, "{app}");
 }

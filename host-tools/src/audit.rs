@@ -188,6 +188,8 @@ pub struct Integrity {
     pub summaries: u64,
     /// Event frames.
     pub events: u64,
+    /// Reply frames (the controller's answers to commands).
+    pub replies: u64,
     /// Frames lost to CRC errors.
     pub crc_errors: u64,
     /// Frames lost for being too long.
@@ -528,6 +530,7 @@ pub fn audit_log(
                         Frame::Hello(_) => ("hellos", None),
                         Frame::Summary(x) => ("summaries", Some(x.seq)),
                         Frame::Event(x) => ("events", Some(x.seq)),
+                        Frame::Reply(_) => ("replies", None),
                     };
                     let at = seq.map_or_else(String::new, |s| format!(" seq {s}"));
                     facts.tampered.push(format!(
@@ -849,6 +852,8 @@ impl<'c> Auditor<'c> {
                 self.summary(s, link, trusted);
                 self.after_hello = false;
             }
+            // A command's answer: logged with the commands, nothing to recompute.
+            Frame::Reply(_) => self.integrity.replies += 1,
         }
     }
 
@@ -1255,7 +1260,7 @@ impl<'c> Auditor<'c> {
         let d = &input.decoder;
         let link = self.link.stats();
         let g = &mut self.integrity;
-        g.frames = g.hellos + g.summaries + g.events;
+        g.frames = g.hellos + g.summaries + g.events + g.replies;
         g.crc_errors = d.crc_errors;
         g.overlong = d.overlong;
         g.malformed = d.malformed;
@@ -1401,7 +1406,7 @@ impl Report {
         let _ = writeln!(o, "heatbound audit: {source}");
         let _ = writeln!(
             o,
-            "integrity           {}  {} frames ({} hello, {} summary, {} event); lost: {} CRC, \
+            "integrity           {}  {} frames ({} hello, {} summary, {} event, {} reply); lost: {} CRC, \
              {} overlong, {} malformed, {} unknown version; {} missing, {} duplicate, \
              {} restarts ({} unannounced), {} replayed; {} link errors",
             verdict(g.pass),
@@ -1409,6 +1414,7 @@ impl Report {
             g.hellos,
             g.summaries,
             g.events,
+            g.replies,
             g.crc_errors,
             g.overlong,
             g.malformed,

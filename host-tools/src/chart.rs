@@ -769,6 +769,7 @@ impl ChartData {
             }
             Frame::Summary(s) => self.summary(s),
             Frame::Event(e) => self.event(e),
+            Frame::Reply(_) => {}
         }
     }
 

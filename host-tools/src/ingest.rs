@@ -44,7 +44,7 @@ use heatbound::alarm::{RuleId, Severity};
 use heatbound::config::Mode;
 use heatbound::wire::{
     Decoder, DecoderStats, EventFrame, Frame, FrameError, Hello, Link, LinkTracker, MAX_FRAME_LEN,
-    Summary,
+    Reply, Summary,
 };
 
 use crate::store::{LinkErrorKind, Log, RunId, StoreError};
@@ -90,6 +90,8 @@ pub struct Totals {
     pub summaries: u64,
     /// Events logged.
     pub events: u64,
+    /// Replies to commands logged.
+    pub replies: u64,
     /// Frames lost to CRC errors.
     pub crc_errors: u64,
     /// Frames lost as overlong.
@@ -160,6 +162,9 @@ pub struct Ingest {
     /// receive time: part of the replay if a replayed summary follows, else
     /// logged then.
     held_hello: Option<(Hello, i64)>,
+    /// Replies logged since [`Ingest::take_replies`] last emptied it, with
+    /// their receive times (for whoever sent the commands).
+    replies: Vec<(Reply, i64)>,
 }
 
 /// A replayed section not yet logged.
@@ -207,7 +212,25 @@ impl Ingest {
             replay: None,
             in_replay: false,
             held_hello: None,
+            replies: Vec::new(),
         })
+    }
+
+    /// The latest Hello, if one has arrived: who the controller is, its
+    /// session and its last accepted command counter.
+    pub fn latest_hello(&self) -> Option<&Hello> {
+        self.hello.as_ref()
+    }
+
+    /// The replies logged since the previous call, with their receive
+    /// times, oldest first.
+    pub fn take_replies(&mut self) -> Vec<(Reply, i64)> {
+        std::mem::take(&mut self.replies)
+    }
+
+    /// The log, for writing rows that are not frames (the commands sent).
+    pub fn log_mut(&mut self) -> &mut Log {
+        &mut self.log
     }
 
     /// Stops taking frames after `max` summaries: the rest of the bytes
@@ -498,6 +521,7 @@ impl Ingest {
                 self.last_seq = Some(s.seq);
             }
             Frame::Event(_) => {}
+            Frame::Reply(r) => self.replies.push((*r, host_ms)),
         }
         self.log.insert_frame(self.run, host_ms, frame)?;
         self.totals.frames += 1;
@@ -512,6 +536,7 @@ impl Ingest {
                 self.totals.events += 1;
                 self.severity[e.event.rule.index()] = e.event.severity;
             }
+            Frame::Reply(_) => self.totals.replies += 1,
         }
         if self.style != LineStyle::Quiet {
             self.line.clear();
@@ -519,6 +544,7 @@ impl Ingest {
                 Frame::Hello(h) => write_hello(&mut self.line, h),
                 Frame::Summary(s) => self.write_summary(s),
                 Frame::Event(e) => write_event(&mut self.line, e, self.style),
+                Frame::Reply(r) => write_reply(&mut self.line, r),
             }
             on_line(&self.line);
         }
@@ -677,8 +703,29 @@ fn write_hello(out: &mut String, h: &Hello) {
     let (a, b, c) = h.firmware_version;
     let _ = write!(
         out,
-        "hello from {} firmware {a}.{b}.{c}: {}, {} ms period, window {}, k={}",
-        h.rig_id, h.mode, h.sample_period_ms, h.window_samples, h.coverage_factor
+        "hello from {} firmware {a}.{b}.{c}: {}, {} ms, window {}, k={}, run {}, {}",
+        h.rig_id,
+        h.mode,
+        h.sample_period_ms,
+        h.window_samples,
+        h.coverage_factor,
+        h.run,
+        if h.keyed {
+            "commands on"
+        } else {
+            "no command key"
+        }
+    );
+}
+
+fn write_reply(out: &mut String, r: &Reply) {
+    let _ = write!(
+        out,
+        "reply to command {} at t={:.1} s: {} ({})",
+        r.counter,
+        f64::from(r.t_ms) / 1000.0,
+        r.code,
+        r.code.meaning()
     );
 }
 

@@ -41,7 +41,9 @@ use std::path::{Path, PathBuf};
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::Mode;
-use heatbound::wire::{EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Uncertainties};
+use heatbound::wire::{
+    EventFrame, FaultBits, Frame, Hello, Reply, ReplyCode, RigId, Status, Summary, Uncertainties,
+};
 use rusqlite::{Connection, OpenFlags, Row, params};
 
 /// The schema version this tool writes (`PRAGMA user_version`).
@@ -139,6 +141,37 @@ pub const MIGRATIONS: &[&str] = &[
     // stored); the view lists them.
     "CREATE VIEW replays AS
         SELECT run_id, ord, host_ms, count, detail FROM link_errors WHERE kind = 'replay';",
+    // 3: protocol version 2, the downlink. Hellos carry the controller's run
+    // counter, session, last accepted command counter and whether it holds a
+    // key; Reply frames are logged among the frames; every command the host
+    // sent is logged with who asked, when, and what the controller replied.
+    "ALTER TABLE hellos ADD COLUMN run_counter INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE hellos ADD COLUMN session INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE hellos ADD COLUMN last_counter INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE hellos ADD COLUMN keyed INTEGER NOT NULL DEFAULT 0;
+    CREATE TABLE replies (
+        run_id   INTEGER NOT NULL REFERENCES runs(id),
+        ord      INTEGER NOT NULL,
+        host_ms  INTEGER NOT NULL,
+        counter  INTEGER NOT NULL,
+        t_ms     INTEGER NOT NULL,
+        code     TEXT NOT NULL,
+        PRIMARY KEY (run_id, ord)
+    ) WITHOUT ROWID;
+    CREATE TABLE commands (
+        id            INTEGER PRIMARY KEY,
+        run_id        INTEGER NOT NULL REFERENCES runs(id),
+        host_ms       INTEGER NOT NULL,
+        origin        TEXT NOT NULL,
+        command       TEXT NOT NULL,
+        detail        TEXT NOT NULL,
+        counter       INTEGER NOT NULL,
+        session       INTEGER NOT NULL,
+        reply_host_ms INTEGER,
+        reply_code    TEXT,
+        outcome       TEXT NOT NULL
+    );
+    CREATE INDEX commands_run ON commands(run_id, host_ms);",
 ];
 
 /// What went wrong with the log.
@@ -382,6 +415,31 @@ pub struct OutageRow {
     pub reason: String,
 }
 
+/// A command the host sent down the link, as logged.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct CommandRow {
+    /// Its id in the log.
+    pub id: i64,
+    /// Host time the command was sent, Unix ms.
+    pub host_ms: i64,
+    /// Who asked for it (`heatbound ack`, `demo`, the console, ...).
+    pub origin: String,
+    /// `hello`, `ack`, `new_run` or `configure`.
+    pub command: String,
+    /// What it carried: the rule or `all`, the configuration's digest.
+    pub detail: String,
+    /// Its counter.
+    pub counter: u32,
+    /// The controller session it was sealed for.
+    pub session: u32,
+    /// When the controller's Reply arrived, Unix ms.
+    pub reply_host_ms: Option<i64>,
+    /// What the Reply said.
+    pub reply_code: Option<ReplyCode>,
+    /// `pending`, `applied`, `rejected`, or `no_reply` (none came in time).
+    pub outcome: String,
+}
+
 /// The log: one SQLite connection, writing in batches or reading.
 pub struct Log {
     conn: Connection,
@@ -400,8 +458,13 @@ pub struct Log {
 
 const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
     firmware_version, sample_period_ms, window_samples, mode, coverage_factor, ambient_k,
-    u_hot_k, u_cold_k, u_heat_in_rel, u_work_rel, u_heat_out_rel, config_digest)
-    VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)";
+    u_hot_k, u_cold_k, u_heat_in_rel, u_work_rel, u_heat_out_rel, config_digest, run_counter,
+    session, last_counter, keyed)
+    VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
+    ?19, ?20, ?21)";
+
+const INSERT_REPLY: &str = "INSERT INTO replies (run_id, ord, host_ms, counter, t_ms, code)
+    VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
 
 const INSERT_SUMMARY: &str = "INSERT INTO summaries (run_id, ord, host_ms, seq, t_ms,
     duration_s, heat_in_j, work_j, heat_out_j, entropy_in_j_per_k, entropy_out_j_per_k,
@@ -417,11 +480,12 @@ const INSERT_LINK_ERROR: &str = "INSERT INTO link_errors (run_id, ord, host_ms, 
     detail) VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
 
 /// Every frame table in one shape, ordered by `ord`: kind 0 = Hello,
-/// 1 = Summary, 2 = Event; columns `v0..` by kind as in the selects.
+/// 1 = Summary, 2 = Event, 3 = Reply; columns `v0..` by kind as in the selects.
 const SELECT_FRAMES: &str = "
     SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
         window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
-        u_work_rel, u_heat_out_rel, config_digest, NULL, NULL, NULL, NULL, NULL, NULL
+        u_work_rel, u_heat_out_rel, config_digest, run_counter, session, last_counter, keyed,
+        NULL, NULL
         FROM hellos WHERE run_id = ?1 AND ord > ?2
     UNION ALL
     SELECT ord, host_ms, 1, seq, t_ms, duration_s, heat_in_j, work_j, heat_out_j,
@@ -433,6 +497,10 @@ const SELECT_FRAMES: &str = "
     SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, NULL, NULL, NULL, NULL, NULL,
         NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
         FROM events WHERE run_id = ?1 AND ord > ?2
+    UNION ALL
+    SELECT ord, host_ms, 3, counter, t_ms, code, NULL, NULL, NULL, NULL, NULL, NULL, NULL,
+        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
+        FROM replies WHERE run_id = ?1 AND ord > ?2
     ORDER BY ord LIMIT ?3";
 
 /// One row of a [`Log::frames`] page: its `ord` and the rebuilt frame.
@@ -717,6 +785,10 @@ impl Log {
                     f64::from(u.work_rel),
                     f64::from(u.heat_out_rel),
                     h.config_digest,
+                    h.run,
+                    h.session,
+                    h.last_counter,
+                    h.keyed,
                 ])
             }),
             Frame::Summary(s) => self.conn.prepare_cached(INSERT_SUMMARY).and_then(|mut st| {
@@ -756,6 +828,16 @@ impl Log {
                     e.event.rule.as_str(),
                     e.event.kind.as_str(),
                     e.event.severity.as_str(),
+                ])
+            }),
+            Frame::Reply(r) => self.conn.prepare_cached(INSERT_REPLY).and_then(|mut st| {
+                st.execute(params![
+                    run,
+                    ord,
+                    host_ms,
+                    r.counter,
+                    r.t_ms,
+                    r.code.as_str()
                 ])
             }),
         };
@@ -810,6 +892,88 @@ impl Log {
             )
             .map_err(|e| self.err("cannot end an outage", e))?;
         Ok(())
+    }
+
+    /// Logs a command just sent on `run` at `host_ms`; commits at once, so
+    /// an operator's action is on disk before its answer. Returns its id.
+    #[allow(clippy::too_many_arguments)]
+    pub fn insert_command(
+        &mut self,
+        run: RunId,
+        host_ms: i64,
+        origin: &str,
+        command: &str,
+        detail: &str,
+        counter: u32,
+        session: u32,
+    ) -> Result<i64, StoreError> {
+        self.commit()?;
+        self.conn
+            .execute(
+                "INSERT INTO commands (run_id, host_ms, origin, command, detail, counter, session,
+                 outcome) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, 'pending')",
+                params![run, host_ms, origin, command, detail, counter, session],
+            )
+            .map_err(|e| self.err("cannot log a command", e))?;
+        Ok(self.conn.last_insert_rowid())
+    }
+
+    /// Records the controller's answer to command `id` (or, with `reply`
+    /// `None`, that none came in time); commits at once.
+    pub fn settle_command(
+        &mut self,
+        id: i64,
+        host_ms: i64,
+        reply: Option<ReplyCode>,
+    ) -> Result<(), StoreError> {
+        self.commit()?;
+        let outcome = match reply {
+            Some(ReplyCode::Applied) => "applied",
+            Some(_) => "rejected",
+            None => "no_reply",
+        };
+        self.conn
+            .execute(
+                "UPDATE commands SET reply_host_ms = ?2, reply_code = ?3, outcome = ?4 WHERE id = ?1",
+                params![
+                    id,
+                    reply.map(|_| host_ms),
+                    reply.map(|c| c.as_str()),
+                    outcome
+                ],
+            )
+            .map_err(|e| self.err("cannot log a command's reply", e))?;
+        Ok(())
+    }
+
+    /// The commands sent on `run`, oldest first.
+    pub fn commands(&self, run: RunId) -> Result<Vec<CommandRow>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT id, host_ms, origin, command, detail, counter, session, reply_host_ms,
+                 reply_code, outcome FROM commands WHERE run_id = ?1 ORDER BY id",
+            )
+            .map_err(|e| self.err("cannot read commands", e))?;
+        let rows = st
+            .query_map(params![run], |r| {
+                let code: Option<String> = r.get(8)?;
+                Ok(CommandRow {
+                    id: r.get(0)?,
+                    host_ms: r.get(1)?,
+                    origin: r.get(2)?,
+                    command: r.get(3)?,
+                    detail: r.get(4)?,
+                    counter: r.get(5)?,
+                    session: r.get(6)?,
+                    reply_host_ms: r.get(7)?,
+                    reply_code: code.as_deref().and_then(ReplyCode::parse),
+                    outcome: r.get(9)?,
+                })
+            })
+            .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
+            .map_err(|e| self.err("cannot read commands", e))?;
+        Ok(rows)
     }
 
     // -- reading ----------------------------------------------------------
@@ -898,7 +1062,8 @@ impl Log {
                     also,
                 })),
             })?),
-            _ => Frame::Event(self.event_row(run, ord, r)?),
+            2 => Frame::Event(self.event_row(run, ord, r)?),
+            _ => Frame::Reply(self.reply_row(run, ord, r)?),
         };
         Ok(Stored { host_ms, frame })
     }
@@ -984,9 +1149,25 @@ impl Log {
                 ambient_k,
                 uncertainty: u,
                 config_digest: r.get(16)?,
+                run: r.get(17)?,
+                session: r.get(18)?,
+                last_counter: r.get(19)?,
+                keyed: r.get(20)?,
             })
         })()
         .map_err(|e| bad(&e))
+    }
+
+    fn reply_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Reply, StoreError> {
+        let bad = |e: &dyn std::fmt::Display| self.bad(run, "replies", ord, e);
+        let counter: u32 = r.get(3).map_err(|e| bad(&e))?;
+        let t_ms: u32 = r.get(4).map_err(|e| bad(&e))?;
+        let code: String = r.get(5).map_err(|e| bad(&e))?;
+        Ok(Reply {
+            counter,
+            t_ms,
+            code: ReplyCode::parse(&code).ok_or_else(|| bad(&format!("bad code {code:?}")))?,
+        })
     }
 
     fn event_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<EventFrame, StoreError> {

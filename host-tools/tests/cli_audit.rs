@@ -114,8 +114,12 @@ fn flipped_bytes_and_a_deleted_chunk_are_losses_and_gaps() {
     let path = capture(&dir, "steady", 120);
     let mut bytes = std::fs::read(&path).expect("read capture");
     // Flip bits inside a frame in the first half (never turning a byte
-    // into a delimiter), then cut out a chunk of the second half.
-    for i in [2_000usize, 2_001] {
+    // into a delimiter, nor a delimiter into a byte), then cut out a chunk
+    // of the second half.
+    let at = (2_000usize..)
+        .find(|&i| bytes[i] != 0 && bytes[i + 1] != 0)
+        .expect("two bytes inside a frame");
+    for i in [at, at + 1] {
         bytes[i] = if bytes[i] == 0xFF {
             0x7F
         } else {

@@ -85,10 +85,12 @@ fn migrates_an_empty_database_and_reopens() {
     assert_eq!(
         tables,
         [
+            "commands",
             "events",
             "hellos",
             "link_errors",
             "outages",
+            "replies",
             "runs",
             "summaries"
         ]

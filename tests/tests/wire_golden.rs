@@ -1,11 +1,18 @@
-//! Golden bytes, one per frame kind: the encoding is a spec
+//! Golden bytes, one per frame and command kind: the encoding is a spec
 //! (docs/wire-format.md shows the same hex), so a change here is a protocol
 //! change and must bump `PROTOCOL_VERSION`.
+//!
+//! The golden bytes are not heatbound's own output: they come from
+//! `tests/tools/gen_wire_golden.py`, which builds each frame from the
+//! specification with Python's struct, zlib.crc32, hmac/hashlib
+//! (HMAC-SHA-256) and PyPI `cobs` 1.2.1, into
+//! `tests/vectors/wire_v2_golden.txt`.
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
-use heatbound::config::Mode;
+use heatbound::config::{Mode, RigConfig};
 use heatbound::wire::{
-    self, EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Uncertainties,
+    self, Addressee, Authenticator, Command, CommandFrame, CommandKey, EventFrame, FaultBits,
+    Frame, Hello, Reply, ReplyCode, RigId, Status, Summary, Uncertainties,
 };
 
 fn hello() -> Frame {
@@ -25,6 +32,10 @@ fn hello() -> Frame {
             heat_out_rel: 0.01,
         },
         config_digest: 0x1234_5678,
+        run: 3,
+        session: 0x0BAD_CAFE,
+        last_counter: 5,
+        keyed: true,
     })
 }
 
@@ -73,9 +84,22 @@ fn event() -> Frame {
     })
 }
 
-const HELLO_HEX: &str = "02010862656e63682d31010101010101010106010203643c010101074001339392430103803f0101173e0ad7a33b0ad7a33b0ad7233cf8acd19101adc0819300";
-const SUMMARY_HEX: &str = "0801018104c0a9070103c0400480bb450103e14404408345010320410103604101031644010796439a99993e0101123fabaa2a3f6f12833b6f12033bbc74933b0104c07f0101059f645e0800";
-const EVENT_HEX: &str = "080102810488e814010602d631529200";
+fn reply() -> Frame {
+    Frame::Reply(Reply {
+        counter: 7,
+        t_ms: 341_500,
+        code: ReplyCode::Applied,
+    })
+}
+
+/// The golden frame `name` from `tests/vectors/wire_v2_golden.txt`.
+fn golden(name: &str) -> String {
+    let text = include_str!("../vectors/wire_v2_golden.txt");
+    text.lines()
+        .find_map(|l| l.strip_prefix(name)?.strip_prefix(' '))
+        .unwrap_or_else(|| panic!("no golden frame {name}"))
+        .to_string()
+}
 
 fn hex(bytes: &[u8]) -> String {
     bytes.iter().map(|b| format!("{b:02x}")).collect()
@@ -97,15 +121,73 @@ fn check(frame: Frame, golden: &str) {
 
 #[test]
 fn hello_golden() {
-    check(hello(), HELLO_HEX);
+    check(hello(), &golden("hello"));
 }
 
 #[test]
 fn summary_golden() {
-    check(summary(), SUMMARY_HEX);
+    check(summary(), &golden("summary"));
 }
 
 #[test]
 fn event_golden() {
-    check(event(), EVENT_HEX);
+    check(event(), &golden("event"));
+}
+
+#[test]
+fn reply_golden() {
+    check(reply(), &golden("reply"));
+}
+
+/// The rig and session the golden commands are sealed for.
+fn addressee() -> Addressee {
+    Addressee {
+        rig_id: RigId::new("bench-1").unwrap(),
+        session: 0x0BAD_CAFE,
+    }
+}
+
+fn check_command(frame: CommandFrame, sealed: bool, golden: &str) {
+    let auth = Authenticator::new(&CommandKey::DEMO);
+    let mut buf = [0u8; wire::MAX_COMMAND_LEN];
+    let n = wire::encode_command(&frame, sealed.then_some(&auth), &addressee(), &mut buf).unwrap();
+    assert_eq!(hex(&buf[..n]), golden, "encoding of {frame:?} changed");
+    let mut bytes = unhex(golden);
+    bytes.pop(); // the delimiter
+    let received = wire::decode_command(&mut bytes).unwrap();
+    assert_eq!(received.frame, frame);
+    assert_eq!(received.authentic(&auth, &addressee()), sealed);
+    // Sealed for another session or another rig, the same bytes fail.
+    let other_session = Addressee {
+        session: 0x0BAD_CAFF,
+        ..addressee()
+    };
+    let other_rig = Addressee {
+        rig_id: RigId::new("bench-2").unwrap(),
+        ..addressee()
+    };
+    assert!(!received.authentic(&auth, &other_session));
+    assert!(!received.authentic(&auth, &other_rig));
+}
+
+#[test]
+fn command_goldens() {
+    let c = |counter, command| CommandFrame { counter, command };
+    check_command(c(0, Command::HelloRequest), false, &golden("command_hello"));
+    check_command(
+        c(7, Command::Acknowledge(Some(RuleId::BeyondCarnot))),
+        true,
+        &golden("command_ack_rule"),
+    );
+    check_command(
+        c(8, Command::Acknowledge(None)),
+        true,
+        &golden("command_ack_all"),
+    );
+    check_command(c(9, Command::NewRun), true, &golden("command_new_run"));
+    check_command(
+        c(10, Command::Configure(RigConfig::default())),
+        true,
+        &golden("command_configure"),
+    );
 }

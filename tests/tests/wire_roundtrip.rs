@@ -4,7 +4,8 @@
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::Mode;
 use heatbound::wire::{
-    self, EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Uncertainties,
+    self, EventFrame, FaultBits, Frame, Hello, Reply, ReplyCode, RigId, Status, Summary,
+    Uncertainties,
 };
 use proptest::prelude::*;
 
@@ -60,7 +61,9 @@ prop_compose! {
     fn hello()(id in "[ -~]{0,16}", fw in any::<(u8, u8, u8)>(), period in any::<u32>(),
         window in any::<u16>(), mode in mode(), k in finite(),
         ambient in prop_oneof![Just(None), finite().prop_map(Some)],
-        u in [finite(), finite(), finite(), finite(), finite()], digest in any::<u32>())
+        u in [finite(), finite(), finite(), finite(), finite()], digest in any::<u32>(),
+        run in any::<u32>(), session in any::<u32>(), last_counter in any::<u32>(),
+        keyed in any::<bool>())
         -> Hello {
         Hello {
             rig_id: RigId::new(&id).unwrap(),
@@ -68,7 +71,7 @@ prop_compose! {
             coverage_factor: k, ambient_k: ambient,
             uncertainty: Uncertainties { hot_k: u[0], cold_k: u[1], heat_in_rel: u[2],
                 work_rel: u[3], heat_out_rel: u[4] },
-            config_digest: digest,
+            config_digest: digest, run, session, last_counter, keyed,
         }
     }
 }
@@ -105,6 +108,15 @@ fn frame() -> impl Strategy<Value = Frame> {
         summary().prop_map(Frame::Summary),
         hello().prop_map(Frame::Hello),
         event().prop_map(Frame::Event),
+        (any::<u32>(), any::<u32>(), 0usize..ReplyCode::ALL.len()).prop_map(
+            |(counter, t_ms, i)| {
+                Frame::Reply(Reply {
+                    counter,
+                    t_ms,
+                    code: ReplyCode::ALL[i],
+                })
+            }
+        ),
     ]
 }
 
@@ -174,9 +186,15 @@ fn worst_case_sizes() {
         ambient_k: Some(293.15),
         uncertainty: Uncertainties::default(),
         config_digest: u32::MAX,
+        run: u32::MAX,
+        session: u32::MAX,
+        last_counter: u32::MAX,
+        keyed: true,
     };
     let n = wire::encode(&Frame::Hello(worst_hello), &mut buf).unwrap();
-    assert_eq!(n, 70);
+    // Version 1's 70 bytes, plus three u32 varints at their longest (5
+    // bytes each) and the commands byte.
+    assert_eq!(n, 86);
 
     let worst_event = EventFrame {
         seq: u16::MAX,

@@ -59,6 +59,10 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                     heat_out_rel: 0.02,
                 },
                 config_digest: i as u32,
+                run: (i / 7) as u32,
+                session: 0x5EED,
+                last_counter: i as u32,
+                keyed: i % 3 == 0,
             }),
             5..20 => Frame::Event(EventFrame {
                 seq,

@@ -103,14 +103,9 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// assert!((w.entropy_rate_w_per_k.unwrap() - 1.166_666_7).abs() < 1e-5);
     /// ```
     pub fn new(config: &impl MonitorConfig) -> Result<Self, MonitorError> {
+        Self::fits(config)?;
         let config = &config.monitor_settings();
         let window_len = config.window_samples as usize;
-        if window_len > N || window_len < 2 {
-            return Err(MonitorError::WindowTooLong {
-                window_samples: config.window_samples,
-                capacity: N,
-            });
-        }
         let to_ms = |s: f64| (s * 1000.0).clamp(0.0, u32::MAX as f64 / 2.0) as u32;
         let settings = FigureSettings::new(config);
         Ok(Self {
@@ -149,6 +144,30 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             span_ms: 0,
             last_t_hot_k: None,
         })
+    }
+
+    /// Whether a monitor of this capacity can run `config`, without
+    /// building one (a monitor is kilobytes; a controller checks a
+    /// configuration it was sent before it lets go of the one it runs).
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::Monitor;
+    /// let mut c = RigConfig::default();
+    /// c.window_samples = 100;
+    /// assert!(Monitor::<64>::fits(&c).is_err());
+    /// assert!(Monitor::<128>::fits(&c).is_ok());
+    /// ```
+    pub fn fits(config: &impl MonitorConfig) -> Result<(), MonitorError> {
+        let window_samples = config.monitor_settings().window_samples;
+        let window_len = window_samples as usize;
+        if window_len > N || window_len < 2 {
+            return Err(MonitorError::WindowTooLong {
+                window_samples,
+                capacity: N,
+            });
+        }
+        Ok(())
     }
 
     // Written out channel by channel: a loop over (value, channel) pairs is

@@ -48,7 +48,7 @@ impl core::fmt::Display for Mode {
 }
 
 /// Validated standard uncertainties.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Uncertainty {
     /// Hot-side temperature, kelvin.
@@ -78,7 +78,7 @@ impl Default for Uncertainty {
 }
 
 /// Validated steady-state settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Steady {
     /// Seconds every channel must stay in band.
@@ -109,7 +109,7 @@ impl Default for Steady {
 }
 
 /// Validated health settings.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Health {
     /// Consecutive identical readings that make a channel stuck; 0 = off.

@@ -23,6 +23,10 @@ pub(super) struct RawHello {
     ambient_k: Option<f32>,
     uncertainty: Uncertainties,
     config_digest: u32,
+    run: u32,
+    session: u32,
+    last_counter: u32,
+    commands: u8,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -40,6 +44,13 @@ pub(super) struct RawSummary {
 pub(super) struct RawEvent {
     seq: u16,
     event: Event,
+}
+
+#[derive(Serialize, Deserialize)]
+pub(super) struct RawReply {
+    counter: u32,
+    t_ms: u32,
+    code: ReplyCode,
 }
 
 /// Not available travels as NaN.
@@ -137,10 +148,17 @@ pub(super) fn raw_hello(h: &Hello) -> RawHello {
         ambient_k: h.ambient_k,
         uncertainty: h.uncertainty,
         config_digest: h.config_digest,
+        run: h.run,
+        session: h.session,
+        last_counter: h.last_counter,
+        commands: if h.keyed { hello_bit::KEYED } else { 0 },
     }
 }
 
 pub(super) fn hello_from_raw(r: RawHello) -> Result<Hello, Malformed> {
+    if r.commands & !hello_bit::DEFINED != 0 {
+        return Err(Malformed::ReservedBits);
+    }
     let hello = Hello {
         rig_id: RigId::from_padded(r.rig_id).ok_or(Malformed::RigId)?,
         firmware_version: r.firmware_version,
@@ -151,6 +169,10 @@ pub(super) fn hello_from_raw(r: RawHello) -> Result<Hello, Malformed> {
         ambient_k: r.ambient_k,
         uncertainty: r.uncertainty,
         config_digest: r.config_digest,
+        run: r.run,
+        session: r.session,
+        last_counter: r.last_counter,
+        keyed: r.commands & hello_bit::KEYED != 0,
     };
     if hello.is_valid() {
         Ok(hello)
@@ -194,6 +216,18 @@ pub fn encode(frame: &Frame, buf: &mut [u8]) -> Result<usize, WireError> {
                 RawEvent {
                     seq: e.seq,
                     event: e.event,
+                },
+            ),
+            &mut raw,
+        )
+        .map(|s| s.len()),
+        Frame::Reply(r) => postcard::to_slice(
+            &(
+                header,
+                RawReply {
+                    counter: r.counter,
+                    t_ms: r.t_ms,
+                    code: r.code,
                 },
             ),
             &mut raw,
@@ -318,6 +352,14 @@ pub(super) fn decode_in_place(buf: &mut [u8]) -> Result<Frame, FrameError> {
             Frame::Event(EventFrame {
                 seq: r.seq,
                 event: r.event,
+            })
+        }
+        kind::REPLY => {
+            let r: RawReply = take_all(body)?;
+            Frame::Reply(Reply {
+                counter: r.counter,
+                t_ms: r.t_ms,
+                code: r.code,
             })
         }
         other => return Err(Malformed::UnknownKind(other).into()),

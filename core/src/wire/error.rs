@@ -19,6 +19,8 @@ pub enum WireError {
     ReservedBits,
     /// A rig id is longer than 16 bytes or not printable ASCII.
     BadRigId,
+    /// A configuration to send does not validate.
+    InvalidConfig,
 }
 
 impl core::fmt::Display for WireError {
@@ -28,6 +30,7 @@ impl core::fmt::Display for WireError {
             WireError::NotFinite => "a value that must be finite is NaN or infinite",
             WireError::ReservedBits => "a bit mask uses undefined bits",
             WireError::BadRigId => "rig id is longer than 16 bytes or not printable ASCII",
+            WireError::InvalidConfig => "the configuration does not validate",
         })
     }
 }

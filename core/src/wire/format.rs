@@ -7,12 +7,20 @@ use crate::monitor::Channel;
 ///
 /// Any change to a field's order, type or meaning, and any new frame kind,
 /// bumps it; decoders reject frames of other versions and count them.
-pub const PROTOCOL_VERSION: u8 = 1;
+pub const PROTOCOL_VERSION: u8 = 2;
 
 /// The longest frame on the wire, delimiter included: a buffer of this size
 /// holds any frame `encode` writes, and a `Decoder` of this capacity
 /// accepts every frame of this version.
 pub const MAX_FRAME_LEN: usize = 128;
+
+/// The longest command (host to controller) on the wire, delimiter
+/// included: a `Configure` carries a whole `RigConfig`. A command receiver
+/// of this capacity accepts every command of this version.
+pub const MAX_COMMAND_LEN: usize = 512;
+
+/// Bytes of the truncated HMAC-SHA-256 tag a command carries.
+pub const MAC_LEN: usize = 8;
 
 /// The worst-case size of a `Summary` on the wire, delimiter included:
 /// every varint at its longest (`seq ≥ 2^14`, `t_ms ≥ 2^28`).
@@ -29,6 +37,11 @@ const _: () = assert!(
 pub(super) const CRC_LEN: usize = 4;
 /// The largest postcard payload plus CRC that still fits in [`MAX_FRAME_LEN`].
 pub(super) const MAX_RAW_LEN: usize = MAX_FRAME_LEN - 2;
+/// The same for a command in [`MAX_COMMAND_LEN`].
+pub(super) const MAX_RAW_COMMAND_LEN: usize = MAX_COMMAND_LEN - 4;
+
+const _: () = assert!(cobs_max_len(MAX_RAW_COMMAND_LEN) < MAX_COMMAND_LEN);
+const _: () = assert!(cobs_max_len(MAX_RAW_LEN) < MAX_FRAME_LEN);
 
 /// The CRC over the postcard bytes: CRC-32/ISO-HDLC (the Ethernet, zlib and
 /// PNG CRC), check value `0xCBF43926`.
@@ -39,6 +52,15 @@ pub(super) mod kind {
     pub const HELLO: u8 = 0;
     pub const SUMMARY: u8 = 1;
     pub const EVENT: u8 = 2;
+    pub const REPLY: u8 = 3;
+    /// Host to controller.
+    pub const COMMAND: u8 = 16;
+}
+
+/// Bits of `Hello`'s `commands` byte.
+pub(super) mod hello_bit {
+    pub const KEYED: u8 = 1 << 0;
+    pub const DEFINED: u8 = KEYED;
 }
 
 /// Bits of `Summary`'s `status` byte.

@@ -22,6 +22,8 @@ pub enum Frame {
     Summary(Summary),
     /// An alarm event.
     Event(EventFrame),
+    /// The controller's answer to a command.
+    Reply(Reply),
 }
 
 impl Frame {
@@ -31,6 +33,7 @@ impl Frame {
             Frame::Hello(_) => kind::HELLO,
             Frame::Summary(_) => kind::SUMMARY,
             Frame::Event(_) => kind::EVENT,
+            Frame::Reply(_) => kind::REPLY,
         }
     }
 }
@@ -159,6 +162,20 @@ pub struct Hello {
     pub uncertainty: Uncertainties,
     /// [`Hello::config_digest`] of the configuration in use.
     pub config_digest: u32,
+    /// The run counter: +1 for every new run the controller starts on
+    /// command (`NewRun`, or a `Configure` applied); 0 after a reset.
+    pub run: u32,
+    /// This boot's session number, drawn at start-up. Commands are
+    /// authenticated for one session, so a command recorded in an earlier
+    /// one is refused after a restart.
+    pub session: u32,
+    /// The highest command counter accepted in this session, 0 if none:
+    /// the next command must carry a larger one.
+    pub last_counter: u32,
+    /// Whether the controller holds a command key. Without one it accepts
+    /// no command but a Hello request, and answers every other with
+    /// [`ReplyCode::NoKey`].
+    pub keyed: bool,
 }
 
 impl Hello {
@@ -186,6 +203,10 @@ impl Hello {
                 heat_out_rel: u.heat_out_rel as f32,
             },
             config_digest: Hello::config_digest(config),
+            run: 0,
+            session: 0,
+            last_counter: 0,
+            keyed: false,
         }
     }
 
@@ -496,4 +517,111 @@ pub struct EventFrame {
     pub seq: u16,
     /// The event.
     pub event: Event,
+}
+
+/// What became of a command: applied, or why it was refused.
+///
+/// The codes are part of the interface (wire byte and [`ReplyCode::as_str`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum ReplyCode {
+    /// Carried out.
+    Applied,
+    /// Not a command of this protocol version (its CRC was good).
+    Malformed,
+    /// The MAC does not match: a wrong key, another rig or session, or a
+    /// forged or altered command.
+    FailedAuthentication,
+    /// The counter is not above the last one accepted: a replayed or stale
+    /// command.
+    Replayed,
+    /// The configuration does not validate, or does not fit the controller.
+    InvalidConfiguration,
+    /// A new run or configuration is already waiting for the window boundary.
+    Busy,
+    /// The controller holds no command key, so it accepts no command but a
+    /// Hello request.
+    NoKey,
+}
+
+impl ReplyCode {
+    /// Every code, in wire order.
+    pub const ALL: [ReplyCode; 7] = [
+        ReplyCode::Applied,
+        ReplyCode::Malformed,
+        ReplyCode::FailedAuthentication,
+        ReplyCode::Replayed,
+        ReplyCode::InvalidConfiguration,
+        ReplyCode::Busy,
+        ReplyCode::NoKey,
+    ];
+
+    /// The code's name in logs and JSON.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            ReplyCode::Applied => "applied",
+            ReplyCode::Malformed => "malformed",
+            ReplyCode::FailedAuthentication => "failed_authentication",
+            ReplyCode::Replayed => "replayed",
+            ReplyCode::InvalidConfiguration => "invalid_configuration",
+            ReplyCode::Busy => "busy",
+            ReplyCode::NoKey => "no_key",
+        }
+    }
+
+    /// The code named `name` ([`ReplyCode::as_str`]).
+    pub fn parse(name: &str) -> Option<ReplyCode> {
+        ReplyCode::ALL.into_iter().find(|c| c.as_str() == name)
+    }
+
+    /// What it means, in words for the operator.
+    pub const fn meaning(self) -> &'static str {
+        match self {
+            ReplyCode::Applied => "applied by the controller",
+            ReplyCode::Malformed => "the controller could not read the command",
+            ReplyCode::FailedAuthentication => {
+                "the controller refused the command's authentication (wrong key, or not this rig)"
+            }
+            ReplyCode::Replayed => {
+                "the controller refused a repeated command counter (a replayed or stale command)"
+            }
+            ReplyCode::InvalidConfiguration => {
+                "the controller refused the configuration as invalid or too large for it"
+            }
+            ReplyCode::Busy => {
+                "the controller is still applying an earlier new run or configuration; try again"
+            }
+            ReplyCode::NoKey => {
+                "the controller has no command key provisioned, so it accepts no commands"
+            }
+        }
+    }
+}
+
+impl core::fmt::Display for ReplyCode {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// The controller's answer to one command.
+///
+/// ```
+/// use heatbound::wire::{self, Frame, Reply, ReplyCode};
+/// let r = Reply { counter: 7, t_ms: 12_000, code: ReplyCode::Applied };
+/// let mut buf = [0; wire::MAX_FRAME_LEN];
+/// let n = wire::encode(&Frame::Reply(r), &mut buf).unwrap();
+/// assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Reply(r)));
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Reply {
+    /// The command's counter (its sequence number); 0 for a command too
+    /// malformed to read one from.
+    pub counter: u32,
+    /// Sample time when the controller answered, ms.
+    pub t_ms: u32,
+    /// Applied, or why not.
+    pub code: ReplyCode,
 }

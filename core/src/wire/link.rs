@@ -28,6 +28,8 @@ pub enum Link {
     Restart,
     /// An event frame (sequence is not tracked on events).
     Event,
+    /// A reply to a command (not sequenced either).
+    Reply,
 }
 
 impl core::fmt::Display for Link {
@@ -40,6 +42,7 @@ impl core::fmt::Display for Link {
             Link::Duplicate => f.write_str("duplicate"),
             Link::Restart => f.write_str("restart"),
             Link::Event => f.write_str("event"),
+            Link::Reply => f.write_str("reply"),
         }
     }
 }
@@ -111,6 +114,7 @@ impl LinkTracker {
                 return Link::Hello;
             }
             Frame::Event(_) => return Link::Event,
+            Frame::Reply(_) => return Link::Reply,
             Frame::Summary(s) => s.seq,
         };
         self.stats.summaries += 1;

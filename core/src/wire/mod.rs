@@ -37,6 +37,7 @@
 //! payload, 4 of CRC, 1 of COBS overhead and the delimiter.
 
 mod codec;
+mod command;
 mod decoder;
 mod error;
 mod format;
@@ -46,8 +47,12 @@ mod link;
 mod tests;
 
 pub use codec::{decode, encode};
+pub use command::{
+    Addressee, Authenticator, Command, CommandFrame, CommandKey, CommandReceiver, KeyError,
+    Received, ReceiverStats, decode_command, encode_command,
+};
 pub use decoder::{Decoder, DecoderStats};
 pub use error::{FrameError, Malformed, WireError};
-pub use format::{MAX_FRAME_LEN, PROTOCOL_VERSION, SUMMARY_MAX_WIRE_LEN};
+pub use format::{MAC_LEN, MAX_COMMAND_LEN, MAX_FRAME_LEN, PROTOCOL_VERSION, SUMMARY_MAX_WIRE_LEN};
 pub use frames::*;
 pub use link::{Link, LinkStats, LinkTracker};

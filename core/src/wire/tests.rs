@@ -155,13 +155,20 @@ fn unknown_version_and_kind_are_told_apart() {
         let n = cobs_encode(&raw, &mut enc).unwrap();
         decode(&enc[..n])
     };
-    assert_eq!(frame_with(2, 1), Err(FrameError::UnknownVersion(2)));
+    // Version 1 (before the downlink) is another version now.
+    assert_eq!(frame_with(1, 1), Err(FrameError::UnknownVersion(1)));
+    assert_eq!(frame_with(3, 1), Err(FrameError::UnknownVersion(3)));
     assert_eq!(
-        frame_with(1, 9),
+        frame_with(2, 9),
         Err(FrameError::Malformed(Malformed::UnknownKind(9)))
     );
+    // A command (kind 16) is not an uplink frame.
     assert_eq!(
-        frame_with(1, 1),
+        frame_with(2, 16),
+        Err(FrameError::Malformed(Malformed::UnknownKind(16)))
+    );
+    assert_eq!(
+        frame_with(2, 1),
         Err(FrameError::Malformed(Malformed::Postcard))
     );
 }
