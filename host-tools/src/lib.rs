@@ -8,6 +8,10 @@
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
+//! - [`keyfile`]: the rig's command key, from a file only its owner may read;
+//! - [`downlink`]: operators' commands sealed, sent on the link, matched with replies;
+//! - [`control`]: the local control socket through which `ack`, `configure`
+//!   and `new-run` reach the process holding the link;
 //! - [`fanout`]: `simulate --listen` serving every client, dropping one that stops reading;
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
@@ -22,9 +26,12 @@
 pub mod audit;
 pub mod capture;
 pub mod chart;
+pub mod control;
 pub mod cycle_file;
+pub mod downlink;
 pub mod fanout;
 pub mod ingest;
+pub mod keyfile;
 pub mod link;
 pub mod replay;
 pub mod rigfile;

@@ -7,17 +7,25 @@
 //! a link that worked drops or stalls --> outage row, reconnect with backoff 100 ms .. 5 s
 //! ```
 //!
+//! The link is two-way: the holder also writes operators' commands to the
+//! controller ([`crate::downlink`]), arriving on [`Commands::requests`]
+//! from the control socket, and matches the controller's replies.
+//!
 //! A source is checked before the run starts: a malformed address, a host
 //! name that does not resolve or a serial port that does not exist is an
 //! error at once. A link is reconnected only once it has worked: the first
 //! connection gets [`LinkOptions::first_connect`] to come up (an emulator
 //! may still be starting), then the run ends with an error.
-use std::io::{ErrorKind, Read};
+use std::io::{ErrorKind, Read, Write};
 use std::net::{SocketAddr, TcpStream, ToSocketAddrs};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::Receiver;
+use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
+use crate::control::LinkStatus;
+use crate::downlink::{Downlink, Request};
 use crate::ingest::{Ingest, Totals};
 use crate::store::StoreError;
 
@@ -155,37 +163,107 @@ impl Source {
         }
     }
 
-    fn connect(&self) -> Result<Box<dyn Read>, String> {
+    fn connect(&self) -> Result<Conn, String> {
         match self {
-            Source::Serial { path, baud } => serialport::new(path, *baud)
-                .data_bits(serialport::DataBits::Eight)
-                .parity(serialport::Parity::None)
-                .stop_bits(serialport::StopBits::One)
-                .flow_control(serialport::FlowControl::None)
-                .timeout(READ_TIMEOUT)
-                .open()
-                .map(|p| Box::new(p) as Box<dyn Read>)
-                .map_err(|e| format!("cannot open {path}: {}", e.description)),
+            Source::Serial { path, baud } => {
+                let port = serialport::new(path, *baud)
+                    .data_bits(serialport::DataBits::Eight)
+                    .parity(serialport::Parity::None)
+                    .stop_bits(serialport::StopBits::One)
+                    .flow_control(serialport::FlowControl::None)
+                    .timeout(READ_TIMEOUT)
+                    .open()
+                    .map_err(|e| format!("cannot open {path}: {}", e.description))?;
+                let writer = port
+                    .try_clone()
+                    .map_err(|e| format!("cannot open {path} for writing: {}", e.description))?;
+                Ok(Conn {
+                    reader: Box::new(port),
+                    writer: Some(Box::new(writer)),
+                })
+            }
             Source::Tcp { addr, resolved } => {
                 let stream = TcpStream::connect(resolved.as_slice())
                     .map_err(|e| format!("cannot connect to {addr}: {}", os_words(&e)))?;
                 stream
                     .set_read_timeout(Some(READ_TIMEOUT))
                     .map_err(|e| format!("{addr}: cannot set a read timeout: {}", os_words(&e)))?;
-                Ok(Box::new(stream) as Box<dyn Read>)
+                let _ = stream.set_write_timeout(Some(WRITE_TIMEOUT));
+                let _ = stream.set_nodelay(true);
+                let writer = stream
+                    .try_clone()
+                    .map_err(|e| format!("{addr}: cannot write to it: {}", os_words(&e)))?;
+                Ok(Conn {
+                    reader: Box::new(stream),
+                    writer: Some(Box::new(writer)),
+                })
             }
         }
     }
 }
 
-/// The OS's message without the `(os error N)` that Rust appends.
-fn os_words(e: &std::io::Error) -> String {
-    let text = e.to_string();
-    match text.find(" (os error") {
-        Some(i) => text.get(..i).unwrap_or(&text).to_string(),
-        None => text,
+/// How long writing one command to the link may block.
+const WRITE_TIMEOUT: Duration = Duration::from_secs(2);
+
+/// One connection: bytes in, and commands out where the link has a way back.
+struct Conn {
+    reader: Box<dyn Read>,
+    writer: Option<Box<dyn Write>>,
+}
+
+/// The command side of a link holder.
+pub struct Commands<'a> {
+    /// Seals, sends and matches the commands.
+    pub downlink: &'a mut Downlink,
+    /// Where requests arrive (from the control socket, or the demo's operator).
+    pub requests: &'a Receiver<Request>,
+    /// What the holder tells about itself on the control socket.
+    pub status: Option<Arc<Mutex<LinkStatus>>>,
+}
+
+impl Commands<'_> {
+    /// Takes what arrived and settles what was answered; `writer` is the
+    /// link's way back, `None` when there is none now.
+    fn service(
+        &mut self,
+        ingest: &mut Ingest,
+        mut writer: Option<&mut dyn Write>,
+        link_up: bool,
+    ) -> Result<(), LinkError> {
+        let now = Instant::now();
+        while let Ok(request) = self.requests.try_recv() {
+            let w = writer.as_mut().map(|w| &mut **w as &mut dyn Write);
+            self.downlink.submit(request, ingest, w, now)?;
+        }
+        self.downlink.poll(ingest, writer, now)?;
+        if let Some(status) = &self.status
+            && let Ok(mut s) = status.lock()
+        {
+            s.link_up = link_up;
+            if let Some(h) = ingest.latest_hello() {
+                s.rig_id = Some(h.rig_id.to_string());
+                s.run = Some(h.run);
+                s.controller_keyed = Some(h.keyed);
+            }
+        }
+        Ok(())
     }
 }
+
+/// Services `commands`, if any.
+fn service(
+    commands: &mut Option<Commands<'_>>,
+    ingest: &mut Ingest,
+    writer: Option<&mut dyn Write>,
+    link_up: bool,
+) -> Result<(), LinkError> {
+    match commands {
+        Some(c) => c.service(ingest, writer, link_up),
+        None => Ok(()),
+    }
+}
+
+use crate::term::os_words;
 
 /// How a link is kept.
 #[derive(Clone, Copy, Debug)]
@@ -262,23 +340,42 @@ fn feed(ingest: &mut Ingest, bytes: &[u8], on_line: &mut dyn FnMut(&str)) -> Res
     Ok(())
 }
 
-/// Reads a capture (file, stdin, or a link that is not reconnected) to its end.
+/// Reads a capture (file, stdin, or a link that is not reconnected) to its
+/// end. `writer` is the way back to the controller, if there is one (the
+/// demo's loopback link); without one, commands are answered `no_link`.
+#[allow(clippy::too_many_arguments)]
 pub fn read_to_end(
     ingest: &mut Ingest,
     bounds: &Bounds,
     mut r: impl Read,
+    mut writer: Option<&mut dyn Write>,
     name: &str,
+    mut commands: Option<Commands<'_>>,
     mut on_line: impl FnMut(&str),
 ) -> Result<End, LinkError> {
     let mut buf = vec![0u8; CHUNK];
+    if let (Some(c), Some(w)) = (commands.as_mut(), writer.as_mut()) {
+        c.downlink.link_up(ingest, &mut **w, Instant::now())?;
+    }
     loop {
         if let Some(end) = bounds.check(ingest) {
             return Ok(end);
         }
         let n = match r.read(&mut buf) {
-            Ok(0) => return Ok(End::Eof),
+            Ok(0) => {
+                if let Some(c) = commands.as_mut() {
+                    c.downlink.link_down(ingest)?;
+                }
+                return Ok(End::Eof);
+            }
             Ok(n) => n,
             Err(e) if e.kind() == ErrorKind::Interrupted => continue,
+            Err(e) if matches!(e.kind(), ErrorKind::WouldBlock | ErrorKind::TimedOut) => {
+                ingest.tick(now_ms())?;
+                let w = writer.as_mut().map(|w| &mut **w as &mut dyn Write);
+                service(&mut commands, ingest, w, true)?;
+                continue;
+            }
             Err(e) => {
                 return Err(LinkError::Read {
                     name: name.to_string(),
@@ -287,6 +384,9 @@ pub fn read_to_end(
             }
         };
         feed(ingest, buf.get(..n).unwrap_or(&[]), &mut on_line)?;
+        let w = writer.as_mut().map(|w| &mut **w as &mut dyn Write);
+        let up = w.is_some();
+        service(&mut commands, ingest, w, up)?;
     }
 }
 
@@ -294,18 +394,20 @@ pub fn read_to_end(
 /// stall is an outage in the same run, and the link is reconnected with
 /// exponential backoff. `on_line` takes the live lines, `on_notice` the
 /// link's own news (down, back).
+#[allow(clippy::too_many_arguments)]
 pub fn keep_reading(
     ingest: &mut Ingest,
     bounds: &Bounds,
     source: &Source,
     options: LinkOptions,
+    mut commands: Option<Commands<'_>>,
     mut on_line: impl FnMut(&str),
     mut on_notice: impl FnMut(&str),
 ) -> Result<End, LinkError> {
     let name = source.name();
     let mut buf = vec![0u8; CHUNK];
     let mut backoff = BACKOFF_MIN;
-    let mut conn: Option<Box<dyn Read>> = None;
+    let mut conn: Option<Conn> = None;
     let started = Instant::now();
     let mut ever_up = false;
     let mut last_byte = Instant::now();
@@ -313,10 +415,10 @@ pub fn keep_reading(
         if let Some(end) = bounds.check(ingest) {
             return Ok(end);
         }
-        let Some(stream) = conn.as_mut() else {
+        let Some(link) = conn.as_mut() else {
+            service(&mut commands, ingest, None, false)?;
             match source.connect() {
-                Ok(c) => {
-                    conn = Some(c);
+                Ok(mut c) => {
                     backoff = BACKOFF_MIN;
                     last_byte = Instant::now();
                     if ingest.totals().outages > 0 {
@@ -324,6 +426,11 @@ pub fn keep_reading(
                     }
                     ever_up = true;
                     ingest.link_up(now_ms())?;
+                    if let (Some(cmds), Some(w)) = (commands.as_mut(), c.writer.as_mut()) {
+                        // A controller that cannot be written to still streams.
+                        let _ = cmds.downlink.link_up(ingest, &mut **w, Instant::now());
+                    }
+                    conn = Some(c);
                 }
                 Err(reason) if !ever_up => {
                     if started.elapsed() >= options.first_connect {
@@ -337,19 +444,20 @@ pub fn keep_reading(
                     backoff = (backoff * 2).min(BACKOFF_MAX);
                 }
                 Err(reason) => {
-                    down(ingest, &reason, &mut on_notice)?;
+                    down(ingest, &reason, &mut commands, &mut on_notice)?;
                     wait(bounds, ingest, backoff);
                     backoff = (backoff * 2).min(BACKOFF_MAX);
                 }
             }
             continue;
         };
-        match stream.read(&mut buf) {
+        match link.reader.read(&mut buf) {
             Ok(0) => {
                 conn = None;
                 down(
                     ingest,
                     &format!("{name}: connection closed"),
+                    &mut commands,
                     &mut on_notice,
                 )?;
                 wait(bounds, ingest, backoff);
@@ -357,23 +465,27 @@ pub fn keep_reading(
             Ok(n) => {
                 last_byte = Instant::now();
                 feed(ingest, buf.get(..n).unwrap_or(&[]), &mut on_line)?;
+                let w = link.writer.as_mut().map(|w| &mut **w as &mut dyn Write);
+                service(&mut commands, ingest, w, true)?;
             }
             Err(e) if matches!(e.kind(), ErrorKind::WouldBlock | ErrorKind::TimedOut) => {
                 ingest.tick(now_ms())?;
+                let w = link.writer.as_mut().map(|w| &mut **w as &mut dyn Write);
+                service(&mut commands, ingest, w, true)?;
                 if last_byte.elapsed() >= options.stall {
                     conn = None;
                     let reason = format!(
                         "{name}: stalled, no data for {:.0} s",
                         options.stall.as_secs_f64()
                     );
-                    down(ingest, &reason, &mut on_notice)?;
+                    down(ingest, &reason, &mut commands, &mut on_notice)?;
                 }
             }
             Err(e) if e.kind() == ErrorKind::Interrupted => {}
             Err(e) => {
                 conn = None;
                 let reason = format!("{name}: read failed: {}", os_words(&e));
-                down(ingest, &reason, &mut on_notice)?;
+                down(ingest, &reason, &mut commands, &mut on_notice)?;
                 wait(bounds, ingest, backoff);
             }
         }
@@ -384,8 +496,12 @@ pub fn keep_reading(
 fn down(
     ingest: &mut Ingest,
     reason: &str,
+    commands: &mut Option<Commands<'_>>,
     on_notice: &mut dyn FnMut(&str),
 ) -> Result<(), LinkError> {
+    if let Some(c) = commands.as_mut() {
+        c.downlink.link_down(ingest)?;
+    }
     let first = ingest.totals().outages;
     ingest.link_down(now_ms(), reason)?;
     if ingest.totals().outages != first {

@@ -31,6 +31,12 @@ enum Command {
     Chart(cmd::chart::Args),
     /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited and charted.
     Demo(cmd::demo::Args),
+    /// Acknowledge an alarm on the controller, through the running `watch`.
+    Ack(cmd::operate::AckArgs),
+    /// Send a new configuration (rig.toml) to the controller, through the running `watch`.
+    Configure(cmd::operate::ConfigureArgs),
+    /// Start a new run on the controller (its run totals start afresh), through the running `watch`.
+    NewRun(cmd::operate::NewRunArgs),
 }
 
 /// A usage error as one line: clap's message up to its first blank line,
@@ -80,6 +86,9 @@ fn main() -> ExitCode {
         Command::Audit(args) => cmd::audit::run(&args),
         Command::Chart(args) => cmd::chart::run(&args),
         Command::Demo(args) => cmd::demo::run(&args),
+        Command::Ack(args) => cmd::operate::ack(&args),
+        Command::Configure(args) => cmd::operate::configure(&args),
+        Command::NewRun(args) => cmd::operate::new_run(&args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -1,24 +1,30 @@
 //! Software in the loop: the simulated bench rig driven through the same
-//! core code the controller runs, producing the controller's wire stream.
+//! controller the firmware runs, producing the controller's wire stream and
+//! answering its commands.
 //!
 //! Data flow (DESIGN.md §2, with the rig standing in for the sensors):
 //!
 //! ```text
-//! Rig::sample(t_ms) --> Monitor<64, f32>::push --> AlarmSet::update --> Frame::Event
-//!                       every summary period   --> Summary::from_monitor --> Frame::Summary
-//! start, then every HELLO_EVERY summaries      --> Hello::from_config    --> Frame::Hello
+//! Rig::sample(t_ms) --> control::Controller<64> (Monitor<64, f32> + AlarmSet + link) --> frames
+//! commands (bytes from the host) --> Controller::receive --> Reply, Event and Hello frames
 //! frames --> wire::encode --> bytes (file, stdout, TCP)
 //! ```
 //!
-//! The monitor is `Monitor<64, f32>` and the alarms an [`AlarmSet`]: the
-//! controller's types in the controller's precision, so a simulated capture
-//! is what a real controller would send. Time is the sample index times the
-//! sample period; nothing here reads a clock, so the same options and seed
-//! give the same bytes. Pacing to real time is the caller's business.
-use heatbound::alarm::{AlarmSet, Event};
+//! The controller is [`heatbound::control::Controller`], the firmware's own
+//! in the controller's precision, so a simulated capture is what a real
+//! controller would send, and a command is answered as a real controller
+//! would answer it. Time is the sample index times the sample period;
+//! nothing here reads a clock, so the same options and seed give the same
+//! bytes. Pacing to real time is the caller's business.
+//!
+//! The simulation is not a real controller: with no key given it answers
+//! commands sealed with the public [`CommandKey::DEMO`], and it has no
+//! random source, so its session number comes from the seed.
+use heatbound::alarm::Event;
 use heatbound::config::RigConfig;
-use heatbound::monitor::{Monitor, MonitorError};
-use heatbound::wire::{self, EventFrame, Frame, Hello, RigId, Summary};
+use heatbound::control::{Controller, ControllerSettings};
+use heatbound::monitor::MonitorError;
+use heatbound::wire::{self, CommandKey, Frame, Hello, RigId};
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
 /// The rig identifier the simulation announces in its Hello.
@@ -30,8 +36,8 @@ pub const FIRMWARE_VERSION: (u8, u8, u8) = (0, 1, 0);
 /// Window capacity of the simulated controller's monitor, samples.
 pub const WINDOW_CAPACITY: usize = 64;
 
-/// A Hello is repeated after this many summaries, so a host that joins
-/// mid-stream learns the settings within a minute (at 1 s summaries).
+/// A Hello is repeated after this many summary periods, so a host that
+/// joins mid-stream learns the settings within a minute (at 1 s summaries).
 pub const HELLO_EVERY: u32 = 60;
 
 /// What a simulation runs.
@@ -47,6 +53,11 @@ pub struct SimOptions {
     pub duration_s: f64,
     /// Seconds of sample time between summaries (≥ one sample period).
     pub summary_period_s: f64,
+    /// The rig's identifier in its Hello.
+    pub rig_id: RigId,
+    /// Rig time at which the scenario's fault is put right ([`Rig::repair`]),
+    /// if it is.
+    pub repair_at_s: Option<f64>,
 }
 
 impl Default for SimOptions {
@@ -57,6 +68,9 @@ impl Default for SimOptions {
             rate_hz: 10.0,
             duration_s: 600.0,
             summary_period_s: 1.0,
+            // A fixed, valid identifier: cannot fail.
+            rig_id: RigId::new(RIG_ID).unwrap_or_default(),
+            repair_at_s: None,
         }
     }
 }
@@ -95,44 +109,75 @@ pub struct SimStats {
     pub summaries: u64,
     /// Event frames emitted.
     pub events: u64,
+    /// Reply frames emitted (answers to commands).
+    pub replies: u64,
     /// Every alarm event, in order.
     pub alarm_events: Vec<Event>,
+    /// Each change of the trip output: sample time, ms, and the new level.
+    pub trip_changes: Vec<(u32, bool)>,
+    /// When the fault was put right, ms of rig time.
+    pub repaired_at_ms: Option<u32>,
 }
 
 impl SimStats {
     /// Frames of every kind.
     pub fn frames(&self) -> u64 {
-        self.hellos + self.summaries + self.events
+        self.hellos + self.summaries + self.events + self.replies
+    }
+
+    fn count(&mut self, frame: &Frame) {
+        match frame {
+            Frame::Hello(_) => self.hellos += 1,
+            Frame::Summary(_) => self.summaries += 1,
+            Frame::Event(e) => {
+                self.events += 1;
+                self.alarm_events.push(e.event);
+            }
+            Frame::Reply(_) => self.replies += 1,
+        }
     }
 }
 
-/// The simulated controller: a rig, its monitor and its alarms.
+/// The simulated controller: a rig and the firmware's controller.
 ///
-/// ```ignore
-/// let mut sim = Simulation::new(&SimOptions::default(), &config)?;
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound_host::sil::{SimOptions, Simulation};
+/// let options = SimOptions { duration_s: 5.0, ..SimOptions::default() };
+/// let mut sim = Simulation::new(&options, &RigConfig::default())?;
 /// let mut frames = Vec::new();
-/// while let Some(t_ms) = sim.next_tick(&mut frames) { /* send frames */ frames.clear(); }
+/// while let Some(_t_ms) = sim.next_tick(&mut frames) {}
+/// assert_eq!(sim.stats().summaries, 5);
+/// assert!(sim.hello().keyed); // the public demo key
+/// # Ok::<(), heatbound_host::sil::SimError>(())
 /// ```
 pub struct Simulation {
     rig: Rig,
-    monitor: Monitor<WINDOW_CAPACITY, f32>,
-    alarms: AlarmSet,
-    hello: Hello,
+    controller: Controller<WINDOW_CAPACITY>,
     dt_s: f32,
     sample_period_ms: f64,
-    summary_period_ms: u32,
     samples_total: u64,
     index: u64,
-    next_summary_ms: u32,
-    seq: u16,
-    last_seq_sent: u16,
-    summaries_since_hello: u32,
+    t_ms: u32,
+    repair_at_ms: Option<u32>,
+    trip: bool,
     stats: SimStats,
 }
 
 impl Simulation {
-    /// A simulation of `options` on a controller configured with `config`.
+    /// A simulation of `options` on a controller configured with `config`,
+    /// answering commands sealed with the public demo key.
     pub fn new(options: &SimOptions, config: &RigConfig) -> Result<Self, SimError> {
+        Simulation::with_key(options, config, Some(&CommandKey::DEMO))
+    }
+
+    /// The same with the command key `key` (`None`: the controller accepts
+    /// no command but a Hello request).
+    pub fn with_key(
+        options: &SimOptions,
+        config: &RigConfig,
+        key: Option<&CommandKey>,
+    ) -> Result<Self, SimError> {
         let rate = options.rate_hz;
         if !(rate.is_finite() && rate > 0.0 && rate <= 1000.0) {
             return Err(SimError::Rate(rate));
@@ -146,84 +191,105 @@ impl Simulation {
         if !(p.is_finite() && p * 1000.0 >= sample_period_ms - 1e-9 && p * 1000.0 < 1e9) {
             return Err(SimError::SummaryPeriod(p));
         }
-        let monitor = Monitor::new(config)?;
-        // A fixed, valid identifier: cannot fail.
-        let rig_id = RigId::new(RIG_ID).unwrap_or_default();
         let period_ms = sample_period_ms.round().max(1.0) as u32;
         let summary_period_ms = (p * 1000.0).round() as u32;
+        let settings = ControllerSettings {
+            rig_id: options.rig_id,
+            firmware_version: FIRMWARE_VERSION,
+            sample_period_ms: period_ms,
+            summary_period_ms,
+            hello_period_ms: summary_period_ms.saturating_mul(HELLO_EVERY),
+        };
         Ok(Self {
             rig: Rig::bench_stirling(options.scenario, options.seed),
-            monitor,
-            alarms: AlarmSet::new(config),
-            hello: Hello::from_config(rig_id, FIRMWARE_VERSION, period_ms, config),
+            controller: Controller::new(&settings, config, key, session(options.seed))?,
             dt_s: (1.0 / rate) as f32,
             sample_period_ms,
-            summary_period_ms,
             samples_total: (d * rate).floor() as u64 + 1,
             index: 0,
-            next_summary_ms: summary_period_ms,
-            seq: 0,
-            last_seq_sent: 0,
-            summaries_since_hello: 0,
+            t_ms: 0,
+            repair_at_ms: options
+                .repair_at_s
+                .filter(|s| s.is_finite() && *s >= 0.0)
+                .map(|s| (s * 1000.0).min(f64::from(u32::MAX)) as u32),
+            trip: false,
             stats: SimStats::default(),
         })
     }
 
     /// Runs one sample: appends to `frames` the frames it produces (a Hello
-    /// first at the start, then any alarm events, then a summary when one
-    /// is due) and returns the sample time, or `None` once the duration is
+    /// first at the start, then any alarm events, then a Hello and a summary
+    /// when due) and returns the sample time, or `None` once the duration is
     /// done.
     pub fn next_tick(&mut self, frames: &mut Vec<Frame>) -> Option<u32> {
         if self.index >= self.samples_total {
             return None;
         }
-        if self.index == 0 {
-            frames.push(Frame::Hello(self.hello));
-            self.stats.hellos += 1;
-        }
         let t_ms = (self.index as f64 * self.sample_period_ms).round() as u32;
+        if self.repair_at_ms.is_some_and(|r| t_ms >= r) && self.stats.repaired_at_ms.is_none() {
+            self.rig.repair();
+            self.stats.repaired_at_ms = Some(t_ms);
+        }
+        let stats = &mut self.stats;
+        let mut out = |f: &Frame| {
+            stats.count(f);
+            frames.push(f.clone());
+        };
+        if self.index == 0 {
+            self.controller.start(0, &mut out);
+        }
         // Sample the state at t, then advance: the reading at t = 0 is the
         // initial state, as in the rig's own scenario tests.
         let sample = self.rig.sample(t_ms);
-        self.monitor.push(&sample);
-        for event in self.alarms.update(t_ms, &self.monitor.alarm_inputs()) {
-            frames.push(Frame::Event(EventFrame {
-                seq: self.last_seq_sent,
-                event,
-            }));
-            self.stats.events += 1;
-            self.stats.alarm_events.push(event);
-        }
-        if t_ms >= self.next_summary_ms {
-            if self.summaries_since_hello >= HELLO_EVERY {
-                frames.push(Frame::Hello(self.hello));
-                self.stats.hellos += 1;
-                self.summaries_since_hello = 0;
-            }
-            let summary = Summary::from_monitor(self.seq, t_ms, &self.monitor, &self.alarms);
-            frames.push(Frame::Summary(summary));
-            self.stats.summaries += 1;
-            self.summaries_since_hello += 1;
-            self.last_seq_sent = self.seq;
-            self.seq = self.seq.wrapping_add(1);
-            self.next_summary_ms = self.next_summary_ms.saturating_add(self.summary_period_ms);
+        let step = self.controller.step(&sample, &mut out);
+        if step.trip != self.trip {
+            self.trip = step.trip;
+            stats.trip_changes.push((t_ms, step.trip));
         }
         self.rig.step(self.dt_s);
+        self.t_ms = t_ms;
         self.index += 1;
         self.stats.samples = self.index;
-        self.stats.invalid_samples = self.monitor.invalid_samples();
+        self.stats.invalid_samples = self.controller.monitor().invalid_samples();
         Some(t_ms)
     }
 
-    /// The Hello this controller sends.
+    /// Bytes from the host at the latest sample time: each command they
+    /// complete is answered, and its frames (a Reply, events, a Hello) are
+    /// appended to `frames`.
+    pub fn receive(&mut self, bytes: &[u8], frames: &mut Vec<Frame>) {
+        let stats = &mut self.stats;
+        self.controller.receive(bytes, self.t_ms, &mut |f: &Frame| {
+            stats.count(f);
+            frames.push(f.clone());
+        });
+        let trip = self.controller.trip_active();
+        if trip != self.trip {
+            self.trip = trip;
+            self.stats.trip_changes.push((self.t_ms, trip));
+        }
+    }
+
+    /// The Hello this controller sends now.
     pub fn hello(&self) -> &Hello {
-        &self.hello
+        self.controller.hello()
+    }
+
+    /// The controller: monitor, alarms, trip output, link state.
+    pub fn controller(&self) -> &Controller<WINDOW_CAPACITY> {
+        &self.controller
     }
 
     /// Counters so far.
     pub fn stats(&self) -> &SimStats {
         &self.stats
     }
+}
+
+/// The simulation's session number: it has no random source, so the
+/// session comes from the seed (the same seed gives the same bytes).
+fn session(seed: u64) -> u32 {
+    (seed ^ (seed >> 32)) as u32 ^ 0x5EED_5EED
 }
 
 /// Appends the wire encoding of `frame` to `out`.

@@ -167,6 +167,7 @@ pub const MIGRATIONS: &[&str] = &[
         detail        TEXT NOT NULL,
         counter       INTEGER NOT NULL,
         session       INTEGER NOT NULL,
+        sealed        BLOB NOT NULL,
         reply_host_ms INTEGER,
         reply_code    TEXT,
         outcome       TEXT NOT NULL
@@ -432,6 +433,8 @@ pub struct CommandRow {
     pub counter: u32,
     /// The controller session it was sealed for.
     pub session: u32,
+    /// The bytes sent, exactly (the tag can be checked again with the key).
+    pub sealed: Vec<u8>,
     /// When the controller's Reply arrived, Unix ms.
     pub reply_host_ms: Option<i64>,
     /// What the Reply said.
@@ -906,13 +909,16 @@ impl Log {
         detail: &str,
         counter: u32,
         session: u32,
+        sealed: &[u8],
     ) -> Result<i64, StoreError> {
         self.commit()?;
         self.conn
             .execute(
                 "INSERT INTO commands (run_id, host_ms, origin, command, detail, counter, session,
-                 outcome) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, 'pending')",
-                params![run, host_ms, origin, command, detail, counter, session],
+                 sealed, outcome) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'pending')",
+                params![
+                    run, host_ms, origin, command, detail, counter, session, sealed
+                ],
             )
             .map_err(|e| self.err("cannot log a command", e))?;
         Ok(self.conn.last_insert_rowid())
@@ -926,12 +932,24 @@ impl Log {
         host_ms: i64,
         reply: Option<ReplyCode>,
     ) -> Result<(), StoreError> {
+        self.settle_command_as(id, host_ms, reply, None)
+    }
+
+    /// [`Log::settle_command`], with the outcome named when it is not the
+    /// reply's (`not_sent`: the link failed while writing it).
+    pub fn settle_command_as(
+        &mut self,
+        id: i64,
+        host_ms: i64,
+        reply: Option<ReplyCode>,
+        outcome: Option<&str>,
+    ) -> Result<(), StoreError> {
         self.commit()?;
-        let outcome = match reply {
+        let outcome = outcome.unwrap_or(match reply {
             Some(ReplyCode::Applied) => "applied",
             Some(_) => "rejected",
             None => "no_reply",
-        };
+        });
         self.conn
             .execute(
                 "UPDATE commands SET reply_host_ms = ?2, reply_code = ?3, outcome = ?4 WHERE id = ?1",
@@ -952,7 +970,7 @@ impl Log {
             .conn
             .prepare(
                 "SELECT id, host_ms, origin, command, detail, counter, session, reply_host_ms,
-                 reply_code, outcome FROM commands WHERE run_id = ?1 ORDER BY id",
+                 reply_code, outcome, sealed FROM commands WHERE run_id = ?1 ORDER BY id",
             )
             .map_err(|e| self.err("cannot read commands", e))?;
         let rows = st
@@ -969,6 +987,7 @@ impl Log {
                     reply_host_ms: r.get(7)?,
                     reply_code: code.as_deref().and_then(ReplyCode::parse),
                     outcome: r.get(9)?,
+                    sealed: r.get(10)?,
                 })
             })
             .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())

@@ -155,3 +155,17 @@ mod excerpt_tests {
         assert!(e.ends_with("(49900 more characters)"), "{e}");
     }
 }
+
+/// The OS's message without the `(os error N)` that Rust appends.
+///
+/// ```
+/// let e = std::io::Error::from_raw_os_error(2);
+/// assert_eq!(heatbound_host::term::os_words(&e), "No such file or directory");
+/// ```
+pub fn os_words(e: &std::io::Error) -> String {
+    let text = e.to_string();
+    match text.find(" (os error") {
+        Some(i) => text.get(..i).unwrap_or(&text).to_string(),
+        None => text,
+    }
+}

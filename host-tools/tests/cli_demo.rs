@@ -6,10 +6,11 @@ use assert_cmd::Command;
 fn demo_raises_beyond_carnot_and_its_log_passes_the_audit() {
     let dir = tempfile::tempdir().unwrap();
     let db = dir.path().join("demo.sqlite");
-    // --speed 0 plays the same ten minutes of rig time as fast as possible.
+    // --speed 300 plays the same ten minutes of rig time in 2 s, still in
+    // wall time, so the demo's operator can acknowledge over the link.
     let out = Command::cargo_bin("heatbound")
         .unwrap()
-        .args(["demo", "--speed", "0", "--db"])
+        .args(["demo", "--speed", "300", "--db"])
         .arg(&db)
         .output()
         .unwrap();
@@ -51,6 +52,31 @@ fn demo_raises_beyond_carnot_and_its_log_passes_the_audit() {
         (1400, 1000)
     );
 
+    // The operator's acknowledges went down the link, were applied, and
+    // are in the log with their replies; the trip output dropped once the
+    // thermocouple was reseated and the condition cleared.
+    assert!(
+        text.lines()
+            .any(|l| l.starts_with("acknowledged beyond_carnot trip")),
+        "{text}"
+    );
+    assert!(text.contains("trip output off at t = 546"), "{text}");
+    let log = heatbound_host::store::Log::open_read(&db).unwrap();
+    let run = log.runs().unwrap()[0].id;
+    let commands = log.commands(run).unwrap();
+    let acks: Vec<_> = commands.iter().filter(|c| c.command == "ack").collect();
+    assert!(
+        acks.iter().any(|c| c.detail == "beyond_carnot"),
+        "{commands:?}"
+    );
+    assert!(
+        acks.iter().all(|c| c.outcome == "applied"
+            && c.origin == "demo operator"
+            && c.reply_host_ms >= Some(c.host_ms)),
+        "{commands:?}"
+    );
+    drop(log);
+
     // The log it wrote audits clean on its own, too.
     let audit = Command::cargo_bin("heatbound")
         .unwrap()
@@ -73,7 +99,7 @@ fn demo_replaces_a_previous_log_instead_of_appending() {
     for _ in 0..2 {
         Command::cargo_bin("heatbound")
             .unwrap()
-            .args(["demo", "--speed", "0", "--quiet", "--db"])
+            .args(["demo", "--speed", "300", "--quiet", "--db"])
             .arg(&db)
             .assert()
             .success();
@@ -105,7 +131,7 @@ fn demo_refuses_a_db_that_is_not_a_heatbound_log_and_leaves_it() {
     std::fs::write(&csv, "t_s,hot_c\n0,500\n").unwrap();
     let out = Command::cargo_bin("heatbound")
         .unwrap()
-        .args(["demo", "--speed", "0", "--quiet", "--db"])
+        .args(["demo", "--speed", "300", "--quiet", "--db"])
         .arg(&csv)
         .output()
         .unwrap();

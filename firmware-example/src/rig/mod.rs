@@ -302,6 +302,8 @@ pub struct Rig {
     // Compensated sums: the value is `hi`, `lo` the rounding still owed.
     head_k: (f32, f32),
     cold_k: (f32, f32),
+    /// Rig time at which the fault was put right, if it was.
+    repaired_us: Option<u64>,
 }
 
 /// `hi + lo += inc`, Kahan–Babuška style: the small steps of a slow drift
@@ -361,6 +363,27 @@ impl Rig {
             t_us: 0,
             head_k: (t_h, 0.0),
             cold_k: (t_c, 0.0),
+            repaired_us: None,
+        }
+    }
+
+    /// Puts the scenario's fault right from now on, as a technician would
+    /// at the bench (reseats the thermocouple, reopens the coolant valve,
+    /// corrects the shunt setting): from this rig time the sensors read the
+    /// truth again and the coolant flows at its set point.
+    ///
+    /// ```
+    /// use heatbound_firmware_example::rig::{Rig, Scenario};
+    /// let mut rig = Rig::bench_stirling(Scenario::ThermocoupleDrift, 1);
+    /// rig.step(300.0);
+    /// let drifted = rig.truth().t_head_k - rig.sample(300_000).t_hot_k;
+    /// assert!(drifted > 100.0); // 50 K/min for three minutes
+    /// rig.repair();
+    /// assert!((rig.truth().t_head_k - rig.sample(300_000).t_hot_k).abs() < 5.0);
+    /// ```
+    pub fn repair(&mut self) {
+        if self.repaired_us.is_none() {
+            self.repaired_us = Some(self.t_us);
         }
     }
 
@@ -399,8 +422,9 @@ impl Rig {
     /// Coolant mass flow at rig time `t_s`, kg/s.
     fn coolant_flow_at(&self, t_s: f64) -> f32 {
         let m = self.params.coolant_flow_kg_s;
+        let repaired = self.repaired_us.is_some_and(|r| t_s * 1e6 >= r as f64);
         match self.scenario {
-            Scenario::CoolantLoss => {
+            Scenario::CoolantLoss if !repaired => {
                 let since = t_s - f64::from(scenario::FAULT_START_S);
                 let x = (since / f64::from(scenario::COOLANT_RAMP_S)).clamp(0.0, 1.0);
                 m * (1.0 - x as f32)
@@ -485,10 +509,10 @@ impl Rig {
         }
     }
 
-    /// Whether the scenario's fault is active now.
+    /// Whether the scenario's fault is active now: begun, not yet repaired.
     fn fault_active(&self) -> bool {
         match self.scenario.fault_start_s() {
-            Some(start) => self.time_s() >= f64::from(start),
+            Some(start) => self.time_s() >= f64::from(start) && self.repaired_us.is_none(),
             None => false,
         }
     }

@@ -1,27 +1,37 @@
 //! `heatbound demo`: the whole chain in one process, with no hardware.
 //!
 //! ```text
-//! sender thread:   sil::Simulation (thermocouple-drift, paced) --wire bytes--> TCP 127.0.0.1
+//! sender thread:   sil::Simulation (thermocouple-drift, paced) <--wire bytes--> TCP 127.0.0.1
 //! this thread:     TCP --> Ingest (decoder, link tracker, SQLite log, live lines)
+//!                  the operator's acknowledge --> Downlink (demo key) --> TCP --> Reply
 //! afterwards:      the log --> audit --> report; the log --> chart (PNG beside it); where both are
 //! ```
 //!
-//! The simulated bench rig runs the same controller code as the firmware
-//! (`Monitor<64, f32>`, `AlarmSet`, the wire encoder). Ten minutes of rig
-//! time play in about 20 s: the hot thermocouple starts to read low at
-//! 120 s, the apparent efficiency climbs past the Carnot bound of the
-//! readings, and `beyond_carnot` is raised.
+//! The simulated bench rig runs the same controller as the firmware
+//! (`control::Controller`: monitor, alarms, both link directions). Ten
+//! minutes of rig time play in about 20 s: the hot thermocouple starts to
+//! read low at 120 s, the apparent efficiency climbs past the Carnot bound
+//! of the readings, and `beyond_carnot` is raised and trips. The demo's
+//! operator acknowledges it over the link, as `heatbound ack` would; the
+//! trip output stays on while the condition holds. At 540 s the
+//! thermocouple is reseated, the readings fall back under the bound, the
+//! alarm clears and the trip output drops.
 use std::io::Write as _;
 use std::net::{Ipv4Addr, TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
+use std::sync::mpsc;
 use std::thread;
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
+use heatbound::wire::{CommandKey, ReplyCode};
 use heatbound_firmware_example::rig::{Rig, Scenario};
+use heatbound_host::downlink::{Answer, Ask, Downlink, Request};
+use heatbound_host::fanout::Inbox;
 use heatbound_host::ingest::{Ingest, LineStyle};
-use heatbound_host::link::{self, Bounds, End, now_ms};
+use heatbound_host::keyfile::KeyOrigin;
+use heatbound_host::link::{self, Bounds, Commands, End, now_ms};
 use heatbound_host::store::Log;
 
 use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
@@ -39,7 +49,8 @@ pub struct Args {
     /// The log database the demo writes.
     #[arg(long, value_name = "FILE", default_value = "heatbound-demo.sqlite")]
     pub db: PathBuf,
-    /// Rig time played per second of wall time (0 = as fast as possible).
+    /// Rig time played per second of wall time (the operator answers in
+    /// wall time, so at most 1000).
     #[arg(long, value_name = "F", default_value_t = 30.0)]
     pub speed: f64,
     /// Only print alarm events and the closing report, not a line per summary.
@@ -52,11 +63,16 @@ const SCENARIO: Scenario = Scenario::ThermocoupleDrift;
 /// Ten minutes of rig time: the drift starts at 120 s and the readings pass
 /// the Carnot bound about six minutes later.
 const DURATION_S: f64 = 600.0;
+/// When the thermocouple is reseated, s of rig time.
+const REPAIR_S: f64 = 540.0;
 
 /// Runs the subcommand.
 pub fn run(args: &Args) -> Result<()> {
-    if !(args.speed.is_finite() && args.speed >= 0.0) {
-        bail!("--speed {}: must be a finite factor ≥ 0", args.speed);
+    if !(args.speed.is_finite() && args.speed > 0.0 && args.speed <= 1000.0) {
+        bail!(
+            "--speed {}: must be a factor above 0 and at most 1000 (the demo's operator answers in wall time)",
+            args.speed
+        );
     }
     if heatbound_host::chart::default_out(&args.db) == args.db {
         bail!(
@@ -73,6 +89,7 @@ pub fn run(args: &Args) -> Result<()> {
     let options = SimOptions {
         scenario: SCENARIO,
         duration_s: DURATION_S,
+        repair_at_s: Some(REPAIR_S),
         ..SimOptions::default()
     };
     let config = sil::default_config(&Rig::bench_stirling(options.scenario, options.seed));
@@ -104,18 +121,49 @@ pub fn run(args: &Args) -> Result<()> {
     let (stream, _) = listener
         .accept()
         .context("the simulated controller did not connect")?;
+    // Reads wake every 100 ms, so the operator's commands go out promptly.
+    stream
+        .set_read_timeout(Some(Duration::from_millis(100)))
+        .context("cannot set a read timeout on the link")?;
+    let mut writer = stream
+        .try_clone()
+        .context("cannot write to the simulated controller")?;
 
-    let style = LineStyle::for_stdout(args.quiet);
+    // The operator reads every line, even when the demo prints only alarms.
+    let style = LineStyle::for_stdout(false);
     let mut ingest = Ingest::new(log, &format!("tcp:{addr}"), now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
+    // The simulation, the emulator and the demo take the public demo key.
+    let mut downlink = Downlink::new(&CommandKey::DEMO, KeyOrigin::Demo);
+    let (requests_tx, requests) = mpsc::channel();
+    let (answer_tx, answers) = mpsc::channel();
+    let mut operator = Operator {
+        requests: requests_tx,
+        answer: answer_tx,
+        answers,
+        asked: 0,
+        outcomes: Vec::new(),
+    };
     let started = Instant::now();
     let end = link::read_to_end(
         &mut ingest,
         &Bounds::default(),
         stream,
+        Some(&mut writer),
         &format!("tcp:{addr}"),
-        |line| println!("{line}"),
+        Some(Commands {
+            downlink: &mut downlink,
+            requests: &requests,
+            status: None,
+        }),
+        |line| {
+            if !args.quiet || is_event_line(line) {
+                println!("{line}");
+            }
+            operator.read(line);
+        },
     )?;
+    operator.settle();
     let totals = ingest
         .finish(now_ms())
         .with_context(|| format!("cannot close the run in {}", args.db.display()))?;
@@ -132,14 +180,26 @@ pub fn run(args: &Args) -> Result<()> {
         started.elapsed().as_secs_f64()
     );
     for e in &stats.alarm_events {
-        if e.kind == EventKind::Raised {
-            println!(
-                "  alarm raised at t = {:.1} s: {} ({})",
-                f64::from(e.t_ms) / 1000.0,
-                e.rule,
-                e.severity
-            );
-        }
+        println!(
+            "  alarm {} at t = {:.1} s: {} ({})",
+            e.kind,
+            f64::from(e.t_ms) / 1000.0,
+            e.rule,
+            e.severity
+        );
+    }
+    if let Some(t) = stats.repaired_at_ms {
+        println!(
+            "  the hot thermocouple was reseated at t = {:.1} s",
+            f64::from(t) / 1000.0
+        );
+    }
+    for (t, on) in &stats.trip_changes {
+        println!(
+            "  trip output {} at t = {:.1} s",
+            if *on { "on" } else { "off" },
+            f64::from(*t) / 1000.0
+        );
     }
 
     // Re-check what was logged, from the database, as `heatbound audit` would.
@@ -166,6 +226,15 @@ pub fn run(args: &Args) -> Result<()> {
     if !raised {
         bail!("the demo ended without raising beyond_carnot: the scenario did not play out");
     }
+    if !operator.all_applied() {
+        bail!(
+            "the demo's acknowledges were not all applied: {:?}",
+            operator.outcomes
+        );
+    }
+    if stats.trip_changes.last().is_none_or(|(_, on)| *on) {
+        bail!("the trip output did not drop after the fault was put right");
+    }
     if !report.trustworthy || end != End::Eof {
         bail!("the demo's own log did not pass its audit");
     }
@@ -190,23 +259,108 @@ fn fresh_log(db: &Path) -> Result<()> {
     Ok(())
 }
 
-/// Plays the simulation into `stream`, paced at `speed` times real time.
+/// Whether a live line is an alarm event or a command's reply.
+fn is_event_line(line: &str) -> bool {
+    ["raised ", "cleared ", "acknowledged ", "reply to command "]
+        .iter()
+        .any(|w| line.contains(w))
+}
+
+/// The demo's operator: acknowledges each trip alarm over the link as soon
+/// as it is raised, as an engineer at the bench would with `heatbound ack`.
+struct Operator {
+    requests: mpsc::Sender<Request>,
+    answer: mpsc::Sender<Answer>,
+    answers: mpsc::Receiver<Answer>,
+    asked: usize,
+    outcomes: Vec<Answer>,
+}
+
+impl Operator {
+    /// Reads one live line; asks, or reports an answer, when it is time.
+    fn read(&mut self, line: &str) {
+        if let Some(rule) = raised_trip(line) {
+            self.asked += 1;
+            println!("operator: acknowledging {rule} over the link");
+            let _ = self.requests.send(Request {
+                origin: "demo operator".into(),
+                ask: Ask::Acknowledge(Some(rule)),
+                timeout: Duration::from_secs(10),
+                answer: self.answer.clone(),
+            });
+        }
+        self.settle();
+    }
+
+    /// Reports the answers that have come.
+    fn settle(&mut self) {
+        while let Ok(answer) = self.answers.try_recv() {
+            match &answer {
+                Answer::Replied {
+                    counter,
+                    code,
+                    t_ms,
+                } => println!(
+                    "operator: command {counter} {} at t = {:.1} s ({})",
+                    code,
+                    f64::from(*t_ms) / 1000.0,
+                    code.meaning()
+                ),
+                Answer::Unavailable { message, .. } => println!("operator: {message}"),
+            }
+            self.outcomes.push(answer);
+        }
+    }
+
+    /// Whether every acknowledge asked for was applied, and there was one.
+    fn all_applied(&self) -> bool {
+        self.asked > 0
+            && self.outcomes.len() == self.asked
+            && self.outcomes.iter().all(|a| {
+                matches!(
+                    a,
+                    Answer::Replied {
+                        code: ReplyCode::Applied,
+                        ..
+                    }
+                )
+            })
+    }
+}
+
+/// The rule of a live line that says a trip alarm was raised.
+fn raised_trip(line: &str) -> Option<RuleId> {
+    let rest = line.split("raised ").nth(1)?;
+    let mut words = rest.split(' ');
+    let rule = RuleId::parse(words.next()?)?;
+    (words.next()? == "trip").then_some(rule)
+}
+
+/// Plays the simulation into `stream`, paced at `speed` times real time,
+/// answering the commands that come back on it.
 fn send(mut sim: Simulation, mut stream: TcpStream, speed: f64) -> Result<SimStats> {
+    let (inbox, feed) = Inbox::new();
+    feed.listen_to(
+        stream
+            .try_clone()
+            .context("cannot read commands from the host")?,
+    );
     let start = Instant::now();
     let mut frames = Vec::new();
     let mut bytes = Vec::new();
     while let Some(t_ms) = sim.next_tick(&mut frames) {
+        for command in inbox.take() {
+            sim.receive(&command, &mut frames);
+        }
         for frame in frames.drain(..) {
             sil::encode_into(&frame, &mut bytes)?;
         }
         if bytes.is_empty() {
             continue;
         }
-        if speed > 0.0 {
-            let due = Duration::from_secs_f64(f64::from(t_ms) / 1000.0 / speed);
-            if let Some(wait) = due.checked_sub(start.elapsed()) {
-                thread::sleep(wait);
-            }
+        let due = Duration::from_secs_f64(f64::from(t_ms) / 1000.0 / speed);
+        if let Some(wait) = due.checked_sub(start.elapsed()) {
+            thread::sleep(wait);
         }
         stream
             .write_all(&bytes)
@@ -214,5 +368,8 @@ fn send(mut sim: Simulation, mut stream: TcpStream, speed: f64) -> Result<SimSta
         bytes.clear();
     }
     stream.flush().context("the host closed the link")?;
+    // Closes the connection for the reader of commands too, so the host
+    // sees the end of the stream.
+    let _ = stream.shutdown(std::net::Shutdown::Both);
     Ok(sim.stats().clone())
 }

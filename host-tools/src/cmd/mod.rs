@@ -5,5 +5,6 @@ pub mod chart;
 pub mod convert;
 pub mod cycle;
 pub mod demo;
+pub mod operate;
 pub mod simulate;
 pub mod watch;

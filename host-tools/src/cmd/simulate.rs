@@ -5,11 +5,15 @@
 //! ```text
 //! options --> sil::Simulation --> frames --> wire::encode --> sink (file | stdout | TCP)
 //!                                                 (paced at F x real time if asked)
+//! TCP peers' commands --> Inbox --> Simulation::receive --> Reply, events, Hello --> sink
 //! run summary + caution --> stderr
 //! ```
 //!
 //! The stream is deterministic: the same options and seed give the same
-//! bytes, whatever the pacing or the sink.
+//! bytes, whatever the pacing or the sink, as long as no command arrives.
+//! Over TCP (`--listen`, `--connect`) the simulated controller answers
+//! commands as a real one would, sealed with `--key-file` or, without one,
+//! the public demo key.
 use std::fs::File;
 use std::io::{BufWriter, IsTerminal as _, Write};
 use std::net::{IpAddr, Ipv4Addr, TcpListener, TcpStream};
@@ -21,7 +25,9 @@ use heatbound::alarm::EventKind;
 use heatbound::wire::Frame;
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
-use heatbound_host::fanout::Fanout;
+use heatbound::wire::RigId;
+use heatbound_host::fanout::{Fanout, Inbox};
+use heatbound_host::keyfile;
 use heatbound_host::sil::{self, SimOptions, Simulation};
 
 /// Arguments of `heatbound simulate`.
@@ -76,6 +82,18 @@ pub struct Args {
         default_value_t = 0.0
     )]
     pub speed: f64,
+    /// Put the scenario's fault right at this rig time, seconds (reseat the
+    /// thermocouple, reopen the coolant valve, correct the shunt setting).
+    #[arg(long, value_name = "S")]
+    pub repair_at_s: Option<f64>,
+    /// The rig id the simulated controller announces (up to 16 printable ASCII characters).
+    #[arg(long, value_name = "ID", default_value = sil::RIG_ID)]
+    pub rig_id: String,
+    /// The command key the simulated controller accepts: a file of 64 hex
+    /// digits readable by you alone (default: $HEATBOUND_KEY_FILE, else the
+    /// public demo key).
+    #[arg(long, value_name = "FILE")]
+    pub key_file: Option<PathBuf>,
 }
 
 fn parse_scenario(s: &str) -> Result<Scenario, String> {
@@ -88,25 +106,47 @@ pub fn run(args: &Args) -> Result<()> {
     if !(f.is_finite() && f >= 0.0) {
         bail!("--speed {f}: must be a finite factor ≥ 0");
     }
+    let Ok(rig_id) = RigId::new(&args.rig_id) else {
+        bail!(
+            "--rig-id {}: a rig id is at most 16 printable ASCII characters",
+            heatbound_host::term::excerpt(&args.rig_id, 40)
+        );
+    };
     let options = SimOptions {
         scenario: args.scenario,
         seed: args.seed,
         rate_hz: args.rate_hz,
         duration_s: args.duration_s,
         summary_period_s: args.summary_period_s,
+        rig_id,
+        repair_at_s: args.repair_at_s,
     };
+    if let Some(r) = args.repair_at_s
+        && !(r.is_finite() && r >= 0.0)
+    {
+        bail!("--repair-at-s {r}: must be a finite number of seconds ≥ 0");
+    }
+    let (key, key_origin) = keyfile::resolve(args.key_file.as_deref())?;
     let config = match &args.config {
         Some(path) => heatbound_host::rigfile::load_config(Some(path))?,
         None => sil::default_config(&Rig::bench_stirling(args.scenario, args.seed)),
     };
-    let mut sim = Simulation::new(&options, &config)?;
-    let (mut sink, target) = open_sink(args)?;
+    let mut sim = Simulation::with_key(&options, &config, Some(&key))?;
+    let (mut sink, target, inbox) = open_sink(args)?;
+    if inbox.is_some() {
+        eprintln!("heatbound simulate: {}", key_origin.describe());
+    }
 
     let start = Instant::now();
     let mut frames: Vec<Frame> = Vec::with_capacity(8);
     let mut bytes: Vec<u8> = Vec::with_capacity(4096);
     let mut written: u64 = 0;
     while let Some(t_ms) = sim.next_tick(&mut frames) {
+        if let Some(inbox) = &inbox {
+            for command in inbox.take() {
+                sim.receive(&command, &mut frames);
+            }
+        }
         for frame in &frames {
             sil::encode_into(frame, &mut bytes)?;
         }
@@ -137,8 +177,9 @@ pub fn run(args: &Args) -> Result<()> {
     Ok(())
 }
 
-/// Opens the stream's destination; returns it with a name for messages.
-fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
+/// Opens the stream's destination; returns it with a name for messages,
+/// and where commands from TCP peers arrive.
+fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String, Option<Inbox>)> {
     if let Some(port) = args.listen {
         let listener = TcpListener::bind((args.bind, port))
             .with_context(|| format!("cannot listen on {}:{port}", args.bind))?;
@@ -146,21 +187,36 @@ fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
         eprintln!("heatbound simulate: listening on {addr}");
         // Every client that connects is served; one that stops reading is
         // dropped, so it cannot stall the run.
-        let fanout = Fanout::accept_first(listener, |n| eprintln!("heatbound simulate: {n}"))
-            .with_context(|| format!("accepting a client on {addr}"))?;
-        return Ok((Box::new(fanout), format!("the clients of {addr}")));
+        let (inbox, feed) = Inbox::new();
+        let fanout = Fanout::accept_first(listener, Some(feed), |n| {
+            eprintln!("heatbound simulate: {n}")
+        })
+        .with_context(|| format!("accepting a client on {addr}"))?;
+        return Ok((
+            Box::new(fanout),
+            format!("the clients of {addr}"),
+            Some(inbox),
+        ));
     }
     if let Some(peer) = &args.connect {
         let stream = TcpStream::connect(peer.as_str())
             .with_context(|| format!("cannot connect to {peer}"))?;
         let _ = stream.set_nodelay(true);
-        return Ok((Box::new(BufWriter::new(stream)), peer.clone()));
+        let (inbox, feed) = Inbox::new();
+        if let Ok(reader) = stream.try_clone() {
+            feed.listen_to(reader);
+        }
+        return Ok((Box::new(BufWriter::new(stream)), peer.clone(), Some(inbox)));
     }
     match &args.out {
         Some(path) if path.as_os_str() != "-" => {
             let file = File::create(path)
                 .with_context(|| format!("{}: cannot create the file", path.display()))?;
-            Ok((Box::new(BufWriter::new(file)), path.display().to_string()))
+            Ok((
+                Box::new(BufWriter::new(file)),
+                path.display().to_string(),
+                None,
+            ))
         }
         explicit => {
             let stdout = std::io::stdout();
@@ -170,7 +226,11 @@ fn open_sink(args: &Args) -> Result<(Box<dyn Write>, String)> {
                      --out - or redirect stdout"
                 );
             }
-            Ok((Box::new(BufWriter::new(stdout.lock())), "stdout".to_owned()))
+            Ok((
+                Box::new(BufWriter::new(stdout.lock())),
+                "stdout".to_owned(),
+                None,
+            ))
         }
     }
 }
@@ -194,11 +254,12 @@ fn run_summary(args: &Args, sim: &Simulation, bytes: u64, target: &str) -> Strin
     );
     let _ = writeln!(
         out,
-        "  {} frames ({} hello, {} summary, {} event), {bytes} bytes to {target}",
+        "  {} frames ({} hello, {} summary, {} event, {} reply), {bytes} bytes to {target}",
         s.frames(),
         s.hellos,
         s.summaries,
-        s.events
+        s.events,
+        s.replies
     );
     let raised: Vec<String> = s
         .alarm_events

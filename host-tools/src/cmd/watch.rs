@@ -13,17 +13,27 @@
 //! missing port is an error at once, and only a link that worked once is
 //! reconnected.
 //!
+//! With `--serial` or `--tcp` the link is two-way: this process opens the
+//! control socket ([`heatbound_host::control`]) through which `heatbound
+//! ack`, `configure` and `new-run` reach the controller, seals their
+//! commands with the rig's key (`--key-file`, `$HEATBOUND_KEY_FILE`, else
+//! the public demo key, said so) and logs each with its reply.
+//!
 //! SIGINT and SIGTERM end the run cleanly: the loop notices within one read
 //! timeout, commits and closes the run. A second signal exits at once; the
 //! batches already committed survive (WAL).
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex, mpsc};
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 
+use heatbound_host::control::{self, LinkStatus};
+use heatbound_host::downlink::Downlink;
 use heatbound_host::ingest::{Ingest, LineStyle};
-use heatbound_host::link::{self, Bounds, LinkOptions, Source, now_ms};
+use heatbound_host::keyfile::{self, KeyOrigin};
+use heatbound_host::link::{self, Bounds, Commands, LinkOptions, Source, now_ms};
 use heatbound_host::store::{DEFAULT_DB, Log};
 
 /// Set by the SIGINT/SIGTERM handler.
@@ -63,6 +73,10 @@ pub struct Args {
     /// Seconds the first connection of --serial or --tcp may take to come up.
     #[arg(long, value_name = "S", default_value_t = 10.0)]
     pub connect_timeout_s: f64,
+    /// The rig's command key: a file of 64 hex digits readable by you alone
+    /// (default: $HEATBOUND_KEY_FILE, else the public demo key).
+    #[arg(long, value_name = "FILE")]
+    pub key_file: Option<PathBuf>,
 }
 
 /// A duration option in seconds, checked.
@@ -94,6 +108,8 @@ pub fn run(args: &Args) -> Result<()> {
         (None, None) => None,
     };
     link::check_log_target(&args.db)?;
+    // The key is checked up front too: a key file others can read is refused.
+    let (key, key_origin) = keyfile::resolve(args.key_file.as_deref())?;
     let name = match (&source, &args.input) {
         (Some(s), _) => s.name(),
         (None, Some(p)) if p.as_os_str() == "-" => "stdin".to_string(),
@@ -127,14 +143,53 @@ pub fn run(args: &Args) -> Result<()> {
     let print = |line: &str| println!("{line}");
     let end = match (&source, input) {
         (Some(source), _) => {
-            link::keep_reading(&mut ingest, &bounds, source, options, print, |n| {
-                eprintln!("heatbound watch: {n}")
-            })
+            let mut downlink = Downlink::new(&key, key_origin.clone());
+            let (requests_tx, requests) = mpsc::channel();
+            let status = Arc::new(Mutex::new(LinkStatus {
+                pid: std::process::id(),
+                source: name.clone(),
+                db: args.db.display().to_string(),
+                key: match &key_origin {
+                    KeyOrigin::File(p) => format!("file {}", p.display()),
+                    KeyOrigin::Demo => "demo".into(),
+                },
+                ..LinkStatus::default()
+            }));
+            let server = control::Server::start(requests_tx, Arc::clone(&status))?;
+            eprintln!("heatbound watch: {}", key_origin.describe());
+            eprintln!(
+                "heatbound watch: commands (`heatbound ack`, `configure`, `new-run`) reach the controller through {}",
+                server.path().display()
+            );
+            let commands = Commands {
+                downlink: &mut downlink,
+                requests: &requests,
+                status: Some(status),
+            };
+            let end = link::keep_reading(
+                &mut ingest,
+                &bounds,
+                source,
+                options,
+                Some(commands),
+                print,
+                |n| eprintln!("heatbound watch: {n}"),
+            );
+            drop(server);
+            end
         }
-        (None, Some(file)) => link::read_to_end(&mut ingest, &bounds, file, &name, print),
-        (None, None) => {
-            link::read_to_end(&mut ingest, &bounds, std::io::stdin().lock(), &name, print)
+        (None, Some(file)) => {
+            link::read_to_end(&mut ingest, &bounds, file, None, &name, None, print)
         }
+        (None, None) => link::read_to_end(
+            &mut ingest,
+            &bounds,
+            std::io::stdin().lock(),
+            None,
+            &name,
+            None,
+            print,
+        ),
     };
     let end = match end {
         Ok(end) => end,
