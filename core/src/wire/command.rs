@@ -222,6 +222,41 @@ impl Authenticator {
     }
 }
 
+/// HMAC-SHA-256 (RFC 2104 with FIPS 180-4 SHA-256) of `message` under
+/// `key`: the function every command tag is the first [`MAC_LEN`] bytes of
+/// (over the domain prefix, the rig id, the session and the command).
+/// Public so it can be checked against published test vectors.
+///
+/// ```
+/// // RFC 4231, test case 2.
+/// let mac = heatbound::wire::hmac_sha256(b"Jefe", b"what do ya want for nothing?");
+/// assert_eq!(mac[..4], [0x5b, 0xdc, 0xc1, 0x46]);
+/// ```
+pub fn hmac_sha256(key: &[u8], message: &[u8]) -> [u8; 32] {
+    let mut mac = <Hmac<Sha256> as KeyInit>::new_from_slice(key)
+        .unwrap_or_else(|_| <Hmac<Sha256> as KeyInit>::new(&Default::default()));
+    mac.update(message);
+    let full = mac.finalize().into_bytes();
+    let mut out = [0u8; 32];
+    for (o, f) in out.iter_mut().zip(full.iter()) {
+        *o = *f;
+    }
+    out
+}
+
+/// The bytes a command's tag covers, before the command itself: the
+/// domain prefix, the rig id and the session, as [`Authenticator`] feeds
+/// them.
+pub fn tag_prefix(to: &Addressee) -> [u8; DOMAIN.len() + RigId::LEN + 4] {
+    let mut out = [0u8; DOMAIN.len() + RigId::LEN + 4];
+    let (domain, rest) = out.split_at_mut(DOMAIN.len());
+    domain.copy_from_slice(DOMAIN);
+    let (rig, session) = rest.split_at_mut(RigId::LEN);
+    rig.copy_from_slice(&to.rig_id.0);
+    session.copy_from_slice(&to.session.to_le_bytes());
+    out
+}
+
 /// Writes `frame`, sealed by `auth` for `to` (or with an all-zero tag when
 /// `auth` is `None`, which only a Hello request survives), COBS-framed and
 /// terminated by `0x00`, to the start of `buf`. Returns the bytes written.

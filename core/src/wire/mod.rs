@@ -49,7 +49,7 @@ mod tests;
 pub use codec::{decode, encode};
 pub use command::{
     Addressee, Authenticator, Command, CommandFrame, CommandKey, CommandReceiver, KeyError,
-    Received, ReceiverStats, decode_command, encode_command,
+    Received, ReceiverStats, decode_command, encode_command, hmac_sha256, tag_prefix,
 };
 pub use decoder::{Decoder, DecoderStats};
 pub use error::{FrameError, Malformed, WireError};

@@ -3,20 +3,46 @@
 //!
 //! Where it sits: the board end of the data flow. The [`App`] runs
 //! unchanged over the [simulated bus](heatbound_firmware_example::sim_bus)
-//! devices and streams wire frames out of UART0; diagnostics go to
-//! semihosting stderr, never to the UART.
+//! devices and streams wire frames out of UART0; the host's commands come
+//! in on UART0 too. Diagnostics go to semihosting stderr, never to the
+//! UART.
 //!
 //! ```text
-//! SimBench (rig, RefCell) --SPI/I2C bytes, pulses--> App::tick(t_ms) --> wire frames --> UART0 (0x4000_4000)
+//! SimBench (rig, RefCell) --SPI/I2C bytes, pulses--> App::tick(t_ms) --> wire frames --> UART0 TX (0x4000_4000)
+//! UART0 RX --polled between samples, never waited for--> App::receive(bytes, t_ms) --> Reply (+ Events, Hello)
 //!                                                      \--> heprintln!: run summary, stack high-water mark
 //! ```
+//!
+//! ## Hello and commands
+//! The Hello names the rig `qemu-mps2-an386`, says the controller holds a
+//! command key, and carries the boot's session number. The key is the
+//! public [`CommandKey::DEMO`](heatbound::wire::CommandKey::DEMO): this is
+//! an emulator build, not a real controller, and anyone can seal commands
+//! for it. The session is not drawn at boot either: QEMU offers no random
+//! source, so it is derived from `HEATBOUND_SEED` at build time
+//! ([`build_env::SESSION`]; seed 1 gives `0x5EED5EEC`), and every boot of
+//! one ELF has the same one. A host learns it, as from any controller, from
+//! the Hello (send a Hello request, counter 0 and no tag, to get one at any
+//! time).
+//!
+//! Received bytes are handed to the App as soon as the loop sees them, at
+//! most 32 at a time, stamped with the latest sample time: in `endless`
+//! mode continuously while it waits for the next sample (a command is
+//! answered within the sample period), in bounded mode once per sample. A
+//! flood of bytes delays a sample by at most one such chunk, and a chunk
+//! holds at most two whole commands (18 bytes at the least), so at most two
+//! MAC checks. QEMU 7.2's model of this UART holds one byte, and reading it
+//! does not ask the chardev for the next: that comes when QEMU's main loop
+//! next runs. So in bounded mode, which runs faster than real time, a
+//! 19-byte command arrives over about 200 samples of rig time (measured).
 //!
 //! Modes (cargo features):
 //! - default: simulate `HEATBOUND_DURATION_S` (600) s of rig time at 10 Hz
 //!   as fast as the emulator runs (`t_ms` is rig time, 100 ms per tick),
 //!   then exit QEMU with status 0;
 //! - `endless`: run until stopped, paced by SysTick to 10 Hz ×
-//!   `HEATBOUND_SPEEDUP` of emulated time (real time without `-icount`);
+//!   `HEATBOUND_SPEEDUP` of emulated time (real time without `-icount`),
+//!   polling UART0's receiver while it waits;
 //! - `measure`: no App; instruction counts of the per-sample work
 //!   ([`measure`]), then exit.
 //!
@@ -90,7 +116,7 @@ mod run {
     use cortex_m_semihosting::heprintln;
     use heatbound::alarm::RuleId;
     use heatbound::config::RigConfig;
-    use heatbound::wire::RigId;
+    use heatbound::wire::{CommandKey, ReplyCode, RigId};
     use heatbound_firmware_example::app::{App, AppConfig, Devices};
     use heatbound_firmware_example::rig::Scenario;
     use heatbound_firmware_example::sim_bus::{
@@ -98,7 +124,7 @@ mod run {
     };
 
     use crate::build_env;
-    use crate::uart::Uart0;
+    use crate::uart::{self, Uart0Rx, Uart0Tx};
 
     /// Monitor window, samples.
     const WINDOW: usize = 64;
@@ -112,13 +138,17 @@ mod run {
     /// The rig identifier sent in the Hello.
     const RIG_ID: &str = "qemu-mps2-an386";
 
+    /// Received bytes handed to the App per call at most: bounds the time
+    /// one poll can take from sampling, whatever the host sends.
+    const RX_CHUNK: usize = 32;
+
     /// The App on this board.
     type BoardApp = App<
         SimThermocouple<'static>,
         SimThermocouple<'static>,
         SimI2c<'static>,
         SimTripPin,
-        Uart0,
+        Uart0Tx,
         SimCalorimeter<'static>,
         WINDOW,
     >;
@@ -137,18 +167,26 @@ mod run {
         };
         let bench: &'static RefCell<SimBench> = bench;
         let sim = sim_devices::<0>(bench);
+        let Some((uart_tx, mut uart_rx)) = uart::uart0(BAUDDIV) else {
+            crate::fail("UART0 already taken");
+        };
         let devices = Devices {
             hot_spi: sim.hot_spi,
             cold_spi: sim.cold_spi,
             i2c: sim.i2c,
             trip: sim.trip,
-            uart: Uart0::new(BAUDDIV),
+            uart: uart_tx,
             heat_out: sim.heat_out,
         };
         let Ok(rig_id) = RigId::new(RIG_ID) else {
             crate::fail("bad rig id");
         };
-        let config = AppConfig::bench(RigConfig::default(), rig_id);
+        let mut config = AppConfig::bench(RigConfig::default(), rig_id);
+        // An emulator build, not a real controller: the public demo key, and
+        // a session from the build-time seed (no random source in QEMU; see
+        // `build_env::SESSION`).
+        config.key = Some(CommandKey::DEMO);
+        config.session = build_env::SESSION;
         let Ok(app) = App::new(&config, devices) else {
             crate::fail("the configuration does not suit the monitor");
         };
@@ -156,9 +194,10 @@ mod run {
             crate::fail("app already built");
         };
         heprintln!(
-            "heatbound-mps2-an386: scenario {} seed {}",
+            "heatbound-mps2-an386: scenario {} seed {} session {} (demo key)",
             scenario.name(),
-            build_env::SEED
+            build_env::SEED,
+            build_env::SESSION
         );
         #[cfg(feature = "defmt")]
         defmt::info!("boot: scenario {=str}", scenario.name());
@@ -170,7 +209,15 @@ mod run {
         app.start(0);
         let mut t_ms: u32 = 0;
         loop {
-            pacer.wait();
+            // Until the next sample is due (at once in bounded mode), hand
+            // the App what UART0 has received, one bounded chunk per poll,
+            // so a command never delays a sample by more than one chunk.
+            loop {
+                receive(app, &mut uart_rx, t_ms);
+                if pacer.due() {
+                    break;
+                }
+            }
             t_ms = t_ms.wrapping_add(DT_MS);
             if let Ok(mut b) = bench.try_borrow_mut() {
                 b.advance_to(t_ms);
@@ -182,6 +229,16 @@ mod run {
         }
         report(app, t_ms);
         crate::finish()
+    }
+
+    /// Hands the App at most [`RX_CHUNK`] bytes that UART0 holds, stamped
+    /// with the latest sample time; never waits for a byte.
+    fn receive(app: &mut BoardApp, rx: &mut Uart0Rx, t_ms: u32) {
+        let mut buf = [0u8; RX_CHUNK];
+        let n = rx.read_available(&mut buf);
+        if let Some(bytes) = buf.get(..n).filter(|b| !b.is_empty()) {
+            app.receive(bytes, t_ms);
+        }
     }
 
     /// The run's summary on semihosting stderr.
@@ -201,14 +258,26 @@ mod run {
             app.trip_output(),
             app.alarms().is_active(RuleId::BeyondCarnot)
         );
+        let rx = app.controller().receiver_stats();
+        let replies = app.controller().stats();
+        let applied = replies.count(ReplyCode::Applied);
+        let refused = replies.replies.iter().sum::<u32>().saturating_sub(applied);
+        heprintln!(
+            "run.rx_bytes={} commands={} crc_errors={} applied={} refused={}",
+            stats.rx_bytes,
+            rx.commands,
+            rx.crc_errors,
+            applied,
+            refused
+        );
         #[cfg(feature = "defmt")]
         defmt::info!("done: {=u32} frames", stats.frames_sent);
     }
 
     /// Paces the loop in `endless` mode: SysTick wraps once per sample
     /// period of emulated time (25 MHz core clock). Without `-icount`
-    /// QEMU's emulated clock follows real time. In bounded mode it does
-    /// nothing: rig time is not real time.
+    /// QEMU's emulated clock follows real time. In bounded mode a sample is
+    /// always due: rig time is not real time.
     struct Pacer {
         #[cfg_attr(not(feature = "endless"), allow(dead_code))]
         syst: SYST,
@@ -233,10 +302,16 @@ mod run {
             Pacer { syst }
         }
 
-        fn wait(&mut self) {
+        /// Whether the next sample is due; polled, never waits. In
+        /// `endless` mode it reads (and clears) SysTick's wrap flag.
+        fn due(&mut self) -> bool {
             #[cfg(feature = "endless")]
-            while !self.syst.has_wrapped() {
-                core::hint::spin_loop();
+            {
+                self.syst.has_wrapped()
+            }
+            #[cfg(not(feature = "endless"))]
+            {
+                true
             }
         }
     }

@@ -10,6 +10,9 @@
 //! | `HEATBOUND_MEASURE_SAMPLES` | 5900 | `measure` builds: samples measured after the warm-up |
 //!
 //! A malformed number fails the build (const evaluation).
+//!
+//! The controller's session number ([`SESSION`]) is derived from the seed:
+//! QEMU gives the firmware no random source.
 
 /// The scenario's name.
 pub const SCENARIO: &str = match option_env!("HEATBOUND_SCENARIO") {
@@ -19,6 +22,21 @@ pub const SCENARIO: &str = match option_env!("HEATBOUND_SCENARIO") {
 
 /// The rig's noise seed.
 pub const SEED: u64 = parse_u32(option_env!("HEATBOUND_SEED"), 1) as u64;
+
+/// The session number the emulated controller announces in its Hello and
+/// authenticates commands for.
+///
+/// A real controller draws a fresh one from a random source at every boot,
+/// so a command recorded in one session is refused in the next. QEMU's
+/// mps2-an386 offers no random source, so here it is derived from
+/// [`SEED`] at build time (the same mixing as the host's simulation,
+/// `host-tools/src/sil.rs`): every boot of one ELF has the same session,
+/// and a command recorded against one boot is accepted again by the next
+/// boot of the same ELF, whose counter starts over. It is not secret
+/// either, any more than the demo key the emulator builds use: the
+/// emulator demonstrates the protocol, it protects nothing.
+#[cfg_attr(feature = "measure", allow(dead_code))]
+pub const SESSION: u32 = (SEED ^ (SEED >> 32)) as u32 ^ 0x5EED_5EED;
 
 /// Rig time simulated in bounded mode, s.
 #[cfg_attr(feature = "endless", allow(dead_code))]

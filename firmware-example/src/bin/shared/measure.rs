@@ -15,7 +15,18 @@
 //! ```text
 //! Rig (thermocouple-drift, seed 1) --sample--> [ Monitor::push + AlarmSet::update ]  per sample
 //!                           every 10th sample --> [ Summary::from_monitor + wire::encode ]
+//! encode_command(Acknowledge(None), demo key) --bytes--> [ Controller::receive ]  per command
+//!                                                          (CRC, COBS, decode, HMAC check, counter, Reply)
 //! ```
+//!
+//! The commands are built on the device, outside the timed region, each
+//! with a fresh counter: one sealed with [`CommandKey::DEMO`] for the
+//! controller's rig and session (accepted and applied), one sealed with
+//! another key (refused: failed authentication; the MAC check costs the
+//! same whatever the key, so this is the cost of refusing a forged
+//! command). The timed region is the whole of `Controller::receive`,
+//! including the callback that encodes its Reply into a buffer, as the
+//! firmware's App does before writing it to the UART.
 //!
 //! These are instruction counts, not cycles: QEMU models no pipeline, wait
 //! states or FPU latency.
@@ -27,8 +38,12 @@ use cortex_m::peripheral::SYST;
 use cortex_m::peripheral::syst::SystClkSource;
 use heatbound::alarm::AlarmSet;
 use heatbound::config::RigConfig;
+use heatbound::control::{Controller, ControllerSettings};
 use heatbound::monitor::{Monitor, Pushed, Sample};
-use heatbound::wire::{self, Frame, MAX_FRAME_LEN, Summary};
+use heatbound::wire::{
+    self, Addressee, Authenticator, Command, CommandFrame, CommandKey, Frame, MAX_COMMAND_LEN,
+    MAX_FRAME_LEN, ReplyCode, RigId, Summary,
+};
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
 use crate::hw;
@@ -49,6 +64,31 @@ const DT_MS: u32 = 100;
 
 /// Summaries are built every this many samples (1 s at 10 Hz).
 const SUMMARY_EVERY: u32 = 10;
+
+/// Commands timed of each kind (accepted, refused). Their counters run
+/// 1 to 120, so every counter is a one-byte varint and every command is
+/// the same length.
+const COMMANDS: u32 = 60;
+
+/// The rig id the measured controller announces. It does not change the
+/// cost: the tag covers it as its 16 padded bytes, whatever it says.
+const COMMAND_RIG_ID: &str = "measure";
+
+/// The measured controller's session (any: the tag covers it as 4 bytes).
+const COMMAND_SESSION: u32 = 0x5EED_5EEC;
+
+/// The measured controller's window, samples: 8, not the firmware's 64.
+/// Building a `Controller<64>` puts about 10 KB of temporaries on the stack
+/// (the monitor's `Result` and the controller's), which left the M0 about
+/// 650 bytes of its 16 KiB. A command never touches the monitor, so only
+/// code layout differs: on mps2-an386 a `Controller<64>` measured 60
+/// instructions (0.8 %) fewer for an accepted command and 80 fewer for a
+/// refused one.
+const COMMAND_WINDOW: usize = 8;
+
+/// A key that is not the controller's: 32 bytes, any value but the demo
+/// key's.
+const WRONG_KEY: CommandKey = CommandKey::from_bytes([0xA5; CommandKey::LEN]);
 
 /// Statistics of a measured quantity, in SysTick ticks.
 #[derive(Clone, Copy, Debug)]
@@ -118,6 +158,13 @@ pub struct Report {
     pub sqrtf: Instructions,
     /// `Summary::from_monitor` + `wire::encode`, per summary.
     pub summary_encode: Instructions,
+    /// `Controller::receive` of a sealed `Acknowledge(None)`, accepted and
+    /// applied (no alarm active, so its only frame is the Reply), on a
+    /// controller with a [`COMMAND_WINDOW`]-sample window.
+    pub command_ack: Instructions,
+    /// `Controller::receive` of the same command sealed with another key,
+    /// refused with `failed_authentication`.
+    pub command_bad_mac: Instructions,
     /// The window capacity measured.
     pub window: usize,
     /// Samples the monitor counted invalid (0 on this stream).
@@ -182,6 +229,7 @@ pub fn run<const N: usize>(syst: SYST) -> Report {
     let config = RigConfig::default();
     let (push_update, summary_encode, invalid) = rig_stream::<N>(&counter, &config);
     let push_update_synthetic = synthetic::<N>(&counter, &config);
+    let (command_ack, command_bad_mac) = commands(&counter, &config);
     let mut sqrt = Ticks::new();
     for i in 0..256u32 {
         let x = black_box(300.0 + i as f32);
@@ -196,6 +244,8 @@ pub fn run<const N: usize>(syst: SYST) -> Report {
         summary_encode: scale(&summary_encode, overhead, per_tick),
         push_update_synthetic: scale(&push_update_synthetic, overhead, per_tick),
         sqrtf: scale(&sqrt, overhead, per_tick),
+        command_ack: scale(&command_ack, overhead, per_tick),
+        command_bad_mac: scale(&command_bad_mac, overhead, per_tick),
         window: N,
         invalid,
     }
@@ -283,6 +333,81 @@ fn synthetic<const N: usize>(counter: &Counter, config: &RigConfig) -> Ticks {
     ticks
 }
 
+/// `Controller::receive` ticks of [`COMMANDS`] sealed `Acknowledge(None)`
+/// commands under the demo key (each applied) and as many under
+/// [`WRONG_KEY`] (each refused), alternating, each with a fresh counter and
+/// built before its timed region. Panics (QEMU exits with 1) if any reply
+/// is not the one expected, so a wrong path is never reported as a cost.
+/// Not inlined, so its controller is off the stack afterwards.
+#[inline(never)]
+fn commands(counter: &Counter, config: &RigConfig) -> (Ticks, Ticks) {
+    let Ok(rig_id) = RigId::new(COMMAND_RIG_ID) else {
+        panic!("the measurement's rig id is valid");
+    };
+    let settings = ControllerSettings {
+        rig_id,
+        firmware_version: (0, 1, 0),
+        sample_period_ms: DT_MS,
+        summary_period_ms: SUMMARY_EVERY * DT_MS,
+        hello_period_ms: 0,
+    };
+    let key = CommandKey::DEMO;
+    let config = RigConfig {
+        window_samples: COMMAND_WINDOW as u32,
+        ..*config
+    };
+    // Borrowed where it was built, not moved out of the `Result`: one copy
+    // of the controller fewer on the stack.
+    let mut built =
+        Controller::<COMMAND_WINDOW>::new(&settings, &config, Some(&key), COMMAND_SESSION);
+    let Ok(controller) = built.as_mut() else {
+        panic!("the default configuration suits the controller");
+    };
+    let to = Addressee {
+        rig_id,
+        session: COMMAND_SESSION,
+    };
+    let good = Authenticator::new(&key);
+    let wrong = Authenticator::new(&WRONG_KEY);
+    let mut reply = [0u8; MAX_FRAME_LEN];
+    let mut out = |f: &Frame| {
+        let _ = black_box(wire::encode(f, &mut reply));
+    };
+    controller.start(0, &mut out);
+
+    let mut ack = Ticks::new();
+    let mut bad_mac = Ticks::new();
+    let mut buf = [0u8; MAX_COMMAND_LEN];
+    for i in 1..=2 * COMMANDS {
+        let accepted = i % 2 == 1;
+        let frame = CommandFrame {
+            counter: i,
+            command: Command::Acknowledge(None),
+        };
+        let auth = if accepted { &good } else { &wrong };
+        let Ok(n) = wire::encode_command(&frame, Some(auth), &to, &mut buf) else {
+            panic!("an acknowledge fits a command buffer");
+        };
+        let bytes = black_box(buf.get(..n).unwrap_or(&[]));
+        let t_ms = i * DT_MS;
+        let (ticks, ()) = counter.time(|| controller.receive(bytes, t_ms, &mut out));
+        if accepted {
+            ack.add(ticks);
+        } else {
+            bad_mac.add(ticks);
+        }
+    }
+    let stats = controller.stats();
+    let replies: u32 = stats.replies.iter().sum();
+    if stats.count(ReplyCode::Applied) != COMMANDS
+        || stats.count(ReplyCode::FailedAuthentication) != COMMANDS
+        || replies != 2 * COMMANDS
+    {
+        panic!("the measured commands were not answered as expected");
+    }
+    (ack, bad_mac)
+}
+
 /// Prints `report` to semihosting stderr as `key=value` lines that
 /// `scripts/measure.sh` parses.
 pub fn print(board: &str, report: &Report) {
@@ -306,6 +431,8 @@ pub fn print(board: &str, report: &Report) {
         ("summary_encode", &report.summary_encode),
         ("push_update_synthetic", &report.push_update_synthetic),
         ("libm_sqrtf", &report.sqrtf),
+        ("command_ack", &report.command_ack),
+        ("command_bad_mac", &report.command_bad_mac),
     ] {
         heprintln!(
             "measure.{}: n={} mean={} min={} max={}",
