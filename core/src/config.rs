@@ -263,23 +263,53 @@ impl core::fmt::Display for ConfigError {
 
 impl core::error::Error for ConfigError {}
 
-fn check(
-    value: Option<f64>,
-    default: f64,
-    key: &'static str,
-    expected: &'static str,
-    ok: impl Fn(f64) -> bool,
-) -> Result<f64, ConfigError> {
-    let v = value.unwrap_or(default);
-    if v.is_finite() && ok(v) {
-        Ok(v)
+/// What a numeric setting must be.
+#[derive(Clone, Copy)]
+enum Expect {
+    /// Finite and ≥ 0.
+    NonNegative,
+    /// Finite and > 0.
+    Positive,
+    /// A finite temperature > 0 K.
+    Temperature,
+    /// A finite fraction in (0, 1].
+    Fraction,
+}
+
+impl Expect {
+    const fn words(self) -> &'static str {
+        match self {
+            Expect::NonNegative => "a number ≥ 0",
+            Expect::Positive => "a number > 0",
+            Expect::Temperature => "a temperature > 0 K",
+            Expect::Fraction => "a fraction in (0, 1]",
+        }
+    }
+
+    fn holds(self, x: f64) -> bool {
+        x.is_finite()
+            && match self {
+                Expect::NonNegative => x >= 0.0,
+                Expect::Positive | Expect::Temperature => x > 0.0,
+                Expect::Fraction => x > 0.0 && x <= 1.0,
+            }
+    }
+}
+
+/// Whether `x` is what `key` expects.
+fn need(x: f64, key: &'static str, expect: Expect) -> Result<(), ConfigError> {
+    if expect.holds(x) {
+        Ok(())
     } else {
-        Err(ConfigError::OutOfRange { key, expected })
+        Err(ConfigError::OutOfRange {
+            key,
+            expected: expect.words(),
+        })
     }
 }
 
 impl RigFile {
-    /// Checks every key and fills in the defaults.
+    /// Fills in the defaults and checks every key ([`RigConfig::check`]).
     ///
     /// ```
     /// use heatbound::config::{RigFile, UncertaintyFile, Mode};
@@ -296,168 +326,35 @@ impl RigFile {
     /// assert_eq!(bad.validate().unwrap_err().to_string(), "`coverage_factor` must be a number > 0");
     /// ```
     pub fn validate(&self) -> Result<RigConfig, ConfigError> {
-        const NON_NEG: &str = "a number ≥ 0";
-        const POS: &str = "a number > 0";
-        let nonneg = |x: f64| x >= 0.0;
-        let pos = |x: f64| x > 0.0;
-
-        let d = builtin_defaults();
-        let ambient_k = match self.ambient_k {
-            None => None,
-            Some(t) => Some(check(
-                Some(t),
-                0.0,
-                "ambient_k",
-                "a temperature > 0 K",
-                pos,
-            )?),
-        };
-        let window_samples = self.window_samples.unwrap_or(d.window_samples);
-        if window_samples < 2 {
-            return Err(ConfigError::OutOfRange {
-                key: "window_samples",
-                expected: "an integer ≥ 2",
-            });
+        // The shared delays exist only in the file: name them as written.
+        if let Some(a) = &self.alarms {
+            for (x, key) in [
+                (a.on_delay_s, "alarms.on_delay_s"),
+                (a.off_delay_s, "alarms.off_delay_s"),
+            ] {
+                if let Some(x) = x {
+                    need(x, key, Expect::NonNegative)?;
+                }
+            }
         }
-        let max_gap_s = check(self.max_gap_s, d.max_gap_s, "max_gap_s", POS, pos)?;
-        let coverage_factor = check(
-            self.coverage_factor,
-            d.coverage_factor,
-            "coverage_factor",
-            POS,
-            pos,
-        )?;
+        let config = self.with_defaults();
+        config.check()?;
+        Ok(config)
+    }
 
+    /// The file with every key it leaves out set to its documented default.
+    fn with_defaults(&self) -> RigConfig {
+        let d = builtin_defaults();
+        let max_gap_s = self.max_gap_s.unwrap_or(d.max_gap_s);
         let u = self.uncertainty.clone().unwrap_or_default();
         let du = d.uncertainty;
-        let uncertainty = Uncertainty {
-            hot_k: check(u.hot_k, du.hot_k, "uncertainty.hot_k", NON_NEG, nonneg)?,
-            cold_k: check(u.cold_k, du.cold_k, "uncertainty.cold_k", NON_NEG, nonneg)?,
-            heat_in_rel: check(
-                u.heat_in_rel,
-                du.heat_in_rel,
-                "uncertainty.heat_in_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-            work_rel: check(
-                u.work_rel,
-                du.work_rel,
-                "uncertainty.work_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-            heat_out_rel: check(
-                u.heat_out_rel,
-                du.heat_out_rel,
-                "uncertainty.heat_out_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-        };
-
-        let s = self.steady.clone().unwrap_or_default();
+        let st = self.steady.clone().unwrap_or_default();
         let ds = d.steady;
-        let steady = Steady {
-            duration_s: check(s.duration_s, ds.duration_s, "steady.duration_s", POS, pos)?,
-            hot_band_k: check(
-                s.hot_band_k,
-                ds.hot_band_k,
-                "steady.hot_band_k",
-                NON_NEG,
-                nonneg,
-            )?,
-            cold_band_k: check(
-                s.cold_band_k,
-                ds.cold_band_k,
-                "steady.cold_band_k",
-                NON_NEG,
-                nonneg,
-            )?,
-            heat_in_band_rel: check(
-                s.heat_in_band_rel,
-                ds.heat_in_band_rel,
-                "steady.heat_in_band_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-            work_band_rel: check(
-                s.work_band_rel,
-                ds.work_band_rel,
-                "steady.work_band_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-            heat_out_band_rel: check(
-                s.heat_out_band_rel,
-                ds.heat_out_band_rel,
-                "steady.heat_out_band_rel",
-                NON_NEG,
-                nonneg,
-            )?,
-        };
-
         let h = self.health.clone().unwrap_or_default();
-        let health = Health {
-            stuck_samples: h.stuck_samples.unwrap_or(d.health.stuck_samples),
-            stale_s: check(h.stale_s, max_gap_s, "health.stale_s", POS, pos)?,
-            min_temperature_k: check(
-                h.min_temperature_k,
-                d.health.min_temperature_k,
-                "health.min_temperature_k",
-                "a temperature > 0 K",
-                pos,
-            )?,
-            max_temperature_k: check(
-                h.max_temperature_k,
-                d.health.max_temperature_k,
-                "health.max_temperature_k",
-                "a temperature > 0 K",
-                pos,
-            )?,
-        };
-        if health.min_temperature_k >= health.max_temperature_k {
-            return Err(ConfigError::Inconsistent {
-                what: "`health.min_temperature_k` must be below `health.max_temperature_k`",
-            });
-        }
-        if health.stuck_samples == 1 {
-            return Err(ConfigError::OutOfRange {
-                key: "health.stuck_samples",
-                expected: "0 (off) or an integer ≥ 2",
-            });
-        }
-
         let a = self.alarms.clone().unwrap_or_default();
-        let near_carnot_fraction = check(
-            a.near_carnot_fraction,
-            d.alarms.near_carnot_fraction,
-            "alarms.near_carnot_fraction",
-            "a fraction in (0, 1]",
-            |x| x > 0.0 && x <= 1.0,
-        )?;
-        let hot_max_k = check(
-            a.hot_max_k,
-            d.alarms.hot_max_k,
-            "alarms.hot_max_k",
-            "a temperature > 0 K",
-            pos,
-        )?;
-        let on_delay_s = check(
-            a.on_delay_s,
-            d.alarms.rules[0].on_delay_s,
-            "alarms.on_delay_s",
-            NON_NEG,
-            nonneg,
-        )?;
-        let off_delay_s = check(
-            a.off_delay_s,
-            d.alarms.rules[0].off_delay_s,
-            "alarms.off_delay_s",
-            NON_NEG,
-            nonneg,
-        )?;
-
+        let hot_max_k = a.hot_max_k.unwrap_or(d.alarms.hot_max_k);
+        let on_delay_s = a.on_delay_s.unwrap_or(DEFAULT_DELAY_S);
+        let off_delay_s = a.off_delay_s.unwrap_or(DEFAULT_DELAY_S);
         let overrides = [
             &a.beyond_carnot,
             &a.negative_entropy_production,
@@ -469,41 +366,53 @@ impl RigFile {
         let mut rules = d.alarms.rules;
         for id in RuleId::ALL {
             let o = overrides[id.index()].clone().unwrap_or_default();
-            let keys = id.config_keys();
             let base = d.alarms.rules[id.index()];
             let severity = o.severity.unwrap_or(base.severity);
             rules[id.index()] = Rule {
                 enabled: o.enabled.unwrap_or(base.enabled),
                 severity,
-                deadband: check(
-                    o.deadband,
-                    id.default_deadband(hot_max_k),
-                    keys[0],
-                    NON_NEG,
-                    nonneg,
-                )?,
-                on_delay_s: check(o.on_delay_s, on_delay_s, keys[1], NON_NEG, nonneg)?,
-                off_delay_s: check(o.off_delay_s, off_delay_s, keys[2], NON_NEG, nonneg)?,
+                deadband: o.deadband.unwrap_or(id.default_deadband(hot_max_k)),
+                on_delay_s: o.on_delay_s.unwrap_or(on_delay_s),
+                off_delay_s: o.off_delay_s.unwrap_or(off_delay_s),
                 // Trip rules latch unless told otherwise, so a trip is always seen.
                 latching: o.latching.unwrap_or(severity == Severity::Trip),
             };
         }
-
-        Ok(RigConfig {
+        RigConfig {
             mode: self.mode.unwrap_or_default(),
-            ambient_k,
-            window_samples,
+            ambient_k: self.ambient_k,
+            window_samples: self.window_samples.unwrap_or(d.window_samples),
             max_gap_s,
-            coverage_factor,
-            uncertainty,
-            steady,
-            health,
+            coverage_factor: self.coverage_factor.unwrap_or(d.coverage_factor),
+            uncertainty: Uncertainty {
+                hot_k: u.hot_k.unwrap_or(du.hot_k),
+                cold_k: u.cold_k.unwrap_or(du.cold_k),
+                heat_in_rel: u.heat_in_rel.unwrap_or(du.heat_in_rel),
+                work_rel: u.work_rel.unwrap_or(du.work_rel),
+                heat_out_rel: u.heat_out_rel.unwrap_or(du.heat_out_rel),
+            },
+            steady: Steady {
+                duration_s: st.duration_s.unwrap_or(ds.duration_s),
+                hot_band_k: st.hot_band_k.unwrap_or(ds.hot_band_k),
+                cold_band_k: st.cold_band_k.unwrap_or(ds.cold_band_k),
+                heat_in_band_rel: st.heat_in_band_rel.unwrap_or(ds.heat_in_band_rel),
+                work_band_rel: st.work_band_rel.unwrap_or(ds.work_band_rel),
+                heat_out_band_rel: st.heat_out_band_rel.unwrap_or(ds.heat_out_band_rel),
+            },
+            health: Health {
+                stuck_samples: h.stuck_samples.unwrap_or(d.health.stuck_samples),
+                stale_s: h.stale_s.unwrap_or(max_gap_s),
+                min_temperature_k: h.min_temperature_k.unwrap_or(d.health.min_temperature_k),
+                max_temperature_k: h.max_temperature_k.unwrap_or(d.health.max_temperature_k),
+            },
             alarms: Alarms {
-                near_carnot_fraction,
+                near_carnot_fraction: a
+                    .near_carnot_fraction
+                    .unwrap_or(d.alarms.near_carnot_fraction),
                 hot_max_k,
                 rules,
             },
-        })
+        }
     }
 }
 
@@ -573,9 +482,9 @@ impl RigConfig {
         }
     }
 
-    /// Checks a configuration that arrived whole (over the wire, say)
-    /// rather than through [`RigFile::validate`]: it passes exactly when
-    /// validating its own file gives it back unchanged.
+    /// Checks every setting: the rules [`RigFile::validate`] applies to a
+    /// file, applied to a configuration that arrived whole (over the wire,
+    /// say). The first setting out of range is named.
     ///
     /// ```
     /// use heatbound::config::RigConfig;
@@ -583,45 +492,72 @@ impl RigConfig {
     /// assert!(c.check().is_ok());
     /// c.window_samples = 1;
     /// assert!(c.check().is_err());
+    /// c.window_samples = 60;
+    /// c.steady.hot_band_k = f64::INFINITY;
+    /// assert_eq!(c.check().unwrap_err().to_string(), "`steady.hot_band_k` must be a number ≥ 0");
     /// ```
     pub fn check(&self) -> Result<(), ConfigError> {
-        match self.to_file().validate() {
-            Ok(c) if c == *self => Ok(()),
-            Ok(_) => Err(ConfigError::Inconsistent {
-                what: "the configuration does not validate to itself",
-            }),
-            Err(e) => Err(e),
+        use Expect::{Fraction, NonNegative, Positive, Temperature};
+        if let Some(t) = self.ambient_k {
+            need(t, "ambient_k", Temperature)?;
         }
-    }
-
-    /// Whether every number in it is finite.
-    pub fn all_finite(&self) -> bool {
+        if self.window_samples < 2 {
+            return Err(ConfigError::OutOfRange {
+                key: "window_samples",
+                expected: "an integer ≥ 2",
+            });
+        }
         let (u, st, h, a) = (&self.uncertainty, &self.steady, &self.health, &self.alarms);
-        let scalars = [
-            self.ambient_k.unwrap_or(0.0),
-            self.max_gap_s,
-            self.coverage_factor,
-            u.hot_k,
-            u.cold_k,
-            u.heat_in_rel,
-            u.work_rel,
-            u.heat_out_rel,
-            st.duration_s,
-            st.hot_band_k,
-            st.cold_band_k,
-            st.heat_in_band_rel,
-            st.work_band_rel,
-            st.heat_out_band_rel,
-            h.stale_s,
-            h.min_temperature_k,
-            h.max_temperature_k,
-            a.near_carnot_fraction,
-            a.hot_max_k,
+        let settings = [
+            (self.max_gap_s, "max_gap_s", Positive),
+            (self.coverage_factor, "coverage_factor", Positive),
+            (u.hot_k, "uncertainty.hot_k", NonNegative),
+            (u.cold_k, "uncertainty.cold_k", NonNegative),
+            (u.heat_in_rel, "uncertainty.heat_in_rel", NonNegative),
+            (u.work_rel, "uncertainty.work_rel", NonNegative),
+            (u.heat_out_rel, "uncertainty.heat_out_rel", NonNegative),
+            (st.duration_s, "steady.duration_s", Positive),
+            (st.hot_band_k, "steady.hot_band_k", NonNegative),
+            (st.cold_band_k, "steady.cold_band_k", NonNegative),
+            (st.heat_in_band_rel, "steady.heat_in_band_rel", NonNegative),
+            (st.work_band_rel, "steady.work_band_rel", NonNegative),
+            (
+                st.heat_out_band_rel,
+                "steady.heat_out_band_rel",
+                NonNegative,
+            ),
+            (h.stale_s, "health.stale_s", Positive),
+            (h.min_temperature_k, "health.min_temperature_k", Temperature),
+            (h.max_temperature_k, "health.max_temperature_k", Temperature),
+            (
+                a.near_carnot_fraction,
+                "alarms.near_carnot_fraction",
+                Fraction,
+            ),
+            (a.hot_max_k, "alarms.hot_max_k", Temperature),
         ];
-        scalars.iter().all(|x| x.is_finite())
-            && a.rules.iter().all(|r| {
-                r.deadband.is_finite() && r.on_delay_s.is_finite() && r.off_delay_s.is_finite()
-            })
+        for (x, key, expect) in settings {
+            need(x, key, expect)?;
+        }
+        if h.min_temperature_k >= h.max_temperature_k {
+            return Err(ConfigError::Inconsistent {
+                what: "`health.min_temperature_k` must be below `health.max_temperature_k`",
+            });
+        }
+        if h.stuck_samples == 1 {
+            return Err(ConfigError::OutOfRange {
+                key: "health.stuck_samples",
+                expected: "0 (off) or an integer ≥ 2",
+            });
+        }
+        for id in RuleId::ALL {
+            let r = a.rule(id);
+            let [deadband, on, off] = id.config_keys();
+            need(r.deadband, deadband, NonNegative)?;
+            need(r.on_delay_s, on, NonNegative)?;
+            need(r.off_delay_s, off, NonNegative)?;
+        }
+        Ok(())
     }
 }
 

@@ -256,6 +256,9 @@ impl<const N: usize> Controller<N> {
     /// Bytes from the link at sample time `t_ms`: every command they
     /// complete is checked and answered. Costs O(1) per byte, whatever
     /// arrives.
+    // Kept out of line: inlined at each call site, the command path (MAC,
+    // configuration check) would be copied into every caller's image.
+    #[inline(never)]
     pub fn receive(&mut self, bytes: &[u8], t_ms: u32, out: &mut impl FnMut(&Frame)) {
         let to = Addressee {
             rig_id: self.hello.rig_id,

@@ -10,6 +10,7 @@
 //! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
 //! - [`keyfile`]: the rig's command key, from a file only its owner may read;
 //! - [`downlink`]: operators' commands sealed, sent on the link, matched with replies;
+//! - [`operator`]: a scripted operator who acknowledges trips over the link (`demo`);
 //! - [`control`]: the local control socket through which `ack`, `configure`
 //!   and `new-run` reach the process holding the link;
 //! - [`fanout`]: `simulate --listen` serving every client, dropping one that stops reading;
@@ -33,6 +34,7 @@ pub mod fanout;
 pub mod ingest;
 pub mod keyfile;
 pub mod link;
+pub mod operator;
 pub mod replay;
 pub mod rigfile;
 pub mod sil;

@@ -482,6 +482,17 @@ pub fn keep_reading(
                 }
             }
             Err(e) if e.kind() == ErrorKind::Interrupted => {}
+            // A peer that closes with our commands unread resets instead.
+            Err(e) if e.kind() == ErrorKind::ConnectionReset => {
+                conn = None;
+                down(
+                    ingest,
+                    &format!("{name}: connection closed (reset by the peer)"),
+                    &mut commands,
+                    &mut on_notice,
+                )?;
+                wait(bounds, ingest, backoff);
+            }
             Err(e) => {
                 conn = None;
                 let reason = format!("{name}: read failed: {}", os_words(&e));

@@ -26,6 +26,11 @@ use heatbound::control::{Controller, ControllerSettings};
 use heatbound::monitor::MonitorError;
 use heatbound::wire::{self, CommandKey, Frame, Hello, RigId};
 use heatbound_firmware_example::rig::{Rig, Scenario};
+use std::io::Write as _;
+use std::net::TcpStream;
+use std::time::{Duration, Instant};
+
+use crate::fanout::Inbox;
 
 /// The rig identifier the simulation announces in its Hello.
 pub const RIG_ID: &str = "bench-sim";
@@ -94,6 +99,9 @@ pub enum SimError {
     /// A frame could not be encoded (a core invariant broke).
     #[error("cannot encode a frame: {0}")]
     Encode(#[from] wire::WireError),
+    /// The host's end of the link went away.
+    #[error("the host closed the link: {}", crate::term::os_words(.0))]
+    Link(std::io::Error),
 }
 
 /// Counters of a run so far.
@@ -321,4 +329,36 @@ pub fn default_config(rig: &Rig) -> RigConfig {
 /// `rig.toml`, so configurations built from f32 settings digest alike.
 pub fn decimal_f64(x: f32) -> f64 {
     x.to_string().parse().unwrap_or(f64::from(x))
+}
+
+/// Plays the simulation into `stream` as a controller would over its
+/// link, paced at `speed` (> 0) times real time, answering the commands
+/// that come back on it. Ends by closing the connection both ways, so the
+/// host sees the end of the stream.
+pub fn play(mut sim: Simulation, mut stream: TcpStream, speed: f64) -> Result<SimStats, SimError> {
+    let (inbox, feed) = Inbox::new();
+    feed.listen_to(stream.try_clone().map_err(SimError::Link)?);
+    let start = Instant::now();
+    let mut frames = Vec::new();
+    let mut bytes = Vec::new();
+    while let Some(t_ms) = sim.next_tick(&mut frames) {
+        for command in inbox.take() {
+            sim.receive(&command, &mut frames);
+        }
+        for frame in frames.drain(..) {
+            encode_into(&frame, &mut bytes)?;
+        }
+        if bytes.is_empty() {
+            continue;
+        }
+        let due = Duration::from_secs_f64(f64::from(t_ms) / 1000.0 / speed);
+        if let Some(wait) = due.checked_sub(start.elapsed()) {
+            std::thread::sleep(wait);
+        }
+        stream.write_all(&bytes).map_err(SimError::Link)?;
+        bytes.clear();
+    }
+    stream.flush().map_err(SimError::Link)?;
+    let _ = stream.shutdown(std::net::Shutdown::Both);
+    Ok(sim.stats().clone())
 }

@@ -242,8 +242,10 @@ fn an_invalid_or_oversized_configuration_is_refused_and_changes_nothing() {
     let mut c = tripped(Some(&key));
     let before = state(&c);
     // A window the 64-sample monitor cannot hold.
-    let mut too_long = RigConfig::default();
-    too_long.window_samples = 100;
+    let too_long = RigConfig {
+        window_samples: 100,
+        ..RigConfig::default()
+    };
     let bytes = seal(1, Command::Configure(too_long), &key, &to());
     assert_eq!(
         replies(&receive(&mut c, &bytes, 20_000)),

@@ -358,14 +358,6 @@ pub fn decode_command(buf: &mut [u8]) -> Result<Received<'_>, FrameError> {
         return Err(Malformed::UnknownKind(kind).into());
     }
     let (counter, command): (u32, Command) = take_all(body)?;
-    // A configuration that does not survive validation unchanged is
-    // refused by the controller; non-finite numbers are already malformed
-    // here, like everywhere else on the wire.
-    if let Command::Configure(config) = &command
-        && !config.all_finite()
-    {
-        return Err(Malformed::NotFinite.into());
-    }
     Ok(Received {
         frame: CommandFrame { counter, command },
         payload,

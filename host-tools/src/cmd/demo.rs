@@ -25,13 +25,13 @@ use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
-use heatbound::wire::{CommandKey, ReplyCode};
+use heatbound::wire::CommandKey;
 use heatbound_firmware_example::rig::{Rig, Scenario};
-use heatbound_host::downlink::{Answer, Ask, Downlink, Request};
-use heatbound_host::fanout::Inbox;
+use heatbound_host::downlink::Downlink;
 use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::keyfile::KeyOrigin;
 use heatbound_host::link::{self, Bounds, Commands, End, now_ms};
+use heatbound_host::operator::{self, Operator};
 use heatbound_host::store::Log;
 
 use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
@@ -116,7 +116,7 @@ pub fn run(args: &Args) -> Result<()> {
     let sender = thread::spawn(move || -> Result<SimStats> {
         let stream =
             TcpStream::connect(addr).with_context(|| format!("cannot connect to {addr}"))?;
-        send(sim, stream, speed)
+        Ok(sil::play(sim, stream, speed)?)
     });
     let (stream, _) = listener
         .accept()
@@ -136,14 +136,7 @@ pub fn run(args: &Args) -> Result<()> {
     // The simulation, the emulator and the demo take the public demo key.
     let mut downlink = Downlink::new(&CommandKey::DEMO, KeyOrigin::Demo);
     let (requests_tx, requests) = mpsc::channel();
-    let (answer_tx, answers) = mpsc::channel();
-    let mut operator = Operator {
-        requests: requests_tx,
-        answer: answer_tx,
-        answers,
-        asked: 0,
-        outcomes: Vec::new(),
-    };
+    let mut operator = Operator::new(requests_tx);
     let started = Instant::now();
     let end = link::read_to_end(
         &mut ingest,
@@ -157,7 +150,7 @@ pub fn run(args: &Args) -> Result<()> {
             status: None,
         }),
         |line| {
-            if !args.quiet || is_event_line(line) {
+            if !args.quiet || operator::is_event_line(line) {
                 println!("{line}");
             }
             operator.read(line);
@@ -229,7 +222,7 @@ pub fn run(args: &Args) -> Result<()> {
     if !operator.all_applied() {
         bail!(
             "the demo's acknowledges were not all applied: {:?}",
-            operator.outcomes
+            operator.outcomes()
         );
     }
     if stats.trip_changes.last().is_none_or(|(_, on)| *on) {
@@ -257,119 +250,4 @@ fn fresh_log(db: &Path) -> Result<()> {
         }
     }
     Ok(())
-}
-
-/// Whether a live line is an alarm event or a command's reply.
-fn is_event_line(line: &str) -> bool {
-    ["raised ", "cleared ", "acknowledged ", "reply to command "]
-        .iter()
-        .any(|w| line.contains(w))
-}
-
-/// The demo's operator: acknowledges each trip alarm over the link as soon
-/// as it is raised, as an engineer at the bench would with `heatbound ack`.
-struct Operator {
-    requests: mpsc::Sender<Request>,
-    answer: mpsc::Sender<Answer>,
-    answers: mpsc::Receiver<Answer>,
-    asked: usize,
-    outcomes: Vec<Answer>,
-}
-
-impl Operator {
-    /// Reads one live line; asks, or reports an answer, when it is time.
-    fn read(&mut self, line: &str) {
-        if let Some(rule) = raised_trip(line) {
-            self.asked += 1;
-            println!("operator: acknowledging {rule} over the link");
-            let _ = self.requests.send(Request {
-                origin: "demo operator".into(),
-                ask: Ask::Acknowledge(Some(rule)),
-                timeout: Duration::from_secs(10),
-                answer: self.answer.clone(),
-            });
-        }
-        self.settle();
-    }
-
-    /// Reports the answers that have come.
-    fn settle(&mut self) {
-        while let Ok(answer) = self.answers.try_recv() {
-            match &answer {
-                Answer::Replied {
-                    counter,
-                    code,
-                    t_ms,
-                } => println!(
-                    "operator: command {counter} {} at t = {:.1} s ({})",
-                    code,
-                    f64::from(*t_ms) / 1000.0,
-                    code.meaning()
-                ),
-                Answer::Unavailable { message, .. } => println!("operator: {message}"),
-            }
-            self.outcomes.push(answer);
-        }
-    }
-
-    /// Whether every acknowledge asked for was applied, and there was one.
-    fn all_applied(&self) -> bool {
-        self.asked > 0
-            && self.outcomes.len() == self.asked
-            && self.outcomes.iter().all(|a| {
-                matches!(
-                    a,
-                    Answer::Replied {
-                        code: ReplyCode::Applied,
-                        ..
-                    }
-                )
-            })
-    }
-}
-
-/// The rule of a live line that says a trip alarm was raised.
-fn raised_trip(line: &str) -> Option<RuleId> {
-    let rest = line.split("raised ").nth(1)?;
-    let mut words = rest.split(' ');
-    let rule = RuleId::parse(words.next()?)?;
-    (words.next()? == "trip").then_some(rule)
-}
-
-/// Plays the simulation into `stream`, paced at `speed` times real time,
-/// answering the commands that come back on it.
-fn send(mut sim: Simulation, mut stream: TcpStream, speed: f64) -> Result<SimStats> {
-    let (inbox, feed) = Inbox::new();
-    feed.listen_to(
-        stream
-            .try_clone()
-            .context("cannot read commands from the host")?,
-    );
-    let start = Instant::now();
-    let mut frames = Vec::new();
-    let mut bytes = Vec::new();
-    while let Some(t_ms) = sim.next_tick(&mut frames) {
-        for command in inbox.take() {
-            sim.receive(&command, &mut frames);
-        }
-        for frame in frames.drain(..) {
-            sil::encode_into(&frame, &mut bytes)?;
-        }
-        if bytes.is_empty() {
-            continue;
-        }
-        let due = Duration::from_secs_f64(f64::from(t_ms) / 1000.0 / speed);
-        if let Some(wait) = due.checked_sub(start.elapsed()) {
-            thread::sleep(wait);
-        }
-        stream
-            .write_all(&bytes)
-            .context("the host closed the link")?;
-        bytes.clear();
-    }
-    stream.flush().context("the host closed the link")?;
-    // Closes the connection for the reader of commands too, so the host
-    // sees the end of the stream.
-    let _ = stream.shutdown(std::net::Shutdown::Both);
-    Ok(sim.stats().clone())
 }
