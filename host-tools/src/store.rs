@@ -457,6 +457,8 @@ pub struct Log {
     /// The latest write was [`Log::end_run`]: on close, the journal goes
     /// back to `DELETE` so that readers leave no `-wal`/`-shm` files.
     run_closed: bool,
+    /// The file's schema version (a reader does not migrate it).
+    schema: i64,
 }
 
 const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
@@ -504,6 +506,25 @@ const SELECT_FRAMES: &str = "
     SELECT ord, host_ms, 3, counter, t_ms, code, NULL, NULL, NULL, NULL, NULL, NULL, NULL,
         NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
         FROM replies WHERE run_id = ?1 AND ord > ?2
+    ORDER BY ord LIMIT ?3";
+
+/// [`SELECT_FRAMES`] for logs of schema versions 1 and 2, read as they
+/// are: no replies, and the Hello columns of version 3 read as 0.
+const SELECT_FRAMES_V2: &str = "
+    SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
+        window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
+        u_work_rel, u_heat_out_rel, config_digest, 0, 0, 0, 0, NULL, NULL
+        FROM hellos WHERE run_id = ?1 AND ord > ?2
+    UNION ALL
+    SELECT ord, host_ms, 1, seq, t_ms, duration_s, heat_in_j, work_j, heat_out_j,
+        entropy_in_j_per_k, entropy_out_j_per_k, hot_mean_k, ambient_k, performance, bound,
+        entropy_rate_w_per_k, u_performance, u_bound, u_margin, u_entropy_rate_w_per_k, status,
+        faults, alarms
+        FROM summaries WHERE run_id = ?1 AND ord > ?2
+    UNION ALL
+    SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, NULL, NULL, NULL, NULL, NULL,
+        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
+        FROM events WHERE run_id = ?1 AND ord > ?2
     ORDER BY ord LIMIT ?3";
 
 /// One row of a [`Log::frames`] page: its `ord` and the rebuilt frame.
@@ -559,6 +580,8 @@ impl Log {
                 known: SCHEMA_VERSION,
             });
         }
+        let mut log = log;
+        log.schema = found;
         Ok(log)
     }
 
@@ -573,6 +596,7 @@ impl Log {
             next_ord: 0,
             ord_run: -1,
             run_closed: false,
+            schema: SCHEMA_VERSION,
         }
     }
 
@@ -964,8 +988,12 @@ impl Log {
         Ok(())
     }
 
-    /// The commands sent on `run`, oldest first.
+    /// The commands sent on `run`, oldest first (none in a log older than
+    /// schema version 3).
     pub fn commands(&self, run: RunId) -> Result<Vec<CommandRow>, StoreError> {
+        if self.schema < 3 {
+            return Ok(Vec::new());
+        }
         let mut st = self
             .conn
             .prepare(
@@ -1042,7 +1070,11 @@ impl Log {
     fn frames_page(&self, run: RunId, after_ord: i64) -> Result<Vec<PageRow>, StoreError> {
         let mut st = self
             .conn
-            .prepare_cached(SELECT_FRAMES)
+            .prepare_cached(if self.schema >= 3 {
+                SELECT_FRAMES
+            } else {
+                SELECT_FRAMES_V2
+            })
             .map_err(|e| self.err("cannot read frames", e))?;
         let rows = st
             .query_map(params![run, after_ord, FRAMES_PAGE], |r| {

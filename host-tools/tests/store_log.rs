@@ -205,3 +205,64 @@ fn frames_page_through_long_runs() {
     }
     assert_eq!(n, 10_000);
 }
+
+/// A log written by schema version 2 (before the downlink): built with the
+/// first two migrations and rows as version 2 wrote them.
+fn version_2_log(path: &std::path::Path) {
+    let conn = Connection::open(path).unwrap();
+    for sql in &heatbound_host::store::MIGRATIONS[..2] {
+        conn.execute_batch(sql).unwrap();
+    }
+    conn.pragma_update(None, "user_version", 2).unwrap();
+    conn.execute_batch(
+        "INSERT INTO runs (id, started_host_ms, source, tool_version, ended_host_ms)
+             VALUES (1, 1000, 'file:old.bin', '0.1.0', 9000);
+         INSERT INTO hellos VALUES (1, 0, 1000, 1, 'bench-1', '1.2.3', 100, 60, 'engine', 2.0,
+             293.5, 1.0, 0.125, 0.0078125, 0.0078125, 0.015625, 305419896);
+         INSERT INTO events VALUES (1, 1, 1001, 0, 5000, 'beyond_carnot', 'raised', 'trip');",
+    )
+    .unwrap();
+}
+
+#[test]
+fn a_version_2_log_reads_as_it_is_and_migrates_on_write() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("v2.sqlite");
+    version_2_log(&path);
+
+    // Read-only: nothing is migrated, the rows read, the new columns are 0.
+    let log = Log::open_read(&path).unwrap();
+    let frames: Vec<Frame> = log.frames(1).unwrap().map(|r| r.unwrap().frame).collect();
+    assert_eq!(frames.len(), 2);
+    let Frame::Hello(h) = &frames[0] else {
+        panic!("{frames:?}")
+    };
+    assert_eq!(
+        (h.config_digest, h.run, h.session, h.keyed),
+        (0x1234_5678, 0, 0, false)
+    );
+    assert!(log.commands(1).unwrap().is_empty());
+    drop(log);
+    let v: i64 = Connection::open(&path)
+        .unwrap()
+        .pragma_query_value(None, "user_version", |r| r.get(0))
+        .unwrap();
+    assert_eq!(v, 2);
+
+    // A writer migrates it to the current version and keeps every row.
+    let mut log = Log::open(&path).unwrap();
+    assert_eq!(log.migrate().unwrap(), SCHEMA_VERSION);
+    let frames: Vec<Frame> = log.frames(1).unwrap().map(|r| r.unwrap().frame).collect();
+    assert_eq!(frames.len(), 2);
+    let run = log.begin_run("tcp:127.0.0.1:1", 10_000).unwrap();
+    let id = log
+        .insert_command(run, 10_001, "test", "ack", "all", 1, 7, &[1, 2, 0])
+        .unwrap();
+    log.settle_command(id, 10_002, Some(heatbound::wire::ReplyCode::Replayed))
+        .unwrap();
+    let rows = log.commands(run).unwrap();
+    assert_eq!(rows.len(), 1);
+    assert_eq!(rows[0].outcome, "rejected");
+    assert_eq!(rows[0].sealed, [1, 2, 0]);
+    assert_eq!(rows[0].reply_host_ms, Some(10_002));
+}

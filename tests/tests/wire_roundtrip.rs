@@ -196,6 +196,45 @@ fn worst_case_sizes() {
     // bytes each) and the commands byte.
     assert_eq!(n, 86);
 
+    let worst_reply = wire::Reply {
+        counter: u32::MAX,
+        t_ms: u32::MAX,
+        code: wire::ReplyCode::NoKey,
+    };
+    let n = wire::encode(&Frame::Reply(worst_reply), &mut buf).unwrap();
+    assert_eq!(n, 19);
+
+    // Commands: the longest of each, every varint at its longest.
+    use heatbound::config::RigConfig;
+    use heatbound::wire::{Addressee, Authenticator, Command, CommandFrame, CommandKey};
+    let auth = Authenticator::new(&CommandKey::DEMO);
+    let to = Addressee {
+        rig_id: RigId::new("0123456789abcdef").unwrap(),
+        session: u32::MAX,
+    };
+    let mut cbuf = [0u8; wire::MAX_COMMAND_LEN];
+    let mut command_len = |command| {
+        let frame = CommandFrame {
+            counter: u32::MAX,
+            command,
+        };
+        wire::encode_command(&frame, Some(&auth), &to, &mut cbuf).unwrap()
+    };
+    assert_eq!(
+        command_len(Command::Acknowledge(Some(RuleId::SensorFault))),
+        24
+    );
+    assert_eq!(command_len(Command::NewRun), 22);
+    let mut big = RigConfig {
+        ambient_k: Some(293.15),
+        window_samples: u32::MAX,
+        ..RigConfig::default()
+    };
+    big.health.stuck_samples = u32::MAX;
+    let n = command_len(Command::Configure(big));
+    assert_eq!(n, 348);
+    assert!(n <= wire::MAX_COMMAND_LEN);
+
     let worst_event = EventFrame {
         seq: u16::MAX,
         event: Event {
