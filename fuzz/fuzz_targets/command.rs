@@ -23,7 +23,8 @@ fuzz_target!(|data: &[u8]| {
         summary_period_ms: 1000,
         hello_period_ms: 0,
     };
-    let Ok(mut c) = Controller::<8>::new(&settings, &RigConfig::default(), Some(&CommandKey::DEMO), 7)
+    let Ok(mut c) =
+        Controller::<64>::new(&settings, &RigConfig::default(), Some(&CommandKey::DEMO), 7)
     else {
         return;
     };
