@@ -146,6 +146,10 @@ impl From<Answer> for WireAnswer {
                 reason: reason.into(),
                 message,
             },
+            Answer::Noted => WireAnswer::Unavailable {
+                reason: "invalid".into(),
+                message: "not a command".into(),
+            },
         }
     }
 }

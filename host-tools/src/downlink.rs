@@ -45,6 +45,14 @@ pub enum Ask {
     Configure(Box<RigConfig>),
     /// A command sealed elsewhere (by a holder of the key), sent as it is.
     Forward(Vec<u8>),
+    /// An operator's action that sends nothing (pausing the trends,
+    /// changing the span, leaving): logged only.
+    Note {
+        /// What was done (`pause`, `span`, `quit`, ...).
+        action: String,
+        /// With what (`5 min`, ...).
+        detail: String,
+    },
 }
 
 impl Ask {
@@ -55,6 +63,7 @@ impl Ask {
             Ask::NewRun => "new_run",
             Ask::Configure(_) => "configure",
             Ask::Forward(_) => "forward",
+            Ask::Note { .. } => "note",
         }
     }
 }
@@ -85,6 +94,8 @@ pub enum Answer {
         /// The controller's sample time of the reply, ms.
         t_ms: u32,
     },
+    /// An action that sends nothing was logged.
+    Noted,
     /// The request never reached the controller, or no reply came.
     Unavailable {
         /// Why, in a word: `no_link`, `no_hello`, `no_reply`, `invalid`, `busy`.
@@ -186,6 +197,11 @@ impl Downlink {
         writer: Option<&mut dyn Write>,
         now: Instant,
     ) -> Result<(), StoreError> {
+        if let Ask::Note { action, detail } = &request.ask {
+            ingest.note_action(now_ms(), &request.origin, action, detail)?;
+            let _ = request.answer.send(Answer::Noted);
+            return Ok(());
+        }
         let Some(writer) = writer else {
             let _ = request.answer.send(Answer::unavailable(
                 "no_link",
@@ -387,7 +403,7 @@ impl Downlink {
                             .map_err(|e| format!("the configuration does not validate: {e}"))?;
                         Command::Configure(**config)
                     }
-                    Ask::Hello | Ask::Forward(_) => Command::HelloRequest,
+                    Ask::Hello | Ask::Forward(_) | Ask::Note { .. } => Command::HelloRequest,
                 };
                 let counter = self.next_counter.max(last_accepted.saturating_add(1));
                 self.next_counter = counter.saturating_add(1);

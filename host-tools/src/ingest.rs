@@ -58,6 +58,8 @@ pub enum LineStyle {
     Plain,
     /// Plain text with ANSI highlighting of alarms (for a terminal).
     Ansi,
+    /// One JSON object per frame ([`crate::frame_json`]).
+    Json,
 }
 
 impl LineStyle {
@@ -126,6 +128,29 @@ impl Totals {
     }
 }
 
+/// What an [`Ingest`] tells an observer (the live console), as it happens.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Observed {
+    /// A frame, logged (replays are not observed: they are not new).
+    Frame {
+        /// The frame.
+        frame: Frame,
+        /// Host receive time, Unix ms.
+        host_ms: i64,
+    },
+    /// The counters after a read.
+    Totals(Totals),
+    /// The link dropped (with why) or came back.
+    Link {
+        /// Whether it is up now.
+        up: bool,
+        /// Why it dropped.
+        reason: Option<String>,
+        /// Host time, Unix ms.
+        host_ms: i64,
+    },
+}
+
 /// One run being ingested: decoder, link tracker and the log.
 pub struct Ingest {
     log: Log,
@@ -165,6 +190,8 @@ pub struct Ingest {
     /// Replies logged since [`Ingest::take_replies`] last emptied it, with
     /// their receive times (for whoever sent the commands).
     replies: Vec<(Reply, i64)>,
+    /// Who else hears of each frame, the counters and the link.
+    observer: Option<std::sync::mpsc::Sender<Observed>>,
 }
 
 /// A replayed section not yet logged.
@@ -213,7 +240,36 @@ impl Ingest {
             in_replay: false,
             held_hello: None,
             replies: Vec::new(),
+            observer: None,
         })
+    }
+
+    /// Tells `observer` of every frame logged, the counters after every
+    /// read, and the link going down and up. A gone observer is forgotten.
+    pub fn set_observer(&mut self, observer: std::sync::mpsc::Sender<Observed>) {
+        self.observer = Some(observer);
+    }
+
+    fn tell(&mut self, what: Observed) {
+        if let Some(o) = &self.observer
+            && o.send(what).is_err()
+        {
+            self.observer = None;
+        }
+    }
+
+    /// Appends an operator's action that sends nothing to the controller
+    /// (pausing the trends, changing the span, leaving) to the log.
+    pub fn note_action(
+        &mut self,
+        host_ms: i64,
+        origin: &str,
+        action: &str,
+        detail: &str,
+    ) -> Result<(), StoreError> {
+        let run = self.run;
+        self.log
+            .insert_operator_action(run, host_ms, origin, action, detail)
     }
 
     /// The latest Hello, if one has arrived: who the controller is, its
@@ -287,7 +343,12 @@ impl Ingest {
             }
         }
         self.record_losses(host_ms)?;
-        self.record_replay()
+        self.record_replay()?;
+        if self.observer.is_some() {
+            let totals = self.totals;
+            self.tell(Observed::Totals(totals));
+        }
+        Ok(())
     }
 
     /// Commits the open batch if it is older than the batching age.
@@ -301,6 +362,13 @@ impl Ingest {
         if self.outage.is_none() {
             self.outage = Some(self.log.begin_outage(self.run, host_ms, reason)?);
             self.totals.outages += 1;
+            let totals = self.totals;
+            self.tell(Observed::Totals(totals));
+            self.tell(Observed::Link {
+                up: false,
+                reason: Some(reason.to_string()),
+                host_ms,
+            });
         }
         Ok(())
     }
@@ -315,6 +383,11 @@ impl Ingest {
         if let Some(id) = self.outage.take() {
             self.log.end_outage(id, host_ms)?;
         }
+        self.tell(Observed::Link {
+            up: true,
+            reason: None,
+            host_ms,
+        });
         Ok(())
     }
 
@@ -524,6 +597,12 @@ impl Ingest {
             Frame::Reply(r) => self.replies.push((*r, host_ms)),
         }
         self.log.insert_frame(self.run, host_ms, frame)?;
+        if self.observer.is_some() {
+            self.tell(Observed::Frame {
+                frame: frame.clone(),
+                host_ms,
+            });
+        }
         self.totals.frames += 1;
         match frame {
             Frame::Hello(h) => {
@@ -538,7 +617,12 @@ impl Ingest {
             }
             Frame::Reply(_) => self.totals.replies += 1,
         }
-        if self.style != LineStyle::Quiet {
+        if self.style == LineStyle::Json {
+            self.line.clear();
+            self.line
+                .push_str(&crate::frame_json::frame_json(frame, host_ms).to_string());
+            on_line(&self.line);
+        } else if self.style != LineStyle::Quiet {
             self.line.clear();
             match frame {
                 Frame::Hello(h) => write_hello(&mut self.line, h),

@@ -8,17 +8,21 @@
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
+//! - [`live`]: the process holding a live link: control socket, downlink, lines or console;
 //! - [`keyfile`]: the rig's command key, from a file only its owner may read;
 //! - [`downlink`]: operators' commands sealed, sent on the link, matched with replies;
+//! - [`showcase`]: the demo's run, over loopback, as lines or on the console;
 //! - [`operator`]: a scripted operator who acknowledges trips over the link (`demo`);
 //! - [`control`]: the local control socket through which `ack`, `configure`
 //!   and `new-run` reach the process holding the link;
 //! - [`fanout`]: `simulate --listen` serving every client, dropping one that stops reading;
 //! - [`ingest`]: bytes → frames → the log and live lines (`watch`, `demo`);
+//! - [`frame_json`]: frames as JSON objects (`watch --json`);
 //! - [`store`]: the SQLite log (schema, migrations, batched writes, reader API);
 //! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
 //! - [`audit`]: the audit engine, pure: integrity, recomputation, second law, alarm consistency;
 //! - [`chart`]: the chart renderer, a run of the log as a PNG or SVG picture;
+//! - [`console`]: the live console of `watch` and `demo` (ratatui);
 //! - [`term`]: what every command prints beside its output (the safety note).
 //!
 //! The subcommands themselves (`cmd`) live in the binary; each parses its
@@ -27,16 +31,20 @@
 pub mod audit;
 pub mod capture;
 pub mod chart;
+pub mod console;
 pub mod control;
 pub mod cycle_file;
 pub mod downlink;
 pub mod fanout;
+pub mod frame_json;
 pub mod ingest;
 pub mod keyfile;
 pub mod link;
+pub mod live;
 pub mod operator;
 pub mod replay;
 pub mod rigfile;
+pub mod showcase;
 pub mod sil;
 pub mod store;
 pub mod term;

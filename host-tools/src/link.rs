@@ -90,6 +90,11 @@ pub enum LinkError {
     /// The log could not be written.
     #[error(transparent)]
     Log(#[from] StoreError),
+    /// The thread reading the link stopped without closing the run.
+    #[error(
+        "the link's reader stopped unexpectedly; the log holds every batch committed before, and the run is not closed"
+    )]
+    Stopped,
 }
 
 /// Where the bytes come from.

@@ -4,7 +4,7 @@
 //!
 //! ```text
 //! live lines (Ingest) --> Operator::read --> "raised RULE trip" --> downlink::Request (ack RULE)
-//! downlink::Answer --> Operator::settle --> printed, kept for the demo's verdict
+//! downlink::Answer --> Operator::settle --> said (for the demo to print), kept for its verdict
 //! ```
 use std::sync::mpsc;
 use std::time::Duration;
@@ -50,10 +50,12 @@ impl Operator {
     }
 
     /// Reads one live line; asks, or reports an answer, when it is time.
-    pub fn read(&mut self, line: &str) {
+    /// Returns what the operator says.
+    pub fn read(&mut self, line: &str) -> Vec<String> {
+        let mut said = Vec::new();
         if let Some(rule) = raised_trip(line) {
             self.asked += 1;
-            println!("operator: acknowledging {rule} over the link");
+            said.push(format!("operator: acknowledging {rule} over the link"));
             let _ = self.requests.send(Request {
                 origin: "demo operator".into(),
                 ask: Ask::Acknowledge(Some(rule)),
@@ -61,27 +63,31 @@ impl Operator {
                 answer: self.answer.clone(),
             });
         }
-        self.settle();
+        said.extend(self.settle());
+        said
     }
 
-    /// Reports the answers that have come.
-    pub fn settle(&mut self) {
+    /// Takes the answers that have come; returns what the operator says.
+    pub fn settle(&mut self) -> Vec<String> {
+        let mut said = Vec::new();
         while let Ok(answer) = self.answers.try_recv() {
             match &answer {
                 Answer::Replied {
                     counter,
                     code,
                     t_ms,
-                } => println!(
+                } => said.push(format!(
                     "operator: command {counter} {} at t = {:.1} s ({})",
                     code,
                     f64::from(*t_ms) / 1000.0,
                     code.meaning()
-                ),
-                Answer::Unavailable { message, .. } => println!("operator: {message}"),
+                )),
+                Answer::Unavailable { message, .. } => said.push(format!("operator: {message}")),
+                Answer::Noted => {}
             }
             self.outcomes.push(answer);
         }
+        said
     }
 
     /// Whether every acknowledge asked for was applied, and there was one.

@@ -173,6 +173,16 @@ pub const MIGRATIONS: &[&str] = &[
         outcome       TEXT NOT NULL
     );
     CREATE INDEX commands_run ON commands(run_id, host_ms);",
+    // 4: what an operator did at the console that sent nothing to the
+    // controller: pausing the trends, changing the span, leaving.
+    "CREATE TABLE operator_actions (
+        id       INTEGER PRIMARY KEY,
+        run_id   INTEGER NOT NULL REFERENCES runs(id),
+        host_ms  INTEGER NOT NULL,
+        origin   TEXT NOT NULL,
+        action   TEXT NOT NULL,
+        detail   TEXT NOT NULL
+    );",
 ];
 
 /// What went wrong with the log.
@@ -1021,6 +1031,26 @@ impl Log {
             .and_then(|rows| rows.collect::<Result<Vec<_>, _>>())
             .map_err(|e| self.err("cannot read commands", e))?;
         Ok(rows)
+    }
+
+    /// Logs an operator's action that sent nothing to the controller.
+    pub fn insert_operator_action(
+        &mut self,
+        run: RunId,
+        host_ms: i64,
+        origin: &str,
+        action: &str,
+        detail: &str,
+    ) -> Result<(), StoreError> {
+        self.row(host_ms)?;
+        self.conn
+            .prepare_cached(
+                "INSERT INTO operator_actions (run_id, host_ms, origin, action, detail)
+                 VALUES (?1, ?2, ?3, ?4, ?5)",
+            )
+            .and_then(|mut st| st.execute(params![run, host_ms, origin, action, detail]))
+            .map_err(|e| self.err("cannot log an operator action", e))?;
+        self.after_row()
     }
 
     // -- reading ----------------------------------------------------------

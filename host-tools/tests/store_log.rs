@@ -89,6 +89,7 @@ fn migrates_an_empty_database_and_reopens() {
             "events",
             "hellos",
             "link_errors",
+            "operator_actions",
             "outages",
             "replies",
             "runs",

@@ -16,25 +16,16 @@
 //! trip output stays on while the condition holds. At 540 s the
 //! thermocouple is reseated, the readings fall back under the bound, the
 //! alarm clears and the trip output drops.
-use std::io::Write as _;
-use std::net::{Ipv4Addr, TcpListener, TcpStream};
+use std::io::{IsTerminal as _, Write as _};
 use std::path::{Path, PathBuf};
-use std::sync::mpsc;
-use std::thread;
-use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 use heatbound::alarm::{EventKind, RuleId};
-use heatbound::wire::CommandKey;
 use heatbound_firmware_example::rig::{Rig, Scenario};
-use heatbound_host::downlink::Downlink;
-use heatbound_host::ingest::{Ingest, LineStyle};
-use heatbound_host::keyfile::KeyOrigin;
-use heatbound_host::link::{self, Bounds, Commands, End, now_ms};
-use heatbound_host::operator::{self, Operator};
+use heatbound_host::link::{self, End, now_ms};
+use heatbound_host::showcase::{self, Show};
+use heatbound_host::sil::{self, SimOptions, Simulation};
 use heatbound_host::store::Log;
-
-use heatbound_host::sil::{self, SimOptions, SimStats, Simulation};
 
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
@@ -56,6 +47,9 @@ pub struct Args {
     /// Only print alarm events and the closing report, not a line per summary.
     #[arg(long)]
     pub quiet: bool,
+    /// A line per summary even on a terminal (no live console).
+    #[arg(long)]
+    pub plain: bool,
 }
 
 /// What the demo plays.
@@ -102,75 +96,31 @@ pub fn run(args: &Args) -> Result<()> {
 
     fresh_log(&args.db)?;
     let log = Log::open(&args.db).context("cannot open the demo log")?;
-
-    // Listening sockets stay on loopback.
-    let listener =
-        TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).context("cannot listen on loopback")?;
-    let addr = listener
-        .local_addr()
-        .context("cannot read the listening address")?;
-    println!("controller link: tcp://{addr}");
-    println!();
-
-    let speed = args.speed;
-    let sender = thread::spawn(move || -> Result<SimStats> {
-        let stream =
-            TcpStream::connect(addr).with_context(|| format!("cannot connect to {addr}"))?;
-        Ok(sil::play(sim, stream, speed)?)
-    });
-    let (stream, _) = listener
-        .accept()
-        .context("the simulated controller did not connect")?;
-    // Reads wake every 100 ms, so the operator's commands go out promptly.
-    stream
-        .set_read_timeout(Some(Duration::from_millis(100)))
-        .context("cannot set a read timeout on the link")?;
-    let mut writer = stream
-        .try_clone()
-        .context("cannot write to the simulated controller")?;
-
-    // The operator reads every line, even when the demo prints only alarms.
-    let style = LineStyle::for_stdout(false);
-    let mut ingest = Ingest::new(log, &format!("tcp:{addr}"), now_ms(), style)
-        .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
-    // The simulation, the emulator and the demo take the public demo key.
-    let mut downlink = Downlink::new(&CommandKey::DEMO, KeyOrigin::Demo);
-    let (requests_tx, requests) = mpsc::channel();
-    let mut operator = Operator::new(requests_tx);
-    let started = Instant::now();
-    let end = link::read_to_end(
-        &mut ingest,
-        &Bounds::default(),
-        stream,
-        Some(&mut writer),
-        &format!("tcp:{addr}"),
-        Some(Commands {
-            downlink: &mut downlink,
-            requests: &requests,
-            status: None,
-        }),
-        |line| {
-            if !args.quiet || operator::is_event_line(line) {
-                println!("{line}");
-            }
-            operator.read(line);
-        },
-    )?;
-    operator.settle();
+    // The console needs a terminal on both sides; --plain and --quiet ask for lines.
+    let show = if !args.plain
+        && !args.quiet
+        && std::io::stdout().is_terminal()
+        && std::io::stdin().is_terminal()
+    {
+        Show::Console
+    } else {
+        Show::Lines { quiet: args.quiet }
+    };
+    let (played, ingest) = showcase::play(sim, log, args.speed, show, |link| {
+        println!("controller link: {link}");
+        println!();
+    })?;
     let totals = ingest
         .finish(now_ms())
         .with_context(|| format!("cannot close the run in {}", args.db.display()))?;
-    let stats = match sender.join() {
-        Ok(result) => result?,
-        Err(_) => bail!("the simulated controller stopped unexpectedly"),
-    };
+    let (end, stats) = (played.end, &played.stats);
     println!();
     println!("{}", link::closing_line(&totals, end, &args.db));
     println!(
         "streamed {} samples as {} frames in {:.1} s",
         stats.samples,
         stats.frames(),
-        started.elapsed().as_secs_f64()
+        played.elapsed_s
     );
     for e in &stats.alarm_events {
         println!(
@@ -219,10 +169,10 @@ pub fn run(args: &Args) -> Result<()> {
     if !raised {
         bail!("the demo ended without raising beyond_carnot: the scenario did not play out");
     }
-    if !operator.all_applied() {
+    if !played.acknowledged {
         bail!(
-            "the demo's acknowledges were not all applied: {:?}",
-            operator.outcomes()
+            "the demo's acknowledges were not all applied: {}",
+            played.answers.join("; ")
         );
     }
     if stats.trip_changes.last().is_none_or(|(_, on)| *on) {

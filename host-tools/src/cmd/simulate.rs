@@ -86,6 +86,10 @@ pub struct Args {
     /// thermocouple, reopen the coolant valve, correct the shunt setting).
     #[arg(long, value_name = "S")]
     pub repair_at_s: Option<f64>,
+    /// Damage one frame on the wire at this rig time, seconds, as line
+    /// noise would (the host then counts a CRC loss).
+    #[arg(long, value_name = "S")]
+    pub line_noise_at_s: Option<f64>,
     /// The rig id the simulated controller announces (up to 16 printable ASCII characters).
     #[arg(long, value_name = "ID", default_value = sil::RIG_ID)]
     pub rig_id: String,
@@ -141,6 +145,10 @@ pub fn run(args: &Args) -> Result<()> {
     let mut frames: Vec<Frame> = Vec::with_capacity(8);
     let mut bytes: Vec<u8> = Vec::with_capacity(4096);
     let mut written: u64 = 0;
+    let mut noise_at_ms = args
+        .line_noise_at_s
+        .filter(|s| s.is_finite() && *s >= 0.0)
+        .map(|s| (s * 1000.0).min(f64::from(u32::MAX)) as u32);
     while let Some(t_ms) = sim.next_tick(&mut frames) {
         if let Some(inbox) = &inbox {
             for command in inbox.take() {
@@ -148,7 +156,19 @@ pub fn run(args: &Args) -> Result<()> {
             }
         }
         for frame in &frames {
+            let at = bytes.len();
             sil::encode_into(frame, &mut bytes)?;
+            if noise_at_ms.is_some_and(|n| t_ms >= n) {
+                noise_at_ms = None;
+                // A flipped bit inside the frame, never a delimiter made or lost.
+                let end = bytes.len().saturating_sub(1);
+                if let Some(b) = bytes
+                    .get_mut(at + 2..end)
+                    .and_then(|frame| frame.iter_mut().find(|b| **b > 1))
+                {
+                    *b ^= 0x01;
+                }
+            }
         }
         frames.clear();
         if f > 0.0 {

@@ -22,18 +22,17 @@
 //! SIGINT and SIGTERM end the run cleanly: the loop notices within one read
 //! timeout, commits and closes the run. A second signal exits at once; the
 //! batches already committed survive (WAL).
+use std::io::IsTerminal as _;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex, mpsc};
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result, bail};
 
-use heatbound_host::control::{self, LinkStatus};
-use heatbound_host::downlink::Downlink;
 use heatbound_host::ingest::{Ingest, LineStyle};
-use heatbound_host::keyfile::{self, KeyOrigin};
-use heatbound_host::link::{self, Bounds, Commands, LinkOptions, Source, now_ms};
+use heatbound_host::keyfile;
+use heatbound_host::link::{self, Bounds, LinkOptions, Source, now_ms};
+use heatbound_host::live::Live;
 use heatbound_host::store::{DEFAULT_DB, Log};
 
 /// Set by the SIGINT/SIGTERM handler.
@@ -65,8 +64,14 @@ pub struct Args {
     #[arg(long, value_name = "N")]
     pub max_summaries: Option<u64>,
     /// Do not print a line per frame (the closing summary is still printed).
-    #[arg(long)]
+    #[arg(long, conflicts_with = "json")]
     pub quiet: bool,
+    /// One line per summary, even on a terminal (no live console).
+    #[arg(long)]
+    pub plain: bool,
+    /// One JSON object per frame, one per line, instead of text.
+    #[arg(long)]
+    pub json: bool,
     /// Seconds without a byte after which a link counts as stalled: an outage, then a reconnect.
     #[arg(long, value_name = "S", default_value_t = 10.0)]
     pub stall_s: f64,
@@ -135,48 +140,40 @@ pub fn run(args: &Args) -> Result<()> {
         deadline,
         stop: Some(&STOP),
     };
-    let style = LineStyle::for_stdout(args.quiet);
+    // The console needs a terminal on both sides; JSON and --plain ask for lines.
+    let console = source.is_some()
+        && !args.plain
+        && !args.json
+        && !args.quiet
+        && std::io::stdout().is_terminal()
+        && std::io::stdin().is_terminal();
+    let style = if args.json {
+        LineStyle::Json
+    } else {
+        LineStyle::for_stdout(args.quiet)
+    };
     let mut ingest = Ingest::new(log, &name, now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
     ingest.set_summary_limit(args.max_summaries);
 
     let print = |line: &str| println!("{line}");
-    let end = match (&source, input) {
+    let end = match (source, input) {
         (Some(source), _) => {
-            let mut downlink = Downlink::new(&key, key_origin.clone());
-            let (requests_tx, requests) = mpsc::channel();
-            let status = Arc::new(Mutex::new(LinkStatus {
-                pid: std::process::id(),
-                source: name.clone(),
-                db: args.db.display().to_string(),
-                key: match &key_origin {
-                    KeyOrigin::File(p) => format!("file {}", p.display()),
-                    KeyOrigin::Demo => "demo".into(),
-                },
-                ..LinkStatus::default()
-            }));
-            let server = control::Server::start(requests_tx, Arc::clone(&status))?;
-            eprintln!("heatbound watch: {}", key_origin.describe());
+            let live = Live::start(&key, key_origin, &name, &args.db)?;
+            eprintln!("heatbound watch: {}", live.key_origin().describe());
             eprintln!(
                 "heatbound watch: commands (`heatbound ack`, `configure`, `new-run`) reach the controller through {}",
-                server.path().display()
+                live.socket().display()
             );
-            let commands = Commands {
-                downlink: &mut downlink,
-                requests: &requests,
-                status: Some(status),
-            };
-            let end = link::keep_reading(
-                &mut ingest,
-                &bounds,
-                source,
-                options,
-                Some(commands),
-                print,
-                |n| eprintln!("heatbound watch: {n}"),
-            );
-            drop(server);
-            end
+            if console {
+                let (end, done) = live.run_console(ingest, deadline, &STOP, source, options)?;
+                ingest = done;
+                end
+            } else {
+                live.run_lines(&mut ingest, &bounds, &source, options, print, |n| {
+                    eprintln!("heatbound watch: {n}")
+                })
+            }
         }
         (None, Some(file)) => {
             link::read_to_end(&mut ingest, &bounds, file, None, &name, None, print)
@@ -202,7 +199,11 @@ pub fn run(args: &Args) -> Result<()> {
     let totals = ingest
         .finish(now_ms())
         .with_context(|| format!("cannot close the run in {}", args.db.display()))?;
-    println!("{}", link::closing_line(&totals, end, &args.db));
+    if args.json {
+        eprintln!("{}", link::closing_line(&totals, end, &args.db));
+    } else {
+        println!("{}", link::closing_line(&totals, end, &args.db));
+    }
     eprintln!("{}", heatbound_host::term::SAFETY_NOTE);
     Ok(())
 }
