@@ -648,10 +648,7 @@ fn alarm_line(row: &AlarmRow, selected: bool, width: usize) -> Line<'static> {
 fn draw_link(frame: &mut Frame, area: Rect, model: &Model, holder: &Holder, now_ms: i64) {
     let width = area.width as usize;
     let t = &model.link;
-    let fresh = model
-        .link_news
-        .as_ref()
-        .filter(|(at, _)| now_ms - at < 15_000);
+    let fresh = model.fresh_news(now_ms, 15_000);
     let (state, state_style) = match (&model.link_down, &holder.ended) {
         (_, Some(why)) => (format!("■ ended ({why})"), DIM),
         (Some(_), None) => ("✖ down".to_string(), Style::new().fg(Color::Red)),
@@ -676,9 +673,9 @@ fn draw_link(frame: &mut Frame, area: Rect, model: &Model, holder: &Holder, now_
     } else {
         "commands: ✗ no way back".to_string()
     };
-    let news = fresh.map(|(_, news)| {
+    let news = (!fresh.is_empty()).then(|| {
         Span::styled(
-            format!(" ⚠ {news} "),
+            format!(" ⚠ {} ", fresh.join(", ")),
             Style::new().fg(Color::Black).bg(Color::Yellow),
         )
     });

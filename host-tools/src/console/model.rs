@@ -156,9 +156,9 @@ pub struct Model {
     pub last_frame_ms: Option<i64>,
     /// Replies seen, newest last (at most 8).
     pub replies: VecDeque<(Reply, i64)>,
-    /// Host time of the latest event of the link (loss, gap, restart,
-    /// outage), and what it was: shown when it happens.
-    pub link_news: Option<(i64, String)>,
+    /// The latest events of the link (loss, gap, restart, outage) with
+    /// their host times, newest last: shown when they happen.
+    pub link_news: VecDeque<(i64, String)>,
     previous_summary: Option<Summary>,
 }
 
@@ -197,17 +197,33 @@ impl Model {
             } => {
                 if *up {
                     if self.link_down.take().is_some() {
-                        self.link_news = Some((*host_ms, "link back".into()));
+                        self.news(*host_ms, "link back".into());
                     }
                 } else {
                     let why = reason.clone().unwrap_or_else(|| "link down".into());
-                    self.link_news = Some((*host_ms, format!("link down: {why}")));
+                    self.news(*host_ms, format!("link down: {why}"));
                     self.link_down = Some((*host_ms, why));
                     // The trends do not join across an outage.
                     self.previous_summary = None;
                 }
             }
         }
+    }
+
+    fn news(&mut self, host_ms: i64, what: String) {
+        self.link_news.push_back((host_ms, what));
+        while self.link_news.len() > 4 {
+            self.link_news.pop_front();
+        }
+    }
+
+    /// The link's news of the last `within_ms` before `now_ms`, oldest first.
+    pub fn fresh_news(&self, now_ms: i64, within_ms: i64) -> Vec<&str> {
+        self.link_news
+            .iter()
+            .filter(|(at, _)| now_ms - at < within_ms)
+            .map(|(_, what)| what.as_str())
+            .collect()
     }
 
     fn counters(&mut self, t: Totals) {
@@ -232,7 +248,7 @@ impl Model {
             .collect();
         if !said.is_empty() {
             let at = self.last_frame_ms.unwrap_or(0);
-            self.link_news = Some((at, said.join(", ")));
+            self.news(at, said.join(", "));
         }
         self.link = t;
     }
