@@ -1,18 +1,27 @@
 #!/usr/bin/env bash
-# End-to-end test in the emulator: the release firmware (thermocouple-drift,
-# 600 s of rig time) boots in QEMU mps2-an386, UART0 goes to a file,
-# `heatbound watch` logs it, and the test asserts that beyond_carnot was
-# raised and that `heatbound audit` finds the record trustworthy.
+# End-to-end test in the emulator, in two parts:
 #
-# Usage: firmware-example/scripts/emulator-test.sh
+# 1. recorded: the firmware (profile `firmware`, thermocouple-drift, 600 s
+#    of rig time) boots in QEMU mps2-an386, UART0 goes to a file,
+#    `heatbound watch` logs it, and the test asserts that beyond_carnot was
+#    raised and that `heatbound audit` finds the record trustworthy;
+# 2. live, both directions (emulator-live-test.sh): the endless build over
+#    TCP with `heatbound watch` holding the link; acknowledge, configure, a
+#    forged and a replayed command, audit. About 45 s at its default
+#    HEATBOUND_SPEEDUP of 15.
+#
+# Usage: firmware-example/scripts/emulator-test.sh [--recorded-only]
 set -euo pipefail
 source "$(dirname "$0")/common.sh"
 need qemu-system-arm "apt-get install qemu-system-arm"
 
+recorded_only=0
+[ "${1:-}" != --recorded-only ] || recorded_only=1
+
 WORK="$(mktemp -d)"
 trap 'rm -rf "$WORK"' EXIT
 
-echo "==> build: firmware (release, $M4_TARGET) and host tool"
+echo "==> build: firmware (profile $PROFILE, $M4_TARGET) and host tool"
 HEATBOUND_SCENARIO=thermocouple-drift HEATBOUND_DURATION_S=600 build_m4
 build_host
 
@@ -39,4 +48,9 @@ grep -q 'beyond_carnot_active=true' "$WORK/semihosting.txt" ||
 
 echo "==> heatbound audit"
 "$HOST_BIN" audit "$WORK/log.db" | grep -E '^(integrity|recomputation|second law|alarm consistency|verdict)'
-echo "PASS: emulator test"
+echo "PASS: emulator test, recorded"
+[ "$recorded_only" = 0 ] || exit 0
+
+echo "==> live: QEMU <-> TCP <-> heatbound watch, with commands"
+bash "$(dirname "$0")/emulator-live-test.sh"
+echo "PASS: emulator test, recorded and live"

@@ -18,8 +18,7 @@ OUT="$(mktemp -d)"
 trap 'rm -rf "$OUT"' EXIT
 
 build_m4 measure
-(cd "$REPO" && cargo build -q -p heatbound-firmware-example --release \
-    --target "$M0_TARGET" --features bare-metal --bin heatbound-microbit)
+build_m0
 
 timeout 120 "${QEMU_M4[@]}" -icount shift=0 -serial null -kernel "$M4_ELF" 2>"$OUT/m4.txt" >/dev/null
 timeout 300 "${QEMU_M0[@]}" -icount shift=0 -kernel "$M0_ELF" 2>"$OUT/m0.txt" >/dev/null

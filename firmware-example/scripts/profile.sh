@@ -17,8 +17,7 @@ SAMPLES="${2:-600}"
 export HEATBOUND_MEASURE_SAMPLES="$SAMPLES"
 case "$CORE" in
     m4) build_m4 measure; ELF="$M4_ELF"; QEMU=("${QEMU_M4[@]}" -serial null) ;;
-    m0) (cd "$REPO" && cargo build -q -p heatbound-firmware-example --release \
-            --target "$M0_TARGET" --features bare-metal --bin heatbound-microbit)
+    m0) build_m0
         ELF="$M0_ELF"; QEMU=("${QEMU_M0[@]}") ;;
     *) echo "usage: $0 [m4|m0] [samples]" >&2; exit 2 ;;
 esac

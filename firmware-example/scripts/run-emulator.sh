@@ -48,19 +48,8 @@ trap cleanup EXIT INT TERM
 if [ "$serve" = 1 ]; then
     [ $# -eq 0 ] || { echo "error: --serve runs no watch, so it takes no watch arguments: $*" >&2; exit 2; }
     need python3
-    # A free port, asked of the kernel: another process may take it before
-    # QEMU binds it, so a failed bind is retried with a new one.
-    free_port() {
-        python3 -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])'
-    }
-    listening() { # listening PORT: a TCP listener on 127.0.0.1:PORT
-        python3 - "$1" <<'PY'
-import sys
-want = "0100007F:%04X" % int(sys.argv[1])  # /proc/net/tcp: little-endian 127.0.0.1, hex port
-with open("/proc/net/tcp") as f:
-    sys.exit(0 if any(l.split()[1] == want and l.split()[3] == "0A" for l in list(f)[1:]) else 1)
-PY
-    }
+    # free_port and listening (common.sh): a port taken before QEMU binds
+    # it is retried with a new one.
     for _ in 1 2 3 4 5; do
         port="${PORT:-$(free_port)}"
         "${QEMU_M4[@]}" -chardev "socket,id=u0,host=127.0.0.1,port=$port,server=on,wait=off" \

@@ -192,6 +192,9 @@ pub struct Ingest {
     replies: Vec<(Reply, i64)>,
     /// Who else hears of each frame, the counters and the link.
     observer: Option<std::sync::mpsc::Sender<Observed>>,
+    /// The run was ended on purpose (a signal, a bound, the operator):
+    /// a frame cut off by that is not a loss of the link.
+    stopped: bool,
 }
 
 /// A replayed section not yet logged.
@@ -241,7 +244,15 @@ impl Ingest {
             held_hello: None,
             replies: Vec::new(),
             observer: None,
+            stopped: false,
         })
+    }
+
+    /// The run is being ended on purpose (a signal, a time bound, the
+    /// operator leaving): a frame the link was in the middle of is dropped
+    /// by [`Ingest::finish`] without counting it as lost.
+    pub fn stopped(&mut self) {
+        self.stopped = true;
     }
 
     /// Tells `observer` of every frame logged, the counters after every
@@ -394,8 +405,9 @@ impl Ingest {
     /// Ends the run at `host_ms`: counts a frame left unfinished as a loss,
     /// closes an open outage, commits, and returns the totals.
     pub fn finish(mut self, host_ms: i64) -> Result<Totals, StoreError> {
-        // A frame cut off by the end of the input is a loss too.
-        if self.decoder.has_unfinished() && !self.limit_reached() {
+        // A frame cut off by the end of the input is a loss too; not one
+        // cut off because the run was ended on purpose mid-frame.
+        if self.decoder.has_unfinished() && !self.limit_reached() && !self.stopped {
             self.feed(&[0], host_ms, |_| {})?;
             self.totals.bytes = self.totals.bytes.saturating_sub(1);
         }

@@ -364,6 +364,9 @@ pub fn read_to_end(
     }
     loop {
         if let Some(end) = bounds.check(ingest) {
+            if matches!(end, End::Signal | End::Duration) {
+                ingest.stopped();
+            }
             return Ok(end);
         }
         let n = match r.read(&mut buf) {
@@ -418,6 +421,9 @@ pub fn keep_reading(
     let mut last_byte = Instant::now();
     loop {
         if let Some(end) = bounds.check(ingest) {
+            if matches!(end, End::Signal | End::Duration) {
+                ingest.stopped();
+            }
             return Ok(end);
         }
         let Some(link) = conn.as_mut() else {

@@ -10,7 +10,7 @@
 //! ```text
 //! SimBench (rig, RefCell) --SPI/I2C bytes, pulses--> App::tick(t_ms) --> wire frames --> UART0 TX (0x4000_4000)
 //! UART0 RX --polled between samples, never waited for--> App::receive(bytes, t_ms) --> Reply (+ Events, Hello)
-//!                                                      \--> heprintln!: run summary, stack high-water mark
+//!                                                      \--> diag (semihosting stderr): run summary, stack high-water mark
 //! ```
 //!
 //! ## Hello and commands
@@ -48,6 +48,12 @@
 //!
 //! The scenario and seed are fixed at build time ([`build_env`]).
 //!
+//! Diagnostics are written by [`diag`] without `core::fmt`, and a panic
+//! exits QEMU with status 1 after a line naming its place (file and line,
+//! and the message when it is a plain string), also without formatting: the
+//! image must fit 64 KiB of flash. The `measure` build keeps
+//! `panic-semihosting` and `heprintln!`.
+//!
 //! The trip output here is a simulated pin: it is a monitoring aid, not a
 //! safety interlock.
 #![no_std]
@@ -58,6 +64,9 @@
 #[cfg_attr(feature = "measure", allow(dead_code))]
 #[path = "../shared/build_env.rs"]
 mod build_env;
+// A measuring build prints only the stack line and failures through it.
+#[cfg_attr(feature = "measure", allow(dead_code))]
+mod diag;
 #[path = "../shared/hw.rs"]
 mod hw;
 #[cfg(feature = "measure")]
@@ -68,15 +77,17 @@ mod uart;
 
 use cortex_m_rt::entry;
 use cortex_m_semihosting::debug::{self, EXIT_FAILURE, EXIT_SUCCESS};
-use cortex_m_semihosting::heprintln;
+#[cfg(feature = "measure")]
 use panic_semihosting as _;
+
+use diag::Line;
 
 #[cfg(not(feature = "measure"))]
 use run::run;
 
 /// Fails the run: a message on semihosting stderr, QEMU exits with 1.
 fn fail(why: &str) -> ! {
-    heprintln!("heatbound-mps2-an386: {}", why);
+    Line::new().str("heatbound-mps2-an386: ").str(why).emit();
     debug::exit(EXIT_FAILURE);
     #[allow(clippy::empty_loop)]
     loop {}
@@ -84,8 +95,31 @@ fn fail(why: &str) -> ! {
 
 /// Ends the run: QEMU exits with 0.
 fn finish() -> ! {
-    heprintln!("stack.high_water_bytes={}", hw::stack_high_water_bytes());
+    Line::new()
+        .str("stack.high_water_bytes=")
+        .usize(hw::stack_high_water_bytes())
+        .emit();
     debug::exit(EXIT_SUCCESS);
+    #[allow(clippy::empty_loop)]
+    loop {}
+}
+
+/// A panic: a line with its place (and its message when that is a plain
+/// string), then QEMU exits with 1. Nothing is formatted.
+#[cfg(not(feature = "measure"))]
+#[panic_handler]
+fn panic(info: &core::panic::PanicInfo) -> ! {
+    cortex_m::interrupt::disable();
+    let mut line = Line::new();
+    line.str("heatbound-mps2-an386: panicked");
+    if let Some(at) = info.location() {
+        line.str(" at ").str(at.file()).str(":").u32(at.line());
+    }
+    if let Some(message) = info.message().as_str() {
+        line.str(": ").str(message);
+    }
+    line.emit();
+    debug::exit(EXIT_FAILURE);
     #[allow(clippy::empty_loop)]
     loop {}
 }
@@ -113,7 +147,6 @@ mod run {
     use core::cell::RefCell;
 
     use cortex_m::peripheral::SYST;
-    use cortex_m_semihosting::heprintln;
     use heatbound::alarm::RuleId;
     use heatbound::config::RigConfig;
     use heatbound::wire::{CommandKey, ReplyCode, RigId};
@@ -124,6 +157,7 @@ mod run {
     };
 
     use crate::build_env;
+    use crate::diag::Line;
     use crate::uart::{self, Uart0Rx, Uart0Tx};
 
     /// Monitor window, samples.
@@ -193,12 +227,15 @@ mod run {
         let Some(app) = cortex_m::singleton!(APP: BoardApp = app) else {
             crate::fail("app already built");
         };
-        heprintln!(
-            "heatbound-mps2-an386: scenario {} seed {} session {} (demo key)",
-            scenario.name(),
-            build_env::SEED,
-            build_env::SESSION
-        );
+        Line::new()
+            .str("heatbound-mps2-an386: scenario ")
+            .str(scenario.name())
+            .str(" seed ")
+            .u64(build_env::SEED)
+            .str(" session ")
+            .u32(build_env::SESSION)
+            .str(" (demo key)")
+            .emit();
         #[cfg(feature = "defmt")]
         defmt::info!("boot: scenario {=str}", scenario.name());
 
@@ -244,32 +281,42 @@ mod run {
     /// The run's summary on semihosting stderr.
     fn report(app: &BoardApp, t_ms: u32) {
         let stats = app.stats();
-        heprintln!(
-            "run.t_ms={} ticks={} frames_sent={} uart_errors={} encode_errors={}",
-            t_ms,
-            stats.ticks,
-            stats.frames_sent,
-            stats.uart_errors,
-            stats.encode_errors
-        );
-        heprintln!(
-            "run.invalid_samples={} trip={} beyond_carnot_active={}",
-            app.monitor().invalid_samples(),
-            app.trip_output(),
-            app.alarms().is_active(RuleId::BeyondCarnot)
-        );
+        Line::new()
+            .str("run.t_ms=")
+            .u32(t_ms)
+            .str(" ticks=")
+            .u32(stats.ticks)
+            .str(" frames_sent=")
+            .u32(stats.frames_sent)
+            .str(" uart_errors=")
+            .u32(stats.uart_errors)
+            .str(" encode_errors=")
+            .u32(stats.encode_errors)
+            .emit();
+        Line::new()
+            .str("run.invalid_samples=")
+            .u64(app.monitor().invalid_samples())
+            .str(" trip=")
+            .bool(app.trip_output())
+            .str(" beyond_carnot_active=")
+            .bool(app.alarms().is_active(RuleId::BeyondCarnot))
+            .emit();
         let rx = app.controller().receiver_stats();
         let replies = app.controller().stats();
         let applied = replies.count(ReplyCode::Applied);
         let refused = replies.replies.iter().sum::<u32>().saturating_sub(applied);
-        heprintln!(
-            "run.rx_bytes={} commands={} crc_errors={} applied={} refused={}",
-            stats.rx_bytes,
-            rx.commands,
-            rx.crc_errors,
-            applied,
-            refused
-        );
+        Line::new()
+            .str("run.rx_bytes=")
+            .u32(stats.rx_bytes)
+            .str(" commands=")
+            .u32(rx.commands)
+            .str(" crc_errors=")
+            .u32(rx.crc_errors)
+            .str(" applied=")
+            .u32(applied)
+            .str(" refused=")
+            .u32(refused)
+            .emit();
         #[cfg(feature = "defmt")]
         defmt::info!("done: {=u32} frames", stats.frames_sent);
     }

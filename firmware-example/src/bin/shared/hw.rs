@@ -1,10 +1,35 @@
 //! The few things the bare-metal binaries do below safe Rust: painting the
-//! stack to measure its high-water mark, and a block of a known number of
-//! instructions to calibrate the SysTick instruction counter.
+//! stack to measure its high-water mark, a block of a known number of
+//! instructions to calibrate the SysTick instruction counter, and the
+//! device part of the vector table.
 //!
 //! Where it sits: called by `main` at boot (paint), at exit (high-water
-//! mark) and by the measurement mode (calibration).
+//! mark) and by the measurement mode (calibration); the vector table is
+//! read by the core at reset and on an interrupt.
 #![allow(unsafe_code)]
+
+/// Device interrupts the vector table has entries for: the 32 an Armv6-M
+/// core can have (the nRF51 uses 26 of them), and the first 32 of
+/// mps2-an386's (its UARTs, timers and GPIO are among them).
+const DEVICE_INTERRUPTS: usize = 32;
+
+unsafe extern "C" {
+    /// cortex-m-rt's handler for any exception or interrupt without its
+    /// own (it loops forever).
+    fn DefaultHandler();
+}
+
+/// The device interrupts' part of the vector table, which cortex-m-rt's
+/// `device` feature leaves to the application (a peripheral access crate
+/// would provide it). Without that feature cortex-m-rt fills in 240
+/// entries, 960 bytes of flash for the Cortex-M4F image, which fits the
+/// 64 KiB budget only without them. No binary here enables an interrupt
+/// (UART0 is polled, SysTick is read without its exception), so every
+/// entry is `DefaultHandler`.
+#[unsafe(link_section = ".vector_table.interrupts")]
+#[unsafe(no_mangle)]
+static __INTERRUPTS: [unsafe extern "C" fn(); DEVICE_INTERRUPTS] =
+    [DefaultHandler; DEVICE_INTERRUPTS];
 
 /// The word the free stack is filled with at boot.
 const PAINT: u32 = 0xC0DE_57AC;
