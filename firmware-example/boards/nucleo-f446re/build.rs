@@ -3,9 +3,9 @@
 //!
 //! - `memory.x` (this board's map) is copied into `OUT_DIR`, which goes on
 //!   the linker's search path: cortex-m-rt's `link.x` includes the first
-//!   `memory.x` it finds, and the firmware library's own build script puts
-//!   the QEMU map on the path as well. `board.x` fails the link if the map
-//!   in use is not this board's.
+//!   `memory.x` it finds. `board.x` fails the link if the map in use is not
+//!   this board's, should another crate in the build graph ever put its own
+//!   on the path.
 //! - `budget.x` fails the link if the deployable image (release, no
 //!   `defmt`) exceeds the project's budget: 64 KiB of flash, 16 KiB of
 //!   static RAM.
