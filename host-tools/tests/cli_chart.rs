@@ -1,6 +1,7 @@
 //! `heatbound chart`: a picture of a logged run, PNG or SVG, with its axes and
 //! series named, run selection, the device clock's wrap, and one-line errors
-//! with exit status 2.
+//! with exit status 2. Records that break (outages, restarts, new runs) are in
+//! `chart_breaks.rs`.
 use std::path::{Path, PathBuf};
 
 use assert_cmd::Command;
@@ -183,17 +184,24 @@ fn an_svg_names_its_axes_series_and_alarm_events() {
     assert!(text.starts_with("<svg"), "{}", &text[..text.len().min(200)]);
     assert!(text.contains(r#"width="1400""#) && text.contains(r#"height="1000""#));
     for label in [
-        // The three panels' axes and the shared time axis.
-        "efficiency η, Carnot η_C",
-        "entropy generation Ṡ_gen (W/K)",
+        // The four panels' axes (titles wrapped to the panel's height) and
+        // the shared time axis.
+        "efficiency η, Carnot",
+        "entropy generation",
+        "(W/K)",
         "temperature (K)",
-        "rig time (s)",
+        "mean power (W)",
+        "device time (s)",
         // The series.
         "η = W/Q_in",
         "η_C = 1 − T_c/T_h",
         "± k·u, k = 2",
         "T_h, heat-weighted hot-side mean",
+        "T_c, heat-weighted cold-side mean",
         "T0, ambient used by the device",
+        "Q_in/Δt, heat in",
+        "W/Δt, work",
+        "Q_out/Δt, heat out",
         "second-law alarm active",
         // The title: rig, firmware, run and time span.
         "rig bench-sim · firmware 0.1.0 · run 1 · t = 1.0–600.0 s",
@@ -210,6 +218,10 @@ fn an_svg_names_its_axes_series_and_alarm_events() {
     }
     // The second-law alarm spans are shaded: rectangles in the alarm colour.
     assert!(text.contains("#F0B429"), "no alarm shading");
+    // An unbroken record: nothing marked, no strip of marks' words.
+    for absent in ["link down", "restart", "new run", "session"] {
+        assert!(!text.contains(absent), "{absent:?} in the SVG");
+    }
 }
 
 #[test]
@@ -279,9 +291,15 @@ fn the_time_axis_runs_through_the_device_clock_wrap() {
     );
     let text = std::fs::read_to_string(&svg).expect("the SVG");
     assert!(text.contains("(9 s)"), "the title's duration");
+    // The event's device time, as watch printed it (t_ms 2500 after the
+    // wrap), and where it is on the axis that runs on through the wrap.
     assert!(
-        text.contains("near_carnot: raised 4294969.8 s"),
+        text.contains("near_carnot: raised 2.5 s (4294969.8 s on the axis)"),
         "the event, placed"
+    );
+    assert!(
+        text.contains("device time (s); the device clock wrapped at 2^32 ms"),
+        "the wrap, said"
     );
 }
 
