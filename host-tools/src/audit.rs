@@ -497,6 +497,33 @@ pub fn audit_log(
     run: Option<RunId>,
     config: &RigConfig,
 ) -> Result<Report, LogAuditError> {
+    audit_log_with_progress(log, run, config, None)
+}
+
+/// Frames between progress updates: keeps the bar off the per-frame path.
+const PROGRESS_EVERY_FRAMES: u64 = 4096;
+
+/// [`audit_log`], moving `progress` (if any) in frames through its two
+/// phases, named in the bar's prefix: `reading` the run's rows (its length
+/// the summaries the log holds, grown if more frames come), then
+/// `checking` them. The caller makes, shows and finishes the bar.
+///
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound_host::{audit, store::Log};
+/// let dir = tempfile::tempdir().unwrap();
+/// let log = Log::open(&dir.path().join("run.sqlite")).unwrap();
+/// let bar = indicatif::ProgressBar::hidden();
+/// // An empty log has no run to audit, and leaves the bar where it was.
+/// assert!(audit::audit_log_with_progress(&log, None, &RigConfig::default(), Some(&bar)).is_err());
+/// assert_eq!(bar.position(), 0);
+/// ```
+pub fn audit_log_with_progress(
+    log: &Log,
+    run: Option<RunId>,
+    config: &RigConfig,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Report, LogAuditError> {
     let name = log.path().display().to_string();
     let runs = log.runs()?;
     let info = match run {
@@ -522,7 +549,21 @@ pub fn audit_log(
         "the run's time (started {start}{})",
         end.map_or_else(String::new, |e| format!(", ended {e}"))
     );
-    for stored in log.frames(id)? {
+    if let Some(bar) = progress {
+        bar.set_prefix("reading");
+        bar.set_length(info.summaries);
+        bar.set_position(0);
+    }
+    for (read, stored) in (0u64..).zip(log.frames(id)?) {
+        if let Some(bar) = progress
+            && read.is_multiple_of(PROGRESS_EVERY_FRAMES)
+        {
+            // Hellos, events and replies come on top of the summaries.
+            if bar.length().is_some_and(|len| read > len) {
+                bar.set_length(read);
+            }
+            bar.set_position(read);
+        }
         match stored {
             Ok(s) => {
                 if outside(s.host_ms) {
@@ -641,7 +682,7 @@ pub fn audit_log(
             message: format!("link down: {}", o.reason),
         })
         .collect();
-    Ok(audit_with(
+    Ok(audit_with_progress(
         &Input {
             frames: &frames,
             decoder: stats,
@@ -649,6 +690,7 @@ pub fn audit_log(
         },
         &facts,
         config,
+        progress,
     ))
 }
 
@@ -668,9 +710,44 @@ pub fn audit(input: &Input<'_>, config: &RigConfig) -> Report {
 
 /// [`audit`] with what a log adds to its frames.
 pub fn audit_with(input: &Input<'_>, facts: &LogFacts, config: &RigConfig) -> Report {
+    audit_with_progress(input, facts, config, None)
+}
+
+/// [`audit_with`], moving `progress` (if any) through the frames checked:
+/// its prefix becomes `checking`, its length the number of frames. The
+/// caller makes, shows and finishes the bar.
+///
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound::wire::DecoderStats;
+/// use heatbound_host::audit::{Input, LogFacts, audit_with_progress};
+/// let input = Input { frames: &[], decoder: DecoderStats::default(), link_errors: &[] };
+/// let bar = indicatif::ProgressBar::hidden();
+/// let report = audit_with_progress(&input, &LogFacts::default(), &RigConfig::default(), Some(&bar));
+/// assert!(!report.trustworthy);
+/// assert_eq!((bar.position(), bar.length()), (0, Some(0)));
+/// ```
+pub fn audit_with_progress(
+    input: &Input<'_>,
+    facts: &LogFacts,
+    config: &RigConfig,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Report {
+    if let Some(bar) = progress {
+        bar.set_prefix("checking");
+        bar.set_length(u64::try_from(input.frames.len()).unwrap_or(u64::MAX));
+        bar.set_position(0);
+        bar.reset_eta();
+    }
     let mut auditor = Auditor::new(config);
     let mut placeholders = facts.placeholders.iter().copied().peekable();
     for (i, r) in input.frames.iter().enumerate() {
+        if let Some(bar) = progress {
+            let i = u64::try_from(i).unwrap_or(u64::MAX);
+            if i.is_multiple_of(PROGRESS_EVERY_FRAMES) {
+                bar.set_position(i);
+            }
+        }
         let placeholder = placeholders.next_if_eq(&i).is_some();
         auditor.frame(&r.frame, !placeholder);
         if r.host_ms.is_some() {
@@ -678,6 +755,9 @@ pub fn audit_with(input: &Input<'_>, facts: &LogFacts, config: &RigConfig) -> Re
         }
     }
     auditor.take_held_hello();
+    if let Some(bar) = progress {
+        bar.set_position(u64::try_from(input.frames.len()).unwrap_or(u64::MAX));
+    }
     auditor.finish(input, facts)
 }
 

@@ -95,10 +95,35 @@ pub fn is_database(path: &Path) -> Result<bool, CaptureError> {
 
 /// Decodes a raw capture with the core decoder.
 pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats), CaptureError> {
+    read_capture_with_progress(path, None)
+}
+
+/// [`read_capture`], moving `progress` (if any) to the bytes decoded so
+/// far; its length is set to the file's size. The caller makes, shows and
+/// finishes the bar.
+///
+/// ```
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("noise.bin");
+/// std::fs::write(&path, [0x55u8; 1000]).unwrap();
+/// let bar = indicatif::ProgressBar::hidden();
+/// let (frames, _) = heatbound_host::capture::read_capture_with_progress(&path, Some(&bar)).unwrap();
+/// assert!(frames.is_empty());
+/// assert_eq!((bar.position(), bar.length()), (1000, Some(1000)));
+/// ```
+pub fn read_capture_with_progress(
+    path: &Path,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<(Vec<Received>, DecoderStats), CaptureError> {
     let file = File::open(path).map_err(|source| CaptureError::Open {
         path: path.to_owned(),
         source,
     })?;
+    if let Some(bar) = progress
+        && let Ok(meta) = file.metadata()
+    {
+        bar.set_length(meta.len());
+    }
     let mut reader = BufReader::new(file);
     let mut decoder = Decoder::<{ wire::MAX_FRAME_LEN }>::new();
     let mut frames = Vec::new();
@@ -115,6 +140,10 @@ pub fn read_capture(path: &Path) -> Result<(Vec<Received>, DecoderStats), Captur
                 });
             }
         };
+        if let Some(bar) = progress {
+            // One update per 64 KiB read: far below the decoder's cost.
+            bar.inc(n as u64);
+        }
         decoder.feed(&buf[..n], |r| {
             if let Ok(frame) = r {
                 frames.push(Received {
@@ -144,6 +173,17 @@ pub fn audit_database(
     run: Option<i64>,
     config: &RigConfig,
 ) -> Result<Report, CaptureError> {
+    audit_database_with_progress(path, run, config, None)
+}
+
+/// [`audit_database`], moving `progress` (if any) through the frames read
+/// and then checked ([`audit::audit_log_with_progress`]).
+pub fn audit_database_with_progress(
+    path: &Path,
+    run: Option<i64>,
+    config: &RigConfig,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Report, CaptureError> {
     let log = Log::open_read(path)?;
-    Ok(audit::audit_log(&log, run, config)?)
+    Ok(audit::audit_log_with_progress(&log, run, config, progress)?)
 }

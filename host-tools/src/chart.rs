@@ -40,7 +40,7 @@
 //! The bitmap backend sets each glyph at its pen position without the
 //! glyph's left side bearing (plotters 0.3.7, `FontDataInternal::draw` with
 //! ab_glyph), which opened gaps inside words ("firm ware"); text is set here
-//! glyph by glyph from the font's own metrics (module `glyphs`) instead. The SVG
+//! glyph by glyph where ab_glyph's metrics put each glyph instead. The SVG
 //! keeps its text as text.
 use std::collections::BTreeSet;
 use std::fs::File;

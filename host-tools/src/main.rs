@@ -1,7 +1,7 @@
 //! `heatbound`: the host tool.
 use std::process::ExitCode;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory as _, Parser, Subcommand};
 
 mod cmd;
 use heatbound_host::term::SAFETY_NOTE;
@@ -37,6 +37,10 @@ enum Command {
     Configure(cmd::operate::ConfigureArgs),
     /// Start a new run on the controller (its run totals start afresh), through the running `watch`.
     NewRun(cmd::operate::NewRunArgs),
+    /// Print the shell completion script for bash, zsh, fish, elvish or powershell.
+    Completions(cmd::shell::CompletionsArgs),
+    /// Print the man page heatbound(1) as roff, or write one page per command with --out DIR.
+    Man(cmd::shell::ManArgs),
 }
 
 /// A usage error as one line: clap's message up to its first blank line,
@@ -89,6 +93,8 @@ fn main() -> ExitCode {
         Command::Ack(args) => cmd::operate::ack(&args),
         Command::Configure(args) => cmd::operate::configure(&args),
         Command::NewRun(args) => cmd::operate::new_run(&args),
+        Command::Completions(args) => cmd::shell::completions(&args, Cli::command()),
+        Command::Man(args) => cmd::shell::man(&args, Cli::command()),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -169,3 +169,336 @@ pub fn os_words(e: &std::io::Error) -> String {
         None => text,
     }
 }
+
+/// Inputs at least this large get their progress bar at once; a job on a
+/// smaller input shows one only if it is still running after
+/// [`PROGRESS_AFTER`].
+pub const PROGRESS_MIN_BYTES: u64 = 1 << 20;
+
+/// How long a job on a small input runs before its progress bar appears.
+pub const PROGRESS_AFTER: std::time::Duration = std::time::Duration::from_secs(1);
+
+/// What a progress bar counts, which decides how its figures read.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum Counting {
+    /// Bytes of an input file (shown in KiB, MiB, GiB).
+    Bytes,
+    /// Rows of a table.
+    Rows,
+    /// Frames of a capture or a log.
+    Frames,
+}
+
+/// The look of a bar that counts `counting`: label, phase (the bar's
+/// prefix), bar, done of total, throughput and time left.
+///
+/// ```
+/// use heatbound_host::term::{Counting, progress_style};
+/// let bar = indicatif::ProgressBar::hidden();
+/// bar.set_style(progress_style(Counting::Rows));
+/// ```
+pub fn progress_style(counting: Counting) -> indicatif::ProgressStyle {
+    let figures = match counting {
+        Counting::Bytes => "{binary_bytes}/{binary_total_bytes} ({binary_bytes_per_sec}",
+        Counting::Rows => "{human_pos}/{human_len} rows ({per_sec:0}",
+        Counting::Frames => "{human_pos}/{human_len} frames ({per_sec:0}",
+    };
+    let template = format!("{{msg}} {{prefix}} {{wide_bar}} {figures}, {{eta}} left)");
+    indicatif::ProgressStyle::with_template(&template)
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+}
+
+/// A progress bar on stderr for a job over `len` units of what `counting`
+/// names, reading an input of `input_bytes` bytes; `label` leads the line
+/// and the prefix names the phase (`reading`, `checking`: the engines
+/// that have phases set it).
+///
+/// An input of at least [`PROGRESS_MIN_BYTES`] shows the bar at once; a
+/// smaller one only if the job is still running after [`PROGRESS_AFTER`],
+/// so quick jobs never flash one. indicatif draws nothing when stderr is
+/// not a terminal, and stdout is never touched. The engines only move the
+/// bar; the command finishes it (`finish_and_clear`) before it prints.
+///
+/// ```
+/// use heatbound_host::term::{Counting, progress_bar};
+/// let bar = progress_bar("analyze run.csv", 4096, Counting::Bytes, 4096);
+/// bar.set_position(2048);
+/// assert_eq!(bar.position(), 2048);
+/// bar.finish_and_clear();
+/// ```
+pub fn progress_bar(
+    label: &str,
+    len: u64,
+    counting: Counting,
+    input_bytes: u64,
+) -> indicatif::ProgressBar {
+    use indicatif::{ProgressBar, ProgressDrawTarget};
+    let bar = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::hidden())
+        .with_style(progress_style(counting))
+        .with_message(label.to_string())
+        .with_prefix(match counting {
+            Counting::Bytes | Counting::Rows => "reading",
+            Counting::Frames => "checking",
+        })
+        // An error that ends the job early leaves no bar behind.
+        .with_finish(indicatif::ProgressFinish::AndClear);
+    if input_bytes >= PROGRESS_MIN_BYTES {
+        bar.set_draw_target(ProgressDrawTarget::stderr());
+    } else {
+        let later = bar.downgrade();
+        // A bar the job has finished (or dropped) by then stays hidden. If
+        // no thread can be had, the small job simply shows no bar.
+        let _ = std::thread::Builder::new()
+            .name("progress".into())
+            .spawn(move || {
+                std::thread::sleep(PROGRESS_AFTER);
+                if let Some(bar) = later.upgrade()
+                    && !bar.is_finished()
+                {
+                    bar.set_draw_target(ProgressDrawTarget::stderr());
+                }
+            });
+    }
+    bar
+}
+
+/// How to run `heatbound` with `words` (a subcommand and its arguments)
+/// from here, as a line that works when pasted into a shell: `heatbound …`
+/// when `heatbound` is on `PATH`; else, under `cargo run`, the same `cargo
+/// run` (its profile, and `--manifest-path` outside the workspace); else
+/// this executable's path. Words a shell would split or expand are quoted.
+///
+/// ```
+/// let hint = heatbound_host::term::how_to_run(&["audit", "my run.sqlite"]);
+/// assert!(hint.ends_with(" audit 'my run.sqlite'"), "{hint}");
+/// ```
+pub fn how_to_run(words: &[&str]) -> String {
+    how_to_run_as(&Invocation::current(), words)
+}
+
+/// How this process was started, as far as [`how_to_run`] needs it.
+#[derive(Clone, Debug, Default)]
+struct Invocation {
+    /// An executable `heatbound` is on `PATH`.
+    on_path: bool,
+    /// `cargo run` started us: the package's folder (`CARGO_MANIFEST_DIR`).
+    manifest_dir: Option<std::path::PathBuf>,
+    /// This executable.
+    exe: Option<std::path::PathBuf>,
+    /// The working folder.
+    cwd: Option<std::path::PathBuf>,
+}
+
+impl Invocation {
+    fn current() -> Self {
+        let on_path = std::env::var_os("PATH").is_some_and(|path| {
+            std::env::split_paths(&path).any(|dir| is_executable(&dir.join("heatbound")))
+        });
+        // Cargo sets these for the program it runs; only our own package's
+        // folder counts (a test harness of another crate sets its own).
+        let manifest_dir = std::env::var_os("CARGO_MANIFEST_DIR")
+            .filter(|_| std::env::var_os("CARGO_PKG_NAME").is_some_and(|n| n == "heatbound-host"))
+            .map(std::path::PathBuf::from);
+        Invocation {
+            on_path,
+            manifest_dir,
+            exe: std::env::current_exe().ok(),
+            cwd: std::env::current_dir().ok(),
+        }
+    }
+}
+
+/// Whether `path` is a file someone may execute.
+fn is_executable(path: &std::path::Path) -> bool {
+    match std::fs::metadata(path) {
+        #[cfg(unix)]
+        Ok(m) => {
+            use std::os::unix::fs::PermissionsExt as _;
+            m.is_file() && m.permissions().mode() & 0o111 != 0
+        }
+        #[cfg(not(unix))]
+        Ok(m) => m.is_file(),
+        Err(_) => false,
+    }
+}
+
+/// [`how_to_run`] for a given invocation.
+fn how_to_run_as(inv: &Invocation, words: &[&str]) -> String {
+    let mut line: Vec<String> = Vec::new();
+    match (&inv.manifest_dir, &inv.exe) {
+        _ if inv.on_path => line.push("heatbound".into()),
+        (Some(dir), Some(exe)) if cargo_profile(exe).is_some() => {
+            line.extend(["cargo", "run"].map(String::from));
+            match cargo_profile(exe) {
+                Some("debug") | None => {}
+                Some("release") => line.push("--release".into()),
+                Some(other) => line.extend(["--profile".into(), shell_word(other)]),
+            }
+            line.extend(["-p", "heatbound-host"].map(String::from));
+            // `cargo run -p` finds the workspace from anywhere inside it.
+            let inside = match (&inv.cwd, dir.parent()) {
+                (Some(cwd), Some(workspace)) => cwd.starts_with(workspace),
+                _ => false,
+            };
+            if !inside {
+                line.push("--manifest-path".into());
+                line.push(shell_word(&dir.join("Cargo.toml").to_string_lossy()));
+            }
+            line.push("--".into());
+        }
+        (_, Some(exe)) => {
+            let shown = match inv.cwd.as_ref().and_then(|cwd| exe.strip_prefix(cwd).ok()) {
+                Some(rel) => std::path::Path::new(".").join(rel),
+                None => exe.clone(),
+            };
+            line.push(shell_word(&shown.to_string_lossy()));
+        }
+        (_, None) => line.push("heatbound".into()),
+    }
+    line.extend(words.iter().map(|w| shell_word(w)));
+    line.join(" ")
+}
+
+/// The cargo profile whose folder holds `exe` (`target/release/heatbound`,
+/// `target/x86_64-unknown-linux-gnu/debug/heatbound`), if it is in one.
+fn cargo_profile(exe: &std::path::Path) -> Option<&str> {
+    let profile_dir = exe.parent()?;
+    let name = profile_dir.file_name()?.to_str()?;
+    let target = profile_dir.parent()?;
+    // `target/PROFILE/` or `target/TRIPLE/PROFILE/`: either way a `target`
+    // folder (or CARGO_TARGET_DIR, which holds the profile folders) sits
+    // above; `deps` and `examples` are not where `cargo run` puts the binary.
+    if matches!(name, "deps" | "examples" | "build" | "incremental") {
+        return None;
+    }
+    let marked = |dir: &std::path::Path| dir.join("CACHEDIR.TAG").is_file();
+    if marked(target) || target.parent().is_some_and(marked) {
+        Some(name)
+    } else {
+        None
+    }
+}
+
+/// `word` as a shell reads it back: bare when it holds only characters no
+/// shell treats specially, else in single quotes.
+fn shell_word(word: &str) -> String {
+    let plain = !word.is_empty()
+        && word
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "_-./:=@%+,".contains(c));
+    if plain {
+        word.to_string()
+    } else {
+        format!("'{}'", word.replace('\'', r"'\''"))
+    }
+}
+
+#[cfg(test)]
+mod how_to_run_tests {
+    use super::{Invocation, how_to_run_as, shell_word};
+    use std::path::PathBuf;
+
+    /// A fake cargo target folder holding `PROFILE/heatbound`.
+    fn target_with(profile: &str) -> (tempfile::TempDir, PathBuf) {
+        let dir = tempfile::tempdir().unwrap();
+        let target = dir.path().join("target");
+        std::fs::create_dir_all(target.join(profile)).unwrap();
+        std::fs::write(
+            target.join("CACHEDIR.TAG"),
+            "Signature: 8a477f597d28d172789f06886806bc55",
+        )
+        .unwrap();
+        let exe = target.join(profile).join("heatbound");
+        (dir, exe)
+    }
+
+    #[test]
+    fn on_path_it_is_plain_heatbound() {
+        let inv = Invocation {
+            on_path: true,
+            ..Invocation::default()
+        };
+        assert_eq!(
+            how_to_run_as(&inv, &["audit", "heatbound-demo.sqlite"]),
+            "heatbound audit heatbound-demo.sqlite"
+        );
+    }
+
+    #[test]
+    fn under_cargo_run_it_is_the_same_cargo_run() {
+        let (dir, exe) = target_with("release");
+        let workspace = dir.path().to_path_buf();
+        let mut inv = Invocation {
+            on_path: false,
+            manifest_dir: Some(workspace.join("host-tools")),
+            exe: Some(exe),
+            cwd: Some(workspace.clone()),
+        };
+        assert_eq!(
+            how_to_run_as(&inv, &["chart", "heatbound-demo.sqlite"]),
+            "cargo run --release -p heatbound-host -- chart heatbound-demo.sqlite"
+        );
+        // From outside the workspace, cargo needs the manifest.
+        inv.cwd = Some(PathBuf::from("/"));
+        let hint = how_to_run_as(&inv, &["audit", "x.sqlite"]);
+        assert!(
+            hint.starts_with("cargo run --release -p heatbound-host --manifest-path "),
+            "{hint}"
+        );
+        assert!(
+            hint.ends_with("host-tools/Cargo.toml -- audit x.sqlite"),
+            "{hint}"
+        );
+
+        let (dir, exe) = target_with("debug");
+        inv.exe = Some(exe);
+        inv.cwd = Some(dir.path().to_path_buf());
+        inv.manifest_dir = Some(dir.path().join("host-tools"));
+        assert_eq!(
+            how_to_run_as(&inv, &["audit", "x.sqlite"]),
+            "cargo run -p heatbound-host -- audit x.sqlite"
+        );
+        let (dir, exe) = target_with("firmware");
+        inv.exe = Some(exe);
+        inv.cwd = Some(dir.path().to_path_buf());
+        inv.manifest_dir = Some(dir.path().join("host-tools"));
+        assert_eq!(
+            how_to_run_as(&inv, &["audit", "x.sqlite"]),
+            "cargo run --profile firmware -p heatbound-host -- audit x.sqlite"
+        );
+    }
+
+    #[test]
+    fn otherwise_it_is_this_executable() {
+        let (dir, exe) = target_with("release");
+        let inv = Invocation {
+            on_path: false,
+            manifest_dir: None,
+            exe: Some(exe.clone()),
+            cwd: Some(dir.path().to_path_buf()),
+        };
+        assert_eq!(
+            how_to_run_as(&inv, &["audit", "a b.sqlite"]),
+            "./target/release/heatbound audit 'a b.sqlite'"
+        );
+        let elsewhere = Invocation {
+            cwd: Some(PathBuf::from("/nonexistent-cwd")),
+            ..inv
+        };
+        let hint = how_to_run_as(&elsewhere, &["audit", "x"]);
+        assert!(hint.starts_with('/') || hint.starts_with("'/"), "{hint}");
+        assert!(
+            hint.ends_with("/target/release/heatbound audit x"),
+            "{hint}"
+        );
+    }
+
+    #[test]
+    fn words_are_quoted_for_a_shell() {
+        assert_eq!(shell_word("run-1.sqlite"), "run-1.sqlite");
+        assert_eq!(shell_word(""), "''");
+        assert_eq!(shell_word("it's $HOME"), r"'it'\''s $HOME'");
+        assert_eq!(shell_word("a*b"), "'a*b'");
+    }
+}

@@ -3,11 +3,15 @@
 //! timeline.
 //!
 //! The engines are [`heatbound_host::rigfile`] and [`heatbound_host::replay`].
+//! A long replay shows a progress bar on stderr (bytes read, throughput,
+//! time left; [`heatbound_host::term::progress_bar`]); stdout carries only
+//! the report.
 use std::path::PathBuf;
 
 use anyhow::Result;
-use heatbound_host::replay::replay_file;
+use heatbound_host::replay::replay_file_with_progress;
 use heatbound_host::rigfile::load_config;
+use heatbound_host::term::{Counting, progress_bar};
 
 /// Arguments of `heatbound analyze`.
 #[derive(clap::Args)]
@@ -26,8 +30,12 @@ pub struct Args {
 /// Runs the subcommand.
 pub fn run(args: &Args) -> Result<()> {
     let config = load_config(args.config.as_deref())?;
-    let replay = replay_file(&args.file, &config)?;
     let name = args.file.display().to_string();
+    let size = std::fs::metadata(&args.file).map_or(0, |m| m.len());
+    let bar = progress_bar(&format!("analyze {name}"), size, Counting::Bytes, size);
+    let replay = replay_file_with_progress(&args.file, &config, Some(&bar));
+    bar.finish_and_clear();
+    let replay = replay?;
     if args.json {
         println!("{}", replay.json_text()?);
     } else {

@@ -10,13 +10,20 @@
 //! The readers are [`heatbound_host::capture`]. The input kind is decided by content, not by name: a file that starts
 //! with the 16-byte SQLite header is a log database, anything else a raw
 //! capture.
+//!
+//! A long audit shows a progress bar on stderr
+//! ([`heatbound_host::term::progress_bar`]): bytes while a capture is
+//! decoded, then frames while they are read from a log and checked.
+//! stdout carries only the report.
 use std::io::Write as _;
 use std::path::PathBuf;
 
 use anyhow::{Context, Result, bail};
-use heatbound_host::audit::{self, Input};
-use heatbound_host::capture::{audit_database, is_database, read_capture};
-use heatbound_host::term::SAFETY_NOTE;
+use heatbound_host::audit::{self, Input, LogFacts};
+use heatbound_host::capture::{
+    audit_database_with_progress, is_database, read_capture_with_progress,
+};
+use heatbound_host::term::{Counting, SAFETY_NOTE, progress_bar};
 
 /// Arguments of `heatbound audit`.
 #[derive(clap::Args)]
@@ -46,31 +53,42 @@ pub struct Args {
 pub fn run(args: &Args) -> Result<()> {
     let config = heatbound_host::rigfile::load_config(args.config.as_deref())?;
     let name = args.input.display().to_string();
+    let size = std::fs::metadata(&args.input).map_or(0, |m| m.len());
+    let label = format!("audit {name}");
     let report = if is_database(&args.input)? {
-        audit_database(&args.input, args.run, &config)?
+        // Frames, read and then checked: the engine sets the length.
+        let bar = progress_bar(&label, 0, Counting::Frames, size);
+        let report = audit_database_with_progress(&args.input, args.run, &config, Some(&bar));
+        bar.finish_and_clear();
+        report?
     } else {
         if args.run.is_some() {
             bail!("{name}: --run applies to a log database, and this is a raw capture");
         }
-        let (frames, decoder) = read_capture(&args.input)?;
+        let bar = progress_bar(&label, size, Counting::Bytes, size);
+        bar.set_prefix("decoding");
+        let read = read_capture_with_progress(&args.input, Some(&bar));
+        bar.finish_and_clear();
+        let (frames, decoder) = read?;
         // Not one frame: this is no capture of ours (an empty file, a CSV,
         // random bytes), so there is nothing to judge. Unreadable, not
         // untrustworthy.
         if frames.is_empty() {
-            let bytes = std::fs::metadata(&args.input).map_or(0, |m| m.len());
             bail!(
-                "{name}: not a heatbound capture or log: no frame in its {bytes} bytes \
+                "{name}: not a heatbound capture or log: no frame in its {size} bytes \
                  (give a capture from `simulate`/`watch --input`, or a log database)"
             );
         }
-        audit::audit(
-            &Input {
-                frames: &frames,
-                decoder,
-                link_errors: &[],
-            },
-            &config,
-        )
+        let len = u64::try_from(frames.len()).unwrap_or(u64::MAX);
+        let bar = progress_bar(&label, len, Counting::Frames, size);
+        let input = Input {
+            frames: &frames,
+            decoder,
+            link_errors: &[],
+        };
+        let report = audit::audit_with_progress(&input, &LogFacts::default(), &config, Some(&bar));
+        bar.finish_and_clear();
+        report
     };
     let mut stdout = std::io::stdout().lock();
     if args.json {

@@ -26,6 +26,7 @@ use heatbound_host::link::{self, End, now_ms};
 use heatbound_host::showcase::{self, Show};
 use heatbound_host::sil::{self, SimOptions, Simulation};
 use heatbound_host::store::Log;
+use heatbound_host::term;
 
 /// Arguments of `heatbound demo`.
 #[derive(clap::Args)]
@@ -157,8 +158,9 @@ pub fn run(args: &Args) -> Result<()> {
     println!();
     println!("log written to {}", shown.display());
     println!("chart written to {}", chart_shown.display());
-    println!("re-check it with `heatbound audit {}`", args.db.display());
-    println!("redraw it with `heatbound chart {}`", args.db.display());
+    let db = args.db.display().to_string();
+    println!("re-check it with `{}`", term::how_to_run(&["audit", &db]));
+    println!("redraw it with `{}`", term::how_to_run(&["chart", &db]));
     println!("{}", heatbound_host::term::SAFETY_NOTE);
     std::io::stdout().flush().context("writing the report")?;
 

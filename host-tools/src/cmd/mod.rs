@@ -6,5 +6,6 @@ pub mod convert;
 pub mod cycle;
 pub mod demo;
 pub mod operate;
+pub mod shell;
 pub mod simulate;
 pub mod watch;

@@ -34,6 +34,7 @@ use heatbound_host::keyfile;
 use heatbound_host::link::{self, Bounds, LinkOptions, Source, now_ms};
 use heatbound_host::live::Live;
 use heatbound_host::store::{DEFAULT_DB, Log};
+use heatbound_host::term::{self, Counting};
 
 /// Set by the SIGINT/SIGTERM handler.
 static STOP: AtomicBool = AtomicBool::new(false);
@@ -176,7 +177,24 @@ pub fn run(args: &Args) -> Result<()> {
             }
         }
         (None, Some(file)) => {
-            link::read_to_end(&mut ingest, &bounds, file, None, &name, None, print)
+            // Bytes of the capture on stderr, unless the lines share the terminal.
+            let size = file.metadata().map_or(0, |m| m.len());
+            let bar = if args.quiet || !std::io::stdout().is_terminal() {
+                term::progress_bar(&format!("watch {name}"), size, Counting::Bytes, size)
+            } else {
+                indicatif::ProgressBar::hidden()
+            };
+            let end = link::read_to_end(
+                &mut ingest,
+                &bounds,
+                bar.wrap_read(file),
+                None,
+                &name,
+                None,
+                print,
+            );
+            bar.finish_and_clear();
+            end
         }
         (None, None) => link::read_to_end(
             &mut ingest,
