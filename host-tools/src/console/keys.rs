@@ -204,7 +204,10 @@ impl View {
             }
             KeyCode::Char('?' | 'h') => {
                 self.help = true;
-                None
+                Some(Action::Note {
+                    action: "help",
+                    detail: String::new(),
+                })
             }
             _ => None,
         }
