@@ -37,6 +37,7 @@ fn sample(i: u32) -> Sample {
         heat_in_w: 1000.0 + 10.0 * wobble,
         work_w: 150.0 - 3.0 * wobble,
         heat_out_w: None,
+        t_hot2_k: None,
     }
 }
 

@@ -91,6 +91,21 @@ pub enum RuleId {
 }
 
 impl RuleId {
+    /// Whether the rule says the readings break a law (the second law or the
+    /// energy balance), which the diagnosis can then trace to a channel.
+    ///
+    /// ```
+    /// use heatbound::alarm::RuleId;
+    /// assert!(RuleId::BeyondCarnot.is_consistency());
+    /// assert!(!RuleId::OverTemperature.is_consistency());
+    /// ```
+    pub const fn is_consistency(self) -> bool {
+        matches!(
+            self,
+            RuleId::BeyondCarnot | RuleId::NegativeEntropyProduction | RuleId::EnergyBalance
+        )
+    }
+
     /// Number of rules.
     pub const COUNT: usize = 6;
     /// Every rule, in index order.
@@ -723,7 +738,7 @@ impl AlarmSet {
     /// for i in 0..30u32 {
     ///     // 500 W in, 300 W out between 600 K and 300 K: 60 % against a 50 % bound.
     ///     let s = Sample { t_ms: i * 1000, t_hot_k: 600.0, t_cold_k: 300.0,
-    ///                      heat_in_w: 500.0, work_w: 300.0, heat_out_w: None };
+    ///                      heat_in_w: 500.0, work_w: 300.0, heat_out_w: None, t_hot2_k: None };
     ///     monitor.push(&s);
     ///     for e in alarms.update(s.t_ms, &monitor.alarm_inputs()) {
     ///         if e.rule == RuleId::BeyondCarnot && e.kind == EventKind::Raised {

@@ -35,6 +35,7 @@ use serde::{Deserialize, Serialize};
 use crate::alarm::AlarmConfig;
 pub use crate::alarm::{Alarms, Rule};
 use crate::alarm::{RuleId, Severity};
+pub use crate::diagnosis::Losses;
 pub use crate::monitor::{Health, Mode, Steady, Uncertainty};
 use crate::monitor::{MonitorConfig, MonitorSettings};
 
@@ -60,6 +61,20 @@ pub struct RigFile {
     pub health: Option<HealthFile>,
     /// Alarm limits and rule settings.
     pub alarms: Option<AlarmsFile>,
+    /// The hot side's heat loss to the room; learned from the first
+    /// steady window when absent.
+    pub losses: Option<LossesFile>,
+}
+
+/// `[losses]`: heat lost from the hot side to the room is
+/// `UA·(T_hot − T0)`. Both keys are required.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LossesFile {
+    /// UA, W/K.
+    pub ua_w_per_k: Option<f64>,
+    /// UA's standard uncertainty, W/K.
+    pub u_ua_w_per_k: Option<f64>,
 }
 
 /// `[uncertainty]`: standard uncertainties, treated as systematic.
@@ -68,6 +83,8 @@ pub struct RigFile {
 pub struct UncertaintyFile {
     /// Hot-side temperature, absolute, in kelvin.
     pub hot_k: Option<f64>,
+    /// The second hot-side sensor, absolute, in kelvin.
+    pub hot2_k: Option<f64>,
     /// Cold-side temperature, absolute, in kelvin.
     pub cold_k: Option<f64>,
     /// Heat input, relative.
@@ -181,6 +198,8 @@ pub struct RigConfig {
     pub health: Health,
     /// Alarms.
     pub alarms: Alarms,
+    /// The hot side's loss coefficient to the room; `None`: learned.
+    pub losses: Option<Losses>,
 }
 
 impl Default for RigConfig {
@@ -226,6 +245,7 @@ fn builtin_defaults() -> RigConfig {
             hot_max_k,
             rules,
         },
+        losses: None,
     }
 }
 
@@ -386,6 +406,7 @@ impl RigFile {
             coverage_factor: self.coverage_factor.unwrap_or(d.coverage_factor),
             uncertainty: Uncertainty {
                 hot_k: u.hot_k.unwrap_or(du.hot_k),
+                hot2_k: u.hot2_k.unwrap_or(du.hot2_k),
                 cold_k: u.cold_k.unwrap_or(du.cold_k),
                 heat_in_rel: u.heat_in_rel.unwrap_or(du.heat_in_rel),
                 work_rel: u.work_rel.unwrap_or(du.work_rel),
@@ -412,6 +433,11 @@ impl RigFile {
                 hot_max_k,
                 rules,
             },
+            losses: self.losses.as_ref().map(|l| Losses {
+                // A missing key is NaN, which `check` names.
+                ua_w_per_k: l.ua_w_per_k.unwrap_or(f64::NAN),
+                u_ua_w_per_k: l.u_ua_w_per_k.unwrap_or(f64::NAN),
+            }),
         }
     }
 }
@@ -448,6 +474,7 @@ impl RigConfig {
             coverage_factor: Some(self.coverage_factor),
             uncertainty: Some(UncertaintyFile {
                 hot_k: Some(u.hot_k),
+                hot2_k: Some(u.hot2_k),
                 cold_k: Some(u.cold_k),
                 heat_in_rel: Some(u.heat_in_rel),
                 work_rel: Some(u.work_rel),
@@ -478,6 +505,10 @@ impl RigConfig {
                 energy_balance: rule(RuleId::EnergyBalance),
                 over_temperature: rule(RuleId::OverTemperature),
                 sensor_fault: rule(RuleId::SensorFault),
+            }),
+            losses: self.losses.map(|l| LossesFile {
+                ua_w_per_k: Some(l.ua_w_per_k),
+                u_ua_w_per_k: Some(l.u_ua_w_per_k),
             }),
         }
     }
@@ -512,6 +543,7 @@ impl RigConfig {
             (self.max_gap_s, "max_gap_s", Positive),
             (self.coverage_factor, "coverage_factor", Positive),
             (u.hot_k, "uncertainty.hot_k", NonNegative),
+            (u.hot2_k, "uncertainty.hot2_k", NonNegative),
             (u.cold_k, "uncertainty.cold_k", NonNegative),
             (u.heat_in_rel, "uncertainty.heat_in_rel", NonNegative),
             (u.work_rel, "uncertainty.work_rel", NonNegative),
@@ -538,6 +570,10 @@ impl RigConfig {
         ];
         for (x, key, expect) in settings {
             need(x, key, expect)?;
+        }
+        if let Some(l) = &self.losses {
+            need(l.ua_w_per_k, "losses.ua_w_per_k", NonNegative)?;
+            need(l.u_ua_w_per_k, "losses.u_ua_w_per_k", NonNegative)?;
         }
         if h.min_temperature_k >= h.max_temperature_k {
             return Err(ConfigError::Inconsistent {

@@ -29,12 +29,13 @@
 //! - A new configuration keeps every alarm's state (a trip stays a trip
 //!   until its condition clears under the new limits) and starts a new run.
 
-use crate::alarm::{AlarmSet, Events};
+use crate::alarm::{AlarmSet, EventKind, Events};
 use crate::config::RigConfig;
+use crate::diagnosis::Tracker;
 use crate::monitor::{Monitor, MonitorError, Pushed, Sample};
 use crate::wire::{
     Addressee, Authenticator, Command, CommandKey, CommandReceiver, EventFrame, Frame, FrameError,
-    Hello, MAX_COMMAND_LEN, ReceiverStats, Reply, ReplyCode, RigId, Summary,
+    Hello, MAX_COMMAND_LEN, ReceiverStats, Reply, ReplyCode, RigId, Summary, Verdict,
 };
 
 /// Who the controller is and how often it reports.
@@ -134,7 +135,7 @@ enum Incoming {
 /// // 60 % against a 50 % Carnot bound: beyond_carnot raises and trips.
 /// for i in 1..=20u32 {
 ///     let s = Sample { t_ms: i * 1000, t_hot_k: 600.0, t_cold_k: 300.0,
-///                      heat_in_w: 500.0, work_w: 300.0, heat_out_w: None };
+///                      heat_in_w: 500.0, work_w: 300.0, heat_out_w: None, t_hot2_k: None };
 ///     c.step(&s, &mut |f: &Frame| frames.push(f.clone()));
 /// }
 /// assert!(c.alarms().is_active(RuleId::BeyondCarnot));
@@ -158,6 +159,7 @@ enum Incoming {
 pub struct Controller<const N: usize> {
     monitor: Monitor<N>,
     alarms: AlarmSet,
+    tracker: Tracker<f32>,
     config: RigConfig,
     hello: Hello,
     auth: Option<Authenticator>,
@@ -194,6 +196,7 @@ impl<const N: usize> Controller<N> {
         Ok(Controller {
             monitor: Monitor::new(config)?,
             alarms: AlarmSet::new(config),
+            tracker: Tracker::new(config),
             config: *config,
             hello,
             auth: key.map(Authenticator::new),
@@ -226,7 +229,7 @@ impl<const N: usize> Controller<N> {
         }
         let pushed = self.monitor.push(sample);
         let events = self.alarms.update(t_ms, &self.monitor.alarm_inputs());
-        self.send_events(&events, out);
+        self.send_events(&events, t_ms, out);
 
         if self.hello_period_ms > 0 && t_ms.wrapping_sub(self.hello_from_ms) >= self.hello_period_ms
         {
@@ -308,7 +311,7 @@ impl<const N: usize> Controller<N> {
     /// the controller): the events go out at once. Returns their number.
     pub fn acknowledge_all(&mut self, t_ms: u32, out: &mut impl FnMut(&Frame)) -> usize {
         let events = self.alarms.acknowledge_all(t_ms);
-        self.send_events(&events, out);
+        self.send_events(&events, t_ms, out);
         events.len()
     }
 
@@ -366,7 +369,7 @@ impl<const N: usize> Controller<N> {
                     Some(rule) => self.alarms.acknowledge(rule, t_ms),
                     None => self.alarms.acknowledge_all(t_ms),
                 };
-                self.send_events(&events, out);
+                self.send_events(&events, t_ms, out);
                 ReplyCode::Applied
             }
             _ if self.pending.is_some() => ReplyCode::Busy,
@@ -403,9 +406,11 @@ impl<const N: usize> Controller<N> {
             }
         };
         self.monitor = monitor;
+        // A new run learns its UA afresh.
+        self.tracker = Tracker::new(&config);
         if config != self.config {
             let events = self.alarms.reconfigure(&config, t_ms);
-            self.send_events(&events, out);
+            self.send_events(&events, t_ms, out);
             self.config = config;
             let Hello {
                 rig_id,
@@ -439,11 +444,19 @@ impl<const N: usize> Controller<N> {
         }));
     }
 
-    fn send_events(&mut self, events: &Events, out: &mut impl FnMut(&Frame)) {
+    /// Each event as a frame; a second-law or energy-balance raise carries
+    /// the diagnosis of the window at that moment.
+    fn send_events(&mut self, events: &Events, t_ms: u32, out: &mut impl FnMut(&Frame)) {
         for event in events {
+            let verdict = if event.kind == EventKind::Raised && event.rule.is_consistency() {
+                Verdict::of(&self.tracker.judge(&self.monitor, t_ms))
+            } else {
+                Verdict::default()
+            };
             out(&Frame::Event(EventFrame {
                 seq: self.last_seq.unwrap_or(0),
                 event,
+                verdict,
             }));
         }
     }
@@ -451,7 +464,11 @@ impl<const N: usize> Controller<N> {
     fn send_summary(&mut self, t_ms: u32, out: &mut impl FnMut(&Frame)) {
         let seq = self.last_seq.map_or(0, |s| s.wrapping_add(1));
         self.last_seq = Some(seq);
-        let s = Summary::from_monitor(seq, t_ms, &self.monitor, &self.alarms);
+        // UA is learned from a Summary's window, so that the host can learn
+        // it from the same Summary.
+        self.tracker.observe(&self.monitor, t_ms);
+        let verdict = Verdict::of(&self.tracker.judge(&self.monitor, t_ms));
+        let s = Summary::from_monitor(seq, t_ms, &self.monitor, &self.alarms, verdict);
         out(&Frame::Summary(s));
     }
 

@@ -47,6 +47,7 @@
 pub mod alarm;
 pub mod config;
 pub mod control;
+pub mod diagnosis;
 pub mod gas;
 pub mod monitor;
 pub mod num;

@@ -32,7 +32,7 @@ for row in "m4 Cortex-M4F $M4_BUDGET" "m0 Cortex-M0 $M0_BUDGET"; do
     read -r key core budget <<<"$row"
     f="$OUT/$key.txt"
     grep -q '^measure.push_update:' "$f" || { cat "$f" >&2; echo "error: no measurement from $core" >&2; exit 2; }
-    for what in push_update push_update_synthetic summary_encode libm_sqrtf command_ack command_bad_mac; do
+    for what in push_update push_update_synthetic summary_encode summary_diagnose libm_sqrtf command_ack command_bad_mac; do
         mean=$(field "$f" "$what" mean); min=$(field "$f" "$what" min); max=$(field "$f" "$what" max)
         if [ "$what" = push_update ]; then
             if [ "$mean" -le "$budget" ]; then verdict=PASS; else verdict=FAIL; status=1; fi

@@ -474,6 +474,8 @@ where
             heat_in_w,
             work_w,
             heat_out_w,
+            // This board reads one hot-side thermocouple.
+            t_hot2_k: None,
         }
     }
 

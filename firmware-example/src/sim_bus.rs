@@ -278,11 +278,7 @@ impl SimBench {
         self.t_ms = Some(t_ms);
         if !self.repaired && self.repair_at_ms.is_some_and(|r| t_ms >= r) {
             self.repaired = true;
-            // The fault scenarios' truth is the set-point steady state (bar
-            // coolant loss), so a steady rig continues it without a jump.
-            if let Ok(rig) = Rig::new(*self.rig.params(), Scenario::Steady, self.rig.seed()) {
-                self.rig = rig;
-            }
+            self.rig.repair();
         }
         self.measured = self.rig.measured(t_ms);
     }

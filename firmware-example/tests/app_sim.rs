@@ -189,7 +189,7 @@ fn uart_stream_is_hello_then_summaries_without_loss() {
     };
     assert!(s.status.heat_out_measured && !s.status.trip_active && !s.status.any_fault);
     assert!(
-        s.performance.is_some_and(|eta| eta > 0.1 && eta < 0.25),
+        s.performance().is_some_and(|eta| eta > 0.1 && eta < 0.25),
         "{s:?}"
     );
 }

@@ -8,7 +8,7 @@
 //! log database  --store reader---> Received frames + link errors  --+--> audit() --> Report
 //! ```
 //!
-//! Four checks, each a section of the report:
+//! Five checks, each a section of the report:
 //!
 //! 1. **Integrity.** No frame lost (CRC, overlong, malformed, unknown
 //!    version), no summary missing, duplicated or reordered, no restart that
@@ -17,8 +17,9 @@
 //! 2. **Recomputation.** Each summary's figures are recomputed from its raw
 //!    integrals with the core's own [`Integrals::metrics`](heatbound::monitor::Integrals::metrics),
 //!    in f32 like the controller, with the latest Hello's settings, and
-//!    compared with the device's: T_h, T0, performance (η or COP), its bound
-//!    (η_C or Carnot COP) and σ̇. See [`REL_TOL`] for the tolerance.
+//!    compared with the device's T0 and σ̇ (T_h, η or COP and its bound no
+//!    longer travel: they follow from the integrals alone). See
+//!    [`REL_TOL`] for the tolerance.
 //! 3. **Second law.** A summary *violates* it when σ̇ < −k·u(σ̇) or
 //!    η − η_C > k·u(margin) (recomputed figures, the device's
 //!    uncertainties, k from the Hello). A violation is *flagged* when the
@@ -39,6 +40,12 @@
 //!    longer than off-delay plus one period is stuck. Events and alarm bits
 //!    must agree. The device evaluates every sample and the host sees one
 //!    summary per period, so one period of slack is allowed each way.
+//!
+//! 5. **Diagnosis.** Each summary's verdict (consistent or not, the
+//!    suspect and its bias) is recomputed from its raw integrals with the
+//!    Hello's uncertainties and UA ([`crate::verdict_check`]) and compared;
+//!    a verdict on the edge of a band is borderline and not held against
+//!    the device.
 //!
 //! The delays, deadbands and latching come from the audit's configuration
 //! (defaults, or `--config`) with every setting the Hello carries taken
@@ -173,6 +180,32 @@ pub struct Report {
     pub second_law: SecondLaw,
     /// The second-law alarms against their conditions.
     pub alarm_consistency: AlarmConsistency,
+    /// The device's diagnosis against the host's.
+    pub diagnosis: DiagnosisCheck,
+}
+
+/// The diagnosis section: each summary's verdict (consistent or not, and
+/// the suspect with its bias) recomputed from its raw integrals with the
+/// Hello's settings and UA ([`crate::verdict_check`]).
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct DiagnosisCheck {
+    /// Section verdict.
+    pub pass: bool,
+    /// Summaries whose verdict was compared.
+    pub compared: u64,
+    /// Summaries on the edge of a band (the verdict turns with `k` moved
+    /// by 0.1 %): not compared.
+    pub borderline: u64,
+    /// Summaries that could not be compared: no Hello yet.
+    pub without_hello: u64,
+    /// Summaries whose verdict differs.
+    pub mismatches: u64,
+    /// Inconsistent summaries, and how many of them named a suspect.
+    pub inconsistent: u64,
+    /// Of those, with a suspect.
+    pub with_suspect: u64,
+    /// The first few mismatches.
+    pub first_mismatches: Vec<Finding>,
 }
 
 /// The integrity section.
@@ -368,11 +401,19 @@ pub fn effective_config(base: &RigConfig, hello: &Hello) -> RigConfig {
     let (u, h) = (&base.uncertainty, &hello.uncertainty);
     c.uncertainty = Uncertainty {
         hot_k: pick(u.hot_k, h.hot_k),
+        hot2_k: pick(u.hot2_k, h.hot2_k),
         cold_k: pick(u.cold_k, h.cold_k),
         heat_in_rel: pick(u.heat_in_rel, h.heat_in_rel),
         work_rel: pick(u.work_rel, h.work_rel),
         heat_out_rel: pick(u.heat_out_rel, h.heat_out_rel),
     };
+    c.losses = hello.losses.map(|(ua, u_ua)| {
+        let base = base.losses;
+        heatbound::config::Losses {
+            ua_w_per_k: base.map_or(decimal_f64(ua), |b| pick(b.ua_w_per_k, ua)),
+            u_ua_w_per_k: base.map_or(decimal_f64(u_ua), |b| pick(b.u_ua_w_per_k, u_ua)),
+        }
+    });
     c
 }
 
@@ -384,6 +425,7 @@ pub fn hello_settings(hello: &Hello) -> FigureSettings {
         ambient_k: hello.ambient_k.map(f64::from),
         uncertainty: Uncertainty {
             hot_k: f64::from(u.hot_k),
+            hot2_k: f64::from(u.hot2_k),
             cold_k: f64::from(u.cold_k),
             heat_in_rel: f64::from(u.heat_in_rel),
             work_rel: f64::from(u.work_rel),
@@ -765,6 +807,8 @@ struct Auditor<'c> {
     base: &'c RigConfig,
     ctx: Context,
     hello: Option<Hello>,
+    diagnosis: DiagnosisCheck,
+    ua: crate::verdict_check::UaFollower,
     link: LinkTracker,
     integrity: Integrity,
     recomputation: Recomputation,
@@ -820,6 +864,8 @@ impl<'c> Auditor<'c> {
                 rule: ALARM_RULE,
                 ..AlarmConsistency::default()
             },
+            diagnosis: DiagnosisCheck::default(),
+            ua: crate::verdict_check::UaFollower::default(),
             tracks: Default::default(),
             after_hello: false,
             prev_t: None,
@@ -1031,6 +1077,7 @@ impl<'c> Auditor<'c> {
         }
 
         let m = self.recompute(s);
+        self.check_verdict(s);
         self.check_second_law(s, &m, t);
         self.check_alarms(s, &m, t, continuous);
     }
@@ -1042,8 +1089,6 @@ impl<'c> Auditor<'c> {
             rc.without_hello += 1;
         }
         let m = s.integrals().metrics(&self.ctx.settings);
-        let reverse = self.ctx.settings.mode.is_reverse();
-        let pick = |fwd: Option<f32>, rev: Option<f32>| if reverse { rev } else { fwd };
         let f = |x: Option<f32>| x.map(f64::from);
         // Magnitude of the terms of σ̇: its tolerance scales with them.
         let t0 = f(m.ambient_k.or(s.ambient_k));
@@ -1060,16 +1105,10 @@ impl<'c> Auditor<'c> {
         } else {
             0.0
         };
-        let figures: [(&'static str, Option<f32>, Option<f32>, f64); 5] = [
-            ("hot_mean_k", s.hot_mean_k, m.hot_mean_k, 0.0),
+        // T_h, η (or COP) and its bound no longer travel: every receiver
+        // recomputes them from the integrals, so there is nothing to compare.
+        let figures: [(&'static str, Option<f32>, Option<f32>, f64); 2] = [
             ("ambient_k", s.ambient_k, m.ambient_k, 0.0),
-            ("performance", s.performance, pick(m.efficiency, m.cop), 0.0),
-            (
-                "bound",
-                s.bound,
-                pick(m.carnot_efficiency, m.carnot_cop),
-                1.0,
-            ),
             (
                 "entropy_rate_w_per_k",
                 s.entropy_rate_w_per_k,
@@ -1112,6 +1151,39 @@ impl<'c> Auditor<'c> {
             }
         }
         m
+    }
+
+    fn check_verdict(&mut self, s: &Summary) {
+        let dc = &mut self.diagnosis;
+        let Some(hello) = &self.hello else {
+            dc.without_hello += 1;
+            return;
+        };
+        if s.verdict.consistent == Some(false) {
+            dc.inconsistent += 1;
+            if s.verdict.suspect.is_some() {
+                dc.with_suspect += 1;
+            }
+        }
+        self.ua.observe(s, hello);
+        let ua = self.ua.ua(hello);
+        match crate::verdict_check::compare(s, hello, ua.as_ref()) {
+            crate::verdict_check::Agreement::Agrees => dc.compared += 1,
+            crate::verdict_check::Agreement::Borderline => dc.borderline += 1,
+            crate::verdict_check::Agreement::Differs(message) => {
+                dc.compared += 1;
+                dc.mismatches += 1;
+                list(
+                    &mut dc.first_mismatches,
+                    Finding {
+                        seq: Some(s.seq),
+                        t_s: seconds(s.t_ms),
+                        rule: None,
+                        message,
+                    },
+                );
+            }
+        }
     }
 
     fn second_law_alarm_active(s: &Summary) -> bool {
@@ -1455,16 +1527,19 @@ impl<'c> Auditor<'c> {
         let a = &mut self.alarms;
         a.pass =
             a.unsupported == 0 && a.missed == 0 && a.stuck == 0 && a.event_bit_disagreements == 0;
+        self.diagnosis.pass = self.diagnosis.mismatches == 0;
 
         Report {
             trustworthy: self.integrity.pass
                 && self.recomputation.pass
                 && self.second_law.pass
-                && self.alarms.pass,
+                && self.alarms.pass
+                && self.diagnosis.pass,
             integrity: self.integrity,
             recomputation: self.recomputation,
             second_law: self.second_law,
             alarm_consistency: self.alarms,
+            diagnosis: self.diagnosis,
         }
     }
 }
@@ -1598,6 +1673,28 @@ impl Report {
             let rule = f.rule.map_or("", RuleId::as_str);
             let seq = f.seq.map_or_else(String::new, |s| format!("seq {s} "));
             let _ = writeln!(o, "  - {seq}at {:.1} s: {rule}: {}", f.t_s, f.message);
+        }
+        let d = &self.diagnosis;
+        let _ = writeln!(
+            o,
+            "diagnosis           {}  {} verdicts recomputed, {} mismatches, {} borderline (not \
+             compared), {} before a Hello; the device found {} inconsistent windows, {} with a suspect",
+            verdict(d.pass),
+            d.compared,
+            d.mismatches,
+            d.borderline,
+            d.without_hello,
+            d.inconsistent,
+            d.with_suspect
+        );
+        for f in &d.first_mismatches {
+            let _ = writeln!(
+                o,
+                "  - seq {} at {:.1} s: {}",
+                f.seq.unwrap_or_default(),
+                f.t_s,
+                f.message
+            );
         }
         let _ = writeln!(
             o,

@@ -1620,15 +1620,15 @@ impl ChartData {
         }
         let t = at.x;
         let k = self.coverage();
-        self.performance.push(t, value(s.performance));
+        self.performance.push(t, value(s.performance()));
         self.performance_band
-            .push_range(t, band(s.performance, s.u_performance, k));
-        self.bound.push(t, value(s.bound));
-        self.bound_band.push_range(t, band(s.bound, s.u_bound, k));
+            .push_range(t, band(s.performance(), s.u_performance, k));
+        self.bound.push(t, value(s.bound()));
+        self.bound_band.push_range(t, band(s.bound(), s.u_bound, k));
         self.entropy_rate.push(t, value(s.entropy_rate_w_per_k));
         self.entropy_band
             .push_range(t, band(s.entropy_rate_w_per_k, s.u_entropy_rate_w_per_k, k));
-        self.hot_mean.push(t, value(s.hot_mean_k));
+        self.hot_mean.push(t, value(s.hot_mean_k()));
         self.cold_mean
             .push(t, ratio(s.heat_out_j, s.entropy_out_j_per_k));
         self.ambient.push(t, value(s.ambient_k));
@@ -3205,6 +3205,7 @@ mod tests {
                 kind: EventKind::Raised,
                 severity: Severity::Trip,
             },
+            verdict: Default::default(),
         }
     }
 

@@ -692,9 +692,9 @@ impl Ingest {
         };
         let out = &mut self.line;
         let _ = write!(out, "t={:.1}s ", f64::from(s.t_ms) / 1000.0);
-        write_pm(out, perf, s.performance, s.u_performance, k);
-        write_pm(out, bound, s.bound, s.u_bound, k);
-        let margin = s.bound.zip(s.performance).map(|(b, p)| b - p);
+        write_pm(out, perf, s.performance(), s.u_performance, k);
+        write_pm(out, bound, s.bound(), s.u_bound, k);
+        let margin = s.bound().zip(s.performance()).map(|(b, p)| b - p);
         write_pm(out, "margin", margin, None, k);
         write_pm(
             out,
@@ -704,7 +704,7 @@ impl Ingest {
             k,
         );
         out.push_str("W/K ");
-        match s.hot_mean_k {
+        match s.hot_mean_k() {
             Some(t) => {
                 let _ = write!(out, "T_h={t:.1}K ");
             }
@@ -736,10 +736,10 @@ impl Ingest {
 /// that the window's integrals show, in the operator's words.
 pub fn why_undefined(s: &Summary) -> Option<&'static str> {
     let t_c = (s.entropy_out_j_per_k > 0.0).then(|| s.heat_out_j / s.entropy_out_j_per_k);
-    let any_na = s.performance.is_none()
-        || s.bound.is_none()
+    let any_na = s.performance().is_none()
+        || s.bound().is_none()
         || s.entropy_rate_w_per_k.is_none()
-        || s.hot_mean_k.is_none()
+        || s.hot_mean_k().is_none()
         || t_c.is_none();
     if !any_na {
         return None;
@@ -750,9 +750,9 @@ pub fn why_undefined(s: &Summary) -> Option<&'static str> {
         "no heat in during the window, so T_h and the figures are undefined"
     } else if t_c.is_none() {
         "no heat out during the window, so T_c and the Carnot bound are undefined (check the coolant flow)"
-    } else if s.hot_mean_k.zip(t_c).is_some_and(|(h, c)| h <= c) {
+    } else if s.hot_mean_k().zip(t_c).is_some_and(|(h, c)| h <= c) {
         "T_h is not above T_c, so there is no Carnot bound"
-    } else if s.performance.is_none() {
+    } else if s.performance().is_none() {
         "the efficiency's denominator is not positive in the window"
     } else {
         "a figure's denominator is not positive in the window"

@@ -20,11 +20,13 @@ use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
-use heatbound::alarm::{AlarmSet, Event};
+use heatbound::alarm::{AlarmSet, Event, EventKind};
 use heatbound::config::{Mode, RigConfig};
+use heatbound::diagnosis::Tracker;
 use heatbound::monitor::{Metrics, Monitor, MonitorError, Sample};
 use serde::Serialize;
 
+use crate::diagnosis_report::DiagnosisJson;
 use crate::rigfile::one_line;
 
 /// Capacity of the host monitor's window, in samples. `window_samples` in
@@ -137,6 +139,7 @@ struct Columns {
     heat_in: usize,
     work: usize,
     heat_out: Option<usize>,
+    hot2: Option<Temperature>,
     unused: Vec<UnusedColumn>,
 }
 
@@ -214,16 +217,22 @@ impl Columns {
             heat_in: required("heat_in_w")?,
             work: required("work_w")?,
             heat_out: find("heat_out_w")?,
+            hot2: match (find("hot2_c")?, find("hot2_k")?) {
+                (None, None) => None,
+                _ => Some(temperature("hot2_c", "hot2_k", "hot2_c or hot2_k")?),
+            },
             unused: unused_columns(&names),
         })
     }
 }
 
 /// Every column name the replay reads.
-const KNOWN_COLUMNS: [&str; 8] = [
+const KNOWN_COLUMNS: [&str; 10] = [
     "time_s",
     "hot_c",
     "hot_k",
+    "hot2_c",
+    "hot2_k",
     "cold_c",
     "cold_k",
     "heat_in_w",
@@ -363,12 +372,15 @@ fn reading(bytes: &[u8], column: &'static str, line: u64) -> Result<f64, CsvErro
 // Replay
 
 /// An alarm event with the time of the row that caused it.
-#[derive(Clone, Copy, Debug)]
+#[derive(Clone, Debug)]
 pub struct TimedEvent {
     /// `time_s` of the row, exactly as in the file.
     pub t_s: f64,
     /// The event (its `t_ms` is relative to the first row).
     pub event: Event,
+    /// For a second-law or energy-balance alarm raised: the diagnosis of
+    /// the window at that moment.
+    pub diagnosis: Option<Box<DiagnosisJson>>,
 }
 
 /// Everything a replay found.
@@ -404,6 +416,10 @@ pub struct Replay {
     pub steady_at_end: bool,
     /// Alarm timeline.
     pub events: Vec<TimedEvent>,
+    /// Whether a second hot sensor was read (`None` if no valid sample).
+    pub hot2_measured: Option<bool>,
+    /// The diagnosis of the final window.
+    pub diagnosis: DiagnosisJson,
 }
 
 /// Milliseconds since the first row, on the monitor's wrapping `u32` clock.
@@ -489,6 +505,8 @@ pub fn replay<R: Read>(
     // ~450 KiB with a 4096-sample window: on the heap, not the stack.
     let mut monitor: Box<Monitor<WINDOW_CAPACITY, f64>> = Box::new(Monitor::new(config)?);
     let mut alarms = AlarmSet::new(config);
+    let mut tracker = Tracker::<f64>::new(config);
+    let mut last_t_ms = 0u32;
     let mut events = Vec::new();
     let mut record = csv::ByteRecord::new();
     let mut first_s: Option<f64> = None;
@@ -563,15 +581,34 @@ pub fn replay<R: Read>(
             heat_in_w,
             work_w,
             heat_out_w,
+            t_hot2_k: match cols.hot2 {
+                Some(c) => Some(
+                    reading(field(&record, c.index, c.name, line)?, c.name, line)? + c.offset_k,
+                ),
+                None => None,
+            },
         };
         // Invalid samples go in too: the sensor_fault rule needs them.
         let invalid_before = monitor.invalid_samples();
         monitor.push(&sample);
+        tracker.observe(&monitor, sample.t_ms);
+        last_t_ms = sample.t_ms;
         if monitor.invalid_samples() != invalid_before && invalid_lines.len() < INVALID_LINES_KEPT {
             invalid_lines.push(line);
         }
         for event in alarms.update(sample.t_ms, &monitor.alarm_inputs()) {
-            events.push(TimedEvent { t_s, event });
+            let diagnosis =
+                (event.kind == EventKind::Raised && event.rule.is_consistency()).then(|| {
+                    Box::new(DiagnosisJson::new(
+                        &tracker.diagnose(&monitor, sample.t_ms),
+                        tracker.ua(),
+                    ))
+                });
+            events.push(TimedEvent {
+                t_s,
+                event,
+                diagnosis,
+            });
         }
         if let Some(bar) = progress
             && rows.is_multiple_of(PROGRESS_EVERY_ROWS)
@@ -599,6 +636,8 @@ pub fn replay<R: Read>(
         steady_fraction: monitor.steady_fraction(),
         steady_at_end: monitor.is_steady(),
         events,
+        hot2_measured: monitor.hot2_measured(),
+        diagnosis: DiagnosisJson::new(&tracker.diagnose(&monitor, last_t_ms), tracker.ua()),
     })
 }
 
@@ -696,6 +735,9 @@ struct AlarmJson {
     rule: &'static str,
     event: &'static str,
     severity: &'static str,
+    /// Second-law and energy-balance raises only.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    diagnosis: Option<DiagnosisJson>,
 }
 
 /// The whole `--json` document (DESIGN.md §5, then the additions).
@@ -713,6 +755,8 @@ struct ReportJson {
     steady_at_end: bool,
     invalid_lines: Vec<u64>,
     unused_columns: Vec<UnusedColumn>,
+    hot2_measured: Option<bool>,
+    diagnosis: DiagnosisJson,
 }
 
 /// Where the invalid rows are: `; first at lines 7, 9` (with `…` when
@@ -784,11 +828,14 @@ impl Replay {
                     rule: e.event.rule.as_str(),
                     event: e.event.kind.as_str(),
                     severity: e.event.severity.as_str(),
+                    diagnosis: e.diagnosis.as_deref().cloned(),
                 })
                 .collect(),
             coverage_factor: self.coverage_factor,
             restarts: self.restarts,
             steady_at_end: self.steady_at_end,
+            hot2_measured: self.hot2_measured,
+            diagnosis: self.diagnosis.clone(),
         }
     }
 }

@@ -41,8 +41,10 @@ use std::path::{Path, PathBuf};
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::Mode;
+use heatbound::monitor::{Channel, Uncertainty};
 use heatbound::wire::{
     EventFrame, FaultBits, Frame, Hello, Reply, ReplyCode, RigId, Status, Summary, Uncertainties,
+    Verdict,
 };
 use rusqlite::{Connection, OpenFlags, Row, params};
 
@@ -183,6 +185,31 @@ pub const MIGRATIONS: &[&str] = &[
         action   TEXT NOT NULL,
         detail   TEXT NOT NULL
     );",
+    // 5: protocol version 3, the second hot-side sensor and the diagnosis.
+    // Hellos carry u(T_hot2) and the configured UA, if any; summaries
+    // carry the hot-side time integrals and the window's verdict, events
+    // the verdict at the moment of the alarm.
+    // `summaries.faults` takes the wire layout of version 3 (channel bits
+    // 0–5, bit 5 = hot2; stale bit 7): the stale bit of earlier rows moves
+    // from bit 5 to bit 7, and an earlier row with undefined bits (6 or 7)
+    // gets bit 6, undefined still, so that it reads as altered as before.
+    // `status` gains bit 4, hot2 measured; `mode` is the summary's own
+    // (NULL in earlier rows, which take their run's Hello's).
+    "ALTER TABLE hellos ADD COLUMN u_hot2_k REAL;
+    ALTER TABLE hellos ADD COLUMN ua_w_per_k REAL;
+    ALTER TABLE hellos ADD COLUMN u_ua_w_per_k REAL;
+    ALTER TABLE summaries ADD COLUMN hot_temperature_integral_k_s REAL;
+    ALTER TABLE summaries ADD COLUMN hot_pair_integral_k_s REAL;
+    ALTER TABLE summaries ADD COLUMN verdict TEXT;
+    ALTER TABLE summaries ADD COLUMN suspect TEXT;
+    ALTER TABLE summaries ADD COLUMN suspect_bias REAL;
+    ALTER TABLE summaries ADD COLUMN mode TEXT;
+    ALTER TABLE events ADD COLUMN verdict TEXT;
+    ALTER TABLE events ADD COLUMN suspect TEXT;
+    UPDATE summaries
+        SET faults = (faults & 31) | ((faults & 32) << 2)
+            | (CASE WHEN faults & 192 != 0 THEN 64 ELSE 0 END)
+        WHERE typeof(faults) = 'integer' AND faults BETWEEN 0 AND 255;",
 ];
 
 /// What went wrong with the log.
@@ -474,9 +501,9 @@ pub struct Log {
 const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_version, rig_id,
     firmware_version, sample_period_ms, window_samples, mode, coverage_factor, ambient_k,
     u_hot_k, u_cold_k, u_heat_in_rel, u_work_rel, u_heat_out_rel, config_digest, run_counter,
-    session, last_counter, keyed)
+    session, last_counter, keyed, u_hot2_k, ua_w_per_k, u_ua_w_per_k)
     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
-    ?19, ?20, ?21)";
+    ?19, ?20, ?21, ?22, ?23, ?24)";
 
 const INSERT_REPLY: &str = "INSERT INTO replies (run_id, ord, host_ms, counter, t_ms, code)
     VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
@@ -484,58 +511,98 @@ const INSERT_REPLY: &str = "INSERT INTO replies (run_id, ord, host_ms, counter, 
 const INSERT_SUMMARY: &str = "INSERT INTO summaries (run_id, ord, host_ms, seq, t_ms,
     duration_s, heat_in_j, work_j, heat_out_j, entropy_in_j_per_k, entropy_out_j_per_k,
     hot_mean_k, ambient_k, performance, bound, entropy_rate_w_per_k, u_performance, u_bound,
-    u_margin, u_entropy_rate_w_per_k, status, faults, alarms)
+    u_margin, u_entropy_rate_w_per_k, status, faults, alarms, hot_temperature_integral_k_s,
+    hot_pair_integral_k_s, verdict, suspect, suspect_bias, mode)
     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
-    ?19, ?20, ?21, ?22, ?23)";
+    ?19, ?20, ?21, ?22, ?23, ?24, ?25, ?26, ?27, ?28, ?29)";
 
 const INSERT_EVENT: &str = "INSERT INTO events (run_id, ord, host_ms, seq, t_ms, rule, kind,
-    severity) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)";
+    severity, verdict, suspect) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)";
 
 const INSERT_LINK_ERROR: &str = "INSERT INTO link_errors (run_id, ord, host_ms, kind, count,
     detail) VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
 
-/// Every frame table in one shape, ordered by `ord`: kind 0 = Hello,
-/// 1 = Summary, 2 = Event, 3 = Reply; columns `v0..` by kind as in the selects.
-const SELECT_FRAMES: &str = "
-    SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
-        window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
-        u_work_rel, u_heat_out_rel, config_digest, run_counter, session, last_counter, keyed,
-        NULL, NULL
-        FROM hellos WHERE run_id = ?1 AND ord > ?2
-    UNION ALL
-    SELECT ord, host_ms, 1, seq, t_ms, duration_s, heat_in_j, work_j, heat_out_j,
-        entropy_in_j_per_k, entropy_out_j_per_k, hot_mean_k, ambient_k, performance, bound,
-        entropy_rate_w_per_k, u_performance, u_bound, u_margin, u_entropy_rate_w_per_k, status,
-        faults, alarms
-        FROM summaries WHERE run_id = ?1 AND ord > ?2
-    UNION ALL
-    SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, NULL, NULL, NULL, NULL, NULL,
-        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
-        FROM events WHERE run_id = ?1 AND ord > ?2
-    UNION ALL
-    SELECT ord, host_ms, 3, counter, t_ms, code, NULL, NULL, NULL, NULL, NULL, NULL, NULL,
-        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
-        FROM replies WHERE run_id = ?1 AND ord > ?2
-    ORDER BY ord LIMIT ?3";
+/// Columns of a [`select_frames`] row.
+const FRAME_COLUMNS: usize = 29;
 
-/// [`SELECT_FRAMES`] for logs of schema versions 1 and 2, read as they
-/// are: no replies, and the Hello columns of version 3 read as 0.
-const SELECT_FRAMES_V2: &str = "
-    SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
-        window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
-        u_work_rel, u_heat_out_rel, config_digest, 0, 0, 0, 0, NULL, NULL
-        FROM hellos WHERE run_id = ?1 AND ord > ?2
-    UNION ALL
-    SELECT ord, host_ms, 1, seq, t_ms, duration_s, heat_in_j, work_j, heat_out_j,
-        entropy_in_j_per_k, entropy_out_j_per_k, hot_mean_k, ambient_k, performance, bound,
-        entropy_rate_w_per_k, u_performance, u_bound, u_margin, u_entropy_rate_w_per_k, status,
-        faults, alarms
-        FROM summaries WHERE run_id = ?1 AND ord > ?2
-    UNION ALL
-    SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, NULL, NULL, NULL, NULL, NULL,
-        NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL, NULL
-        FROM events WHERE run_id = ?1 AND ord > ?2
-    ORDER BY ord LIMIT ?3";
+/// `n` NULL columns, comma-separated with a leading comma.
+fn nulls(n: usize) -> String {
+    ", NULL".repeat(n)
+}
+
+/// Every frame table of a log of schema version `schema` in one shape,
+/// ordered by `ord`, paged by `?1` run, `?2` after this ord, `?3` rows.
+/// Columns 0–2 are `ord`, `host_ms` and the kind (0 = Hello, 1 = Summary,
+/// 2 = Event, 3 = Reply); columns 3.. by kind:
+///
+/// - Hello: 3–20 as in `hellos` from `protocol_version` to `keyed`, then
+///   21 `u_hot2_k`, 22 `ua_w_per_k`, 23 `u_ua_w_per_k`;
+/// - Summary: 3 `seq`, 4 `t_ms`, 5–19 [`SUMMARY_REALS`], 20 `status`,
+///   21 `faults`, 22 `alarms`, 23 `hot_temperature_integral_k_s`,
+///   24 `hot_pair_integral_k_s`, 25 `suspect_bias`, 26 `verdict`,
+///   27 `suspect`, 28 the run's mode for it (see [`Log::frames`]);
+/// - Event: 3 `seq`, 4 `t_ms`, 5 `rule`, 6 `kind`, 7 `severity`,
+///   8 `verdict`, 9 `suspect`;
+/// - Reply: 3 `counter`, 4 `t_ms`, 5 `code`.
+///
+/// Columns a version does not have read as NULL (and, for the four Hello
+/// columns of version 3, as 0); a log before version 3 has no replies.
+fn select_frames(schema: i64) -> String {
+    let hello_v3 = if schema >= 3 {
+        "run_counter, session, last_counter, keyed"
+    } else {
+        "0, 0, 0, 0"
+    };
+    let v5 = schema >= 5;
+    let hello_v5 = if v5 {
+        "u_hot2_k, ua_w_per_k, u_ua_w_per_k"
+    } else {
+        "NULL, NULL, NULL"
+    };
+    let summary_v5 = if v5 {
+        "s.hot_temperature_integral_k_s, s.hot_pair_integral_k_s, s.suspect_bias, s.verdict,
+        s.suspect"
+    } else {
+        "NULL, NULL, NULL, NULL, NULL"
+    };
+    let event_v5 = if v5 { "verdict, suspect" } else { "NULL, NULL" };
+    let summary_mode = if v5 { "s.mode," } else { "" };
+    let replies = if schema >= 3 {
+        format!(
+            "UNION ALL
+            SELECT ord, host_ms, 3, counter, t_ms, code{}
+            FROM replies WHERE run_id = ?1 AND ord > ?2",
+            nulls(FRAME_COLUMNS - 6)
+        )
+    } else {
+        String::new()
+    };
+    format!(
+        "SELECT ord, host_ms, 0, protocol_version, rig_id, firmware_version, sample_period_ms,
+            window_samples, mode, coverage_factor, ambient_k, u_hot_k, u_cold_k, u_heat_in_rel,
+            u_work_rel, u_heat_out_rel, config_digest, {hello_v3}, {hello_v5}{hello_nulls}
+            FROM hellos WHERE run_id = ?1 AND ord > ?2
+        UNION ALL
+        SELECT s.ord, s.host_ms, 1, s.seq, s.t_ms, s.duration_s, s.heat_in_j, s.work_j,
+            s.heat_out_j, s.entropy_in_j_per_k, s.entropy_out_j_per_k, s.hot_mean_k,
+            s.ambient_k, s.performance, s.bound, s.entropy_rate_w_per_k, s.u_performance,
+            s.u_bound, s.u_margin, s.u_entropy_rate_w_per_k, s.status, s.faults, s.alarms,
+            {summary_v5},
+            coalesce({summary_mode}
+                (SELECT h.mode FROM hellos h WHERE h.run_id = s.run_id AND h.ord < s.ord
+                    ORDER BY h.ord DESC LIMIT 1),
+                (SELECT h.mode FROM hellos h WHERE h.run_id = s.run_id
+                    ORDER BY h.ord LIMIT 1))
+            FROM summaries s WHERE s.run_id = ?1 AND s.ord > ?2
+        UNION ALL
+        SELECT ord, host_ms, 2, seq, t_ms, rule, kind, severity, {event_v5}{event_nulls}
+            FROM events WHERE run_id = ?1 AND ord > ?2
+        {replies}
+        ORDER BY ord LIMIT ?3",
+        hello_nulls = nulls(FRAME_COLUMNS - 24),
+        event_nulls = nulls(FRAME_COLUMNS - 10),
+    )
+}
 
 /// One row of a [`Log::frames`] page: its `ord` and the rebuilt frame.
 type PageRow = (i64, Result<Stored, StoreError>);
@@ -724,6 +791,7 @@ impl Log {
                     "SELECT max(m) FROM (SELECT max(ord) AS m FROM hellos WHERE run_id = ?1
                      UNION ALL SELECT max(ord) FROM summaries WHERE run_id = ?1
                      UNION ALL SELECT max(ord) FROM events WHERE run_id = ?1
+                     UNION ALL SELECT max(ord) FROM replies WHERE run_id = ?1
                      UNION ALL SELECT max(ord) FROM link_errors WHERE run_id = ?1)",
                     [run],
                     |r| r.get(0),
@@ -826,9 +894,26 @@ impl Log {
                     h.session,
                     h.last_counter,
                     h.keyed,
+                    f64::from(u.hot2_k),
+                    opt(h.losses.map(|(ua, _)| ua)),
+                    opt(h.losses.map(|(_, u_ua)| u_ua)),
                 ])
             }),
             Frame::Summary(s) => self.conn.prepare_cached(INSERT_SUMMARY).and_then(|mut st| {
+                let v = &s.verdict;
+                // NULL for a summary without a second hot sensor, unless its
+                // pair integral is not 0 (no decoded frame has one), so that
+                // every frame reads back exactly.
+                let pair = (s.status.hot2_measured || s.hot_pair_integral_k_s != 0.0)
+                    .then_some(s.hot_pair_integral_k_s);
+                // Recomputed once: T_h, η or COP and the bound.
+                let m = s.metrics();
+                let reverse = s.status.mode.is_reverse();
+                let (perf, bound) = if reverse {
+                    (m.cop, m.carnot_cop)
+                } else {
+                    (m.efficiency, m.carnot_efficiency)
+                };
                 st.execute(params![
                     run,
                     ord,
@@ -841,10 +926,10 @@ impl Log {
                     f64::from(s.heat_out_j),
                     f64::from(s.entropy_in_j_per_k),
                     f64::from(s.entropy_out_j_per_k),
-                    opt(s.hot_mean_k),
+                    opt(m.hot_mean_k),
                     opt(s.ambient_k),
-                    opt(s.performance),
-                    opt(s.bound),
+                    opt(perf),
+                    opt(bound),
                     opt(s.entropy_rate_w_per_k),
                     opt(s.u_performance),
                     opt(s.u_bound),
@@ -853,6 +938,13 @@ impl Log {
                     status_bits(&s.status),
                     fault_bits(&s.faults),
                     s.alarms,
+                    f64::from(s.hot_temperature_integral_k_s),
+                    opt(pair),
+                    v.consistent.map(verdict_text),
+                    v.suspect.map(Channel::name),
+                    // As on the wire: a bias only with a suspect.
+                    opt(v.bias.filter(|_| v.suspect.is_some())),
+                    s.status.mode.as_str(),
                 ])
             }),
             Frame::Event(e) => self.conn.prepare_cached(INSERT_EVENT).and_then(|mut st| {
@@ -865,6 +957,8 @@ impl Log {
                     e.event.rule.as_str(),
                     e.event.kind.as_str(),
                     e.event.severity.as_str(),
+                    e.verdict.consistent.map(verdict_text),
+                    e.verdict.suspect.map(Channel::name),
                 ])
             }),
             Frame::Reply(r) => self.conn.prepare_cached(INSERT_REPLY).and_then(|mut st| {
@@ -1081,9 +1175,17 @@ impl Log {
         Ok(rows)
     }
 
-    /// The frames of `run` in receive order: Hellos, Summaries and Events
-    /// interleaved as they arrived, each rebuilt exactly as decoded. Reads in
-    /// pages, so memory does not grow with the run.
+    /// The frames of `run` in receive order: Hellos, Summaries, Events and
+    /// Replies interleaved as they arrived, each rebuilt exactly as decoded.
+    /// Reads in pages, so memory does not grow with the run.
+    ///
+    /// A summary's mode is its own (schema version 5 on). A row written
+    /// before has none: it takes the mode of the run's latest Hello before
+    /// it, or of the run's first Hello when none came before it, or
+    /// `engine` when the run has no Hello. Rows written before
+    /// schema version 5 read with the defaults of what they lack: the
+    /// hot-side integrals 0, no verdict, `u_hot2_k` the configuration's
+    /// default, no configured UA.
     pub fn frames(
         &self,
         run: RunId,
@@ -1100,11 +1202,7 @@ impl Log {
     fn frames_page(&self, run: RunId, after_ord: i64) -> Result<Vec<PageRow>, StoreError> {
         let mut st = self
             .conn
-            .prepare_cached(if self.schema >= 3 {
-                SELECT_FRAMES
-            } else {
-                SELECT_FRAMES_V2
-            })
+            .prepare_cached(&select_frames(self.schema))
             .map_err(|e| self.err("cannot read frames", e))?;
         let rows = st
             .query_map(params![run, after_ord, FRAMES_PAGE], |r| {
@@ -1116,14 +1214,14 @@ impl Log {
         Ok(rows)
     }
 
-    /// Rebuilds one row of [`SELECT_FRAMES`]; `Err` of rusqlite are column
+    /// Rebuilds one row of [`select_frames`]; `Err` of rusqlite are column
     /// type errors, mapped to [`StoreError::BadRow`].
     fn frame_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Stored, StoreError> {
         let kind: i64 = r.get(2).map_err(|e| self.bad(run, "frames", ord, e))?;
         let host_ms: i64 = r.get(1).map_err(|e| self.bad(run, "frames", ord, e))?;
         let frame = match kind {
             0 => Frame::Hello(self.hello_row(run, ord, r)?),
-            1 => Frame::Summary(summary_row(r).map_err(|e| match e {
+            1 => Frame::Summary(summary_row(r, self.schema).map_err(|e| match e {
                 RowError::Sql(e) => self.bad(run, "summaries", ord, e),
                 RowError::Value {
                     column,
@@ -1161,15 +1259,22 @@ impl Log {
 
     fn hello_row(&self, run: RunId, ord: i64, r: &Row<'_>) -> Result<Hello, StoreError> {
         let bad = |e: &dyn std::fmt::Display| self.bad(run, "hellos", ord, e);
-        const REALS: [&str; 7] = [
-            "coverage_factor",
-            "ambient_k",
-            "u_hot_k",
-            "u_cold_k",
-            "u_heat_in_rel",
-            "u_work_rel",
-            "u_heat_out_rel",
-        ];
+        /// The REAL columns of a Hello row, by their index in the select.
+        fn real(i: usize) -> &'static str {
+            match i {
+                9 => "coverage_factor",
+                10 => "ambient_k",
+                11 => "u_hot_k",
+                12 => "u_cold_k",
+                13 => "u_heat_in_rel",
+                14 => "u_work_rel",
+                15 => "u_heat_out_rel",
+                21 => "u_hot2_k",
+                22 => "ua_w_per_k",
+                23 => "u_ua_w_per_k",
+                _ => "?",
+            }
+        }
         let impossible = |i: usize, e: RowError| match e {
             RowError::Sql(e) => bad(&e),
             RowError::Value {
@@ -1181,7 +1286,7 @@ impl Log {
                 ord,
                 seq: None,
                 t_ms: None,
-                column: REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?"),
+                column: real(i),
                 value,
                 why,
                 also,
@@ -1194,12 +1299,7 @@ impl Log {
                 .transpose()
         };
         let need = |i: usize| -> Result<f32, StoreError> {
-            checked(i)?.ok_or_else(|| {
-                bad(&format!(
-                    "{} is NULL",
-                    REALS.get(i.wrapping_sub(9)).copied().unwrap_or("?")
-                ))
-            })
+            checked(i)?.ok_or_else(|| bad(&format!("{} is NULL", real(i))))
         };
         let rig: String = r.get(4).map_err(|e| bad(&e))?;
         let fw: String = r.get(5).map_err(|e| bad(&e))?;
@@ -1216,9 +1316,19 @@ impl Log {
             heat_in_rel: need(13)?,
             work_rel: need(14)?,
             heat_out_rel: need(15)?,
+            // NULL in rows written before schema version 5, which had no
+            // second hot sensor: the configuration's default.
+            #[allow(clippy::cast_possible_truncation)]
+            hot2_k: checked(21)?.unwrap_or(Uncertainty::default().hot2_k as f32),
         };
         let coverage_factor = need(9)?;
         let ambient_k = checked(10)?;
+        let losses = match (checked(22)?, checked(23)?) {
+            (Some(ua), Some(u_ua)) => Some((ua, u_ua)),
+            (None, None) => None,
+            (Some(_), None) => return Err(bad(&"u_ua_w_per_k is NULL but ua_w_per_k is not")),
+            (None, Some(_)) => return Err(bad(&"ua_w_per_k is NULL but u_ua_w_per_k is not")),
+        };
         (|| {
             Ok::<_, rusqlite::Error>(Hello {
                 rig_id,
@@ -1229,6 +1339,7 @@ impl Log {
                 coverage_factor,
                 ambient_k,
                 uncertainty: u,
+                losses,
                 config_digest: r.get(16)?,
                 run: r.get(17)?,
                 session: r.get(18)?,
@@ -1258,6 +1369,10 @@ impl Log {
         let rule: String = r.get(5).map_err(|e| bad(&e))?;
         let kind: String = r.get(6).map_err(|e| bad(&e))?;
         let severity: String = r.get(7).map_err(|e| bad(&e))?;
+        let verdict: Option<String> = r.get(8).map_err(|e| bad(&e))?;
+        let suspect: Option<String> = r.get(9).map_err(|e| bad(&e))?;
+        let verdict = read_verdict(verdict.as_deref(), suspect.as_deref(), None)
+            .map_err(|(column, value, why)| bad(&format!("{column} = {value}: {why}")))?;
         Ok(EventFrame {
             seq,
             event: Event {
@@ -1267,6 +1382,7 @@ impl Log {
                 severity: parse_severity(&severity)
                     .ok_or_else(|| bad(&format!("bad severity {severity:?}")))?,
             },
+            verdict,
         })
     }
 
@@ -1366,7 +1482,7 @@ impl Drop for Log {
     }
 }
 
-/// Pages through [`SELECT_FRAMES`].
+/// Pages through [`select_frames`].
 struct FramesIter<'a> {
     log: &'a Log,
     run: RunId,
@@ -1426,7 +1542,9 @@ impl From<rusqlite::Error> for RowError {
     }
 }
 
-/// The summary columns 5..=19 of [`SELECT_FRAMES`], in order.
+/// The summary columns 5..=19 of [`select_frames`], in order. `hot_mean_k`,
+/// `performance` and `bound` are checked like the others but not read: a
+/// [`Summary`] recomputes them from its integrals.
 const SUMMARY_REALS: [&str; 15] = [
     "duration_s",
     "heat_in_j",
@@ -1443,6 +1561,14 @@ const SUMMARY_REALS: [&str; 15] = [
     "u_bound",
     "u_margin",
     "u_entropy_rate_w_per_k",
+];
+
+/// The summary columns 23..=25 of [`select_frames`] (schema version 5), in
+/// order.
+const SUMMARY_REALS_V5: [&str; 3] = [
+    "hot_temperature_integral_k_s",
+    "hot_pair_integral_k_s",
+    "suspect_bias",
 ];
 
 /// `x` as the f32 it must be: the log widens each f32 to f64 exactly, so a
@@ -1476,38 +1602,57 @@ fn exact_f32(column: &'static str, x: f64) -> Result<f32, RowError> {
     Ok(n)
 }
 
-fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
-    let f = |i: usize| -> Result<f32, RowError> {
-        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
-        exact_f32(name, r.get::<_, f64>(i)?)
-    };
-    let o = |i: usize| -> Result<Option<f32>, RowError> {
-        let name = SUMMARY_REALS.get(i.wrapping_sub(5)).copied().unwrap_or("?");
-        r.get::<_, Option<f64>>(i)?
-            .map(|x| exact_f32(name, x))
-            .transpose()
+/// One impossible value of a row: column, value as text, why.
+type BadValue = (&'static str, String, &'static str);
+
+/// Rebuilds a summary row of [`select_frames`] of a log of schema version
+/// `schema`: rows before version 5 keep the stale bit in bit 5 of
+/// `faults` (an unmigrated log read as it is), rows since in bit 7.
+fn summary_row(r: &Row<'_>, schema: i64) -> Result<Summary, RowError> {
+    let legacy = schema < 5;
+    let (status_defined, fault_channels, fault_stale) = if legacy {
+        (STATUS_V4_DEFINED, FAULT_CHANNELS_V4, FAULT_STALE_V4)
+    } else {
+        (STATUS_DEFINED, FAULT_CHANNELS, FAULT_STALE)
     };
     let status: u8 = r.get(20)?;
     let faults: u8 = r.get(21)?;
     let alarms: u8 = r.get(22)?;
-    let defined = STATUS_STEADY | STATUS_HEAT_OUT_MEASURED | STATUS_TRIP_ACTIVE | STATUS_ANY_FAULT;
+    let verdict: Option<String> = r.get(26)?;
+    let suspect: Option<String> = r.get(27)?;
+    let mode: Option<String> = r.get(28)?;
     // Every impossible value of the row, so that the report names them all.
-    let mut bad: Vec<(&'static str, String, &'static str)> = Vec::new();
-    for (i, name) in (5..).zip(SUMMARY_REALS) {
-        if let Some(x) = r.get::<_, Option<f64>>(i)?
-            && let Err(RowError::Value {
+    let mut bad: Vec<BadValue> = Vec::new();
+    let mut reals = [0.0f32; 15];
+    let mut present = [false; 15];
+    for (i, name) in SUMMARY_REALS.into_iter().enumerate() {
+        match r.get::<_, Option<f64>>(i + 5)?.map(|x| exact_f32(name, x)) {
+            None => {}
+            Some(Ok(x)) => (reals[i], present[i]) = (x, true),
+            Some(Err(RowError::Value {
                 column, value, why, ..
-            }) = exact_f32(name, x)
-        {
-            bad.push((column, value, why));
+            })) => bad.push((column, value, why)),
+            Some(Err(e)) => return Err(e),
         }
     }
+    let mut reals_v5 = [None; 3];
+    for (i, name) in SUMMARY_REALS_V5.into_iter().enumerate() {
+        match r.get::<_, Option<f64>>(i + 23)?.map(|x| exact_f32(name, x)) {
+            None => {}
+            Some(Ok(x)) => reals_v5[i] = Some(x),
+            Some(Err(RowError::Value {
+                column, value, why, ..
+            })) => bad.push((column, value, why)),
+            Some(Err(e)) => return Err(e),
+        }
+    }
+    let [hot_integral, pair_integral, bias] = reals_v5;
     for (column, value, undefined) in [
-        ("status", status, status & !defined != 0),
+        ("status", status, status & !status_defined != 0),
         (
             "faults",
             faults,
-            faults & !(FAULT_CHANNELS | FAULT_STALE) != 0,
+            faults & !(fault_channels | fault_stale) != 0,
         ),
         ("alarms", alarms, u32::from(alarms) >> RuleId::COUNT != 0),
     ] {
@@ -1515,6 +1660,28 @@ fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
             bad.push((column, format!("{value:#04x}"), "undefined bits set"));
         }
     }
+    let hot2_measured = status & STATUS_HOT2_MEASURED != 0;
+    if hot2_measured && pair_integral.is_none() {
+        bad.push((
+            "hot_pair_integral_k_s",
+            "NULL".to_string(),
+            "missing although status bit 4 (hot2 measured) is set",
+        ));
+    }
+    let verdict = read_verdict(verdict.as_deref(), suspect.as_deref(), bias)
+        .map_err(|b| bad.push(b))
+        .unwrap_or_default();
+    let mode = match mode.as_deref() {
+        None => Mode::Engine,
+        Some(text) => parse_mode(text).unwrap_or_else(|| {
+            bad.push((
+                "mode (the summary's, or for a row before version 5 its run's Hello's)",
+                format!("{text:?}"),
+                "not a mode, so the summary's figures cannot be read",
+            ));
+            Mode::Engine
+        }),
+    };
     let mut bad = bad.into_iter();
     if let Some((column, value, why)) = bad.next() {
         return Err(RowError::Value {
@@ -1524,35 +1691,103 @@ fn summary_row(r: &Row<'_>) -> Result<Summary, RowError> {
             also: bad.map(|(c, v, w)| format!("{c} = {v}: {w}")).collect(),
         });
     }
+    let need = |i: usize| -> Result<f32, RowError> {
+        if present[i] {
+            Ok(reals[i])
+        } else {
+            // A NOT NULL column: SQLite itself reports the NULL.
+            r.get::<_, f64>(i + 5)?;
+            Ok(0.0)
+        }
+    };
+    let o = |i: usize| present[i].then_some(reals[i]);
     Ok(Summary {
         seq: r.get(3)?,
         t_ms: r.get(4)?,
-        duration_s: f(5)?,
-        heat_in_j: f(6)?,
-        work_j: f(7)?,
-        heat_out_j: f(8)?,
-        entropy_in_j_per_k: f(9)?,
-        entropy_out_j_per_k: f(10)?,
-        hot_mean_k: o(11)?,
-        ambient_k: o(12)?,
-        performance: o(13)?,
-        bound: o(14)?,
-        entropy_rate_w_per_k: o(15)?,
-        u_performance: o(16)?,
-        u_bound: o(17)?,
-        u_margin: o(18)?,
-        u_entropy_rate_w_per_k: o(19)?,
+        duration_s: need(0)?,
+        heat_in_j: need(1)?,
+        work_j: need(2)?,
+        heat_out_j: need(3)?,
+        entropy_in_j_per_k: need(4)?,
+        entropy_out_j_per_k: need(5)?,
+        // 6 hot_mean_k, 8 performance and 9 bound are recomputed.
+        hot_temperature_integral_k_s: hot_integral.unwrap_or(0.0),
+        hot_pair_integral_k_s: pair_integral.unwrap_or(0.0),
+        ambient_k: o(7),
+        entropy_rate_w_per_k: o(10),
+        u_performance: o(11),
+        u_bound: o(12),
+        u_margin: o(13),
+        u_entropy_rate_w_per_k: o(14),
         status: Status {
             steady: status & STATUS_STEADY != 0,
             heat_out_measured: status & STATUS_HEAT_OUT_MEASURED != 0,
             trip_active: status & STATUS_TRIP_ACTIVE != 0,
             any_fault: status & STATUS_ANY_FAULT != 0,
+            hot2_measured,
+            mode,
         },
         faults: FaultBits {
-            channels: faults & FAULT_CHANNELS,
-            stale: faults & FAULT_STALE != 0,
+            channels: faults & fault_channels,
+            stale: faults & fault_stale != 0,
         },
         alarms,
+        verdict,
+    })
+}
+
+/// The text stored in `verdict` for `consistent`.
+fn verdict_text(consistent: bool) -> &'static str {
+    if consistent {
+        "consistent"
+    } else {
+        "inconsistent"
+    }
+}
+
+/// The verdict stored as `verdict`, `suspect` (a [`Channel::name`]) and
+/// `bias`, checked as the wire checks it: a suspect only with an
+/// inconsistent verdict, a bias only with a suspect.
+fn read_verdict(
+    verdict: Option<&str>,
+    suspect: Option<&str>,
+    bias: Option<f32>,
+) -> Result<Verdict, BadValue> {
+    let consistent = match verdict {
+        None => None,
+        Some("consistent") => Some(true),
+        Some("inconsistent") => Some(false),
+        Some(text) => {
+            return Err((
+                "verdict",
+                format!("{text:?}"),
+                "not a verdict ('consistent', 'inconsistent' or NULL)",
+            ));
+        }
+    };
+    let suspect = match suspect {
+        None => None,
+        Some(text) => match Channel::ALL.into_iter().find(|c| c.name() == text) {
+            Some(c) if consistent == Some(false) => Some(c),
+            Some(_) => {
+                return Err((
+                    "suspect",
+                    format!("{text:?}"),
+                    "a suspect without an inconsistent verdict",
+                ));
+            }
+            None => {
+                return Err(("suspect", format!("{text:?}"), "not a channel name"));
+            }
+        },
+    };
+    if let (Some(b), None) = (bias, suspect) {
+        return Err(("suspect_bias", format!("{b}"), "a bias without a suspect"));
+    }
+    Ok(Verdict {
+        consistent,
+        suspect,
+        bias,
     })
 }
 
@@ -1564,12 +1799,27 @@ pub const STATUS_HEAT_OUT_MEASURED: u8 = 1 << 1;
 pub const STATUS_TRIP_ACTIVE: u8 = 1 << 2;
 /// `summaries.status` bit 3: some channel faulty.
 pub const STATUS_ANY_FAULT: u8 = 1 << 3;
-/// `summaries.faults` bits 0–4: the faulty channels.
-pub const FAULT_CHANNELS: u8 = 0x1F;
-/// `summaries.faults` bit 5: stale.
-pub const FAULT_STALE: u8 = 1 << 5;
+/// `summaries.status` bit 4 (schema version 5): a second hot-side sensor
+/// is read.
+pub const STATUS_HOT2_MEASURED: u8 = 1 << 4;
+/// The defined bits of `summaries.status`. The mode (wire bits 5–6) is not
+/// stored: it is the run's Hello's (see [`Log::frames`]).
+const STATUS_DEFINED: u8 = STATUS_V4_DEFINED | STATUS_HOT2_MEASURED;
+/// The defined bits of `summaries.status` before schema version 5.
+const STATUS_V4_DEFINED: u8 =
+    STATUS_STEADY | STATUS_HEAT_OUT_MEASURED | STATUS_TRIP_ACTIVE | STATUS_ANY_FAULT;
+/// `summaries.faults` bits 0–5: the faulty channels, bit = [`Channel::bit`]
+/// (bit 5: hot2).
+pub const FAULT_CHANNELS: u8 = 0x3F;
+/// `summaries.faults` bit 7: stale (schema version 5; bit 5 before).
+pub const FAULT_STALE: u8 = 1 << 7;
+/// `summaries.faults` bits 0–4 before schema version 5: the faulty channels.
+pub const FAULT_CHANNELS_V4: u8 = 0x1F;
+/// `summaries.faults` bit 5 before schema version 5: stale.
+pub const FAULT_STALE_V4: u8 = 1 << 5;
 
-/// The status byte as on the wire (docs/wire-format.md §3.2, field 18).
+/// The status byte as stored: the wire's bits 0–4 (docs/wire-format.md
+/// §3.2), without the mode.
 pub fn status_bits(s: &Status) -> u8 {
     let mut b = 0;
     for (on, bit) in [
@@ -1577,6 +1827,7 @@ pub fn status_bits(s: &Status) -> u8 {
         (s.heat_out_measured, STATUS_HEAT_OUT_MEASURED),
         (s.trip_active, STATUS_TRIP_ACTIVE),
         (s.any_fault, STATUS_ANY_FAULT),
+        (s.hot2_measured, STATUS_HOT2_MEASURED),
     ] {
         if on {
             b |= bit;
@@ -1585,7 +1836,8 @@ pub fn status_bits(s: &Status) -> u8 {
     b
 }
 
-/// The faults byte as on the wire (docs/wire-format.md §3.2, field 19).
+/// The faults byte as stored since schema version 5: as on the wire
+/// (docs/wire-format.md §3.2), channel bits 0–5 and stale bit 7.
 pub fn fault_bits(f: &FaultBits) -> u8 {
     (f.channels & FAULT_CHANNELS) | if f.stale { FAULT_STALE } else { 0 }
 }

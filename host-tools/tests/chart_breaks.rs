@@ -473,10 +473,7 @@ fn summary(seq: u16, t_ms: u32) -> Frame {
         heat_out_j: 4200.0,
         entropy_in_j_per_k: 10.0,
         entropy_out_j_per_k: 14.0,
-        hot_mean_k: Some(600.0),
         ambient_k: Some(293.15),
-        performance: Some(0.3),
-        bound: Some(0.5),
         entropy_rate_w_per_k: Some(0.666),
         ..Summary::default()
     })
@@ -491,6 +488,7 @@ fn event(t_ms: u32, rule: RuleId, kind: EventKind) -> Frame {
             kind,
             severity: Severity::Trip,
         },
+        verdict: Default::default(),
     })
 }
 

@@ -150,7 +150,7 @@ fn a_tampered_figure_fails_recomputation() {
         if let Frame::Summary(s) = f
             && s.seq == 50
         {
-            s.performance = s.performance.map(|p| p * 1.01);
+            s.entropy_rate_w_per_k = s.entropy_rate_w_per_k.map(|p| p * 1.01 + 1e-3);
         }
     });
     let (code, r) = audit_json(&tampered);
@@ -160,7 +160,40 @@ fn a_tampered_figure_fails_recomputation() {
     assert_eq!(rc["pass"], false);
     assert_eq!(rc["mismatches"], 1);
     assert_eq!(rc["first_mismatches"][0]["seq"], 50);
-    assert_eq!(rc["first_mismatches"][0]["figure"], "performance");
+    assert_eq!(rc["first_mismatches"][0]["figure"], "entropy_rate_w_per_k");
+}
+
+#[test]
+fn a_forged_verdict_fails_the_diagnosis_check() {
+    use heatbound::monitor::Channel;
+    let dir = TempDir::new().expect("temp dir");
+    let path = capture(&dir, "steady", 120);
+    let forged = dir.path().join("forged-verdict.bin");
+    rewrite(&path, &forged, |f| {
+        if let Frame::Summary(s) = f
+            && s.seq == 70
+        {
+            s.verdict.consistent = Some(false);
+            s.verdict.suspect = Some(Channel::Cold);
+            s.verdict.bias = Some(12.0);
+        }
+    });
+    let (code, r) = audit_json(&forged);
+    assert_eq!(code, 1, "{r:#}");
+    let d = &r["diagnosis"];
+    assert_eq!(d["pass"], false, "{d:#}");
+    assert_eq!(d["mismatches"], 1, "{d:#}");
+    assert_eq!(d["first_mismatches"][0]["seq"], 70);
+    assert!(
+        d["first_mismatches"][0]["message"]
+            .as_str()
+            .is_some_and(|m| m.contains("suspect cold")),
+        "{d:#}"
+    );
+    // The unforged capture's verdicts all recompute.
+    let (_, clean) = audit_json(&path);
+    assert_eq!(clean["diagnosis"]["pass"], true, "{:#}", clean["diagnosis"]);
+    assert!(clean["diagnosis"]["compared"].as_u64() > Some(50));
 }
 
 #[test]

@@ -69,26 +69,41 @@ fn hello(mode: Mode) -> Frame {
     ))
 }
 
+/// An engine summary with η = `performance` (`None`: no heat in, so no η).
 fn summary(seq: u16, t_ms: u32, performance: Option<f32>) -> Frame {
+    let heat_in_j = if performance.is_some() { 6000.0 } else { 0.0 };
+    let work_j = performance.map_or(1800.0, |eta| eta * heat_in_j);
+    summary_of(seq, t_ms, Mode::Engine, heat_in_j, work_j)
+}
+
+/// A heat-pump summary with COP = Q_hot/W = `cop` (`None`: no work, so no
+/// COP).
+fn pump_summary(seq: u16, t_ms: u32, cop: Option<f32>) -> Frame {
+    let work_j = if cop.is_some() { 1800.0 } else { 0.0 };
+    let heat_in_j = cop.map_or(6000.0, |c| c * work_j);
+    summary_of(seq, t_ms, Mode::HeatPump, heat_in_j, work_j)
+}
+
+fn summary_of(seq: u16, t_ms: u32, mode: Mode, heat_in_j: f32, work_j: f32) -> Frame {
     Frame::Summary(Summary {
         seq,
         t_ms,
         duration_s: 6.0,
-        heat_in_j: 6000.0,
-        work_j: 1800.0,
+        heat_in_j,
+        work_j,
         heat_out_j: 4200.0,
-        entropy_in_j_per_k: 10.0,
+        entropy_in_j_per_k: heat_in_j / 600.0,
         entropy_out_j_per_k: 14.0,
-        hot_mean_k: Some(600.0),
         ambient_k: Some(293.15),
-        performance,
-        bound: Some(0.5),
         entropy_rate_w_per_k: Some(0.666),
         u_performance: Some(0.004),
         u_bound: Some(0.002),
         u_margin: Some(0.0045),
         u_entropy_rate_w_per_k: Some(0.01),
-        status: Status::default(),
+        status: Status {
+            mode,
+            ..Status::default()
+        },
         alarms: 0,
         ..Summary::default()
     })
@@ -232,7 +247,7 @@ fn a_heat_pump_run_is_labelled_with_cop_and_missing_values_are_skipped() {
     for i in 0..20u16 {
         // Summary 7 has no figure of merit: not drawn, not a NaN in the file.
         let performance = (i != 7).then_some(3.0 + f32::from(i) * 0.01);
-        frames.push(summary(i, 1000 * (u32::from(i) + 1), performance));
+        frames.push(pump_summary(i, 1000 * (u32::from(i) + 1), performance));
     }
     watch_into(&dir, &db, &encode(&frames));
     let svg = dir.path().join("pump.svg");
@@ -279,6 +294,7 @@ fn the_time_axis_runs_through_the_device_clock_wrap() {
             kind: EventKind::Raised,
             severity: Severity::Advisory,
         },
+        verdict: Default::default(),
     }));
     watch_into(&dir, &db, &encode(&frames));
     let svg = dir.path().join("wrap.svg");

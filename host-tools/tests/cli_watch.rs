@@ -36,10 +36,7 @@ fn summary(seq: u16) -> Frame {
         heat_out_j: 4200.0,
         entropy_in_j_per_k: 10.0,
         entropy_out_j_per_k: 14.0,
-        hot_mean_k: Some(600.0),
         ambient_k: Some(293.15),
-        performance: Some(0.3),
-        bound: Some(0.5),
         entropy_rate_w_per_k: Some(0.666_666_7),
         u_performance: Some(0.004),
         u_bound: Some(0.002),
@@ -64,6 +61,7 @@ fn event() -> Frame {
             kind: EventKind::Raised,
             severity: Severity::Trip,
         },
+        verdict: Default::default(),
     })
 }
 

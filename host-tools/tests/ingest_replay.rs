@@ -259,9 +259,6 @@ fn an_undefined_figure_says_why() {
         work_j: 20.0,
         heat_out_j: 80.0,
         entropy_out_j_per_k: 80.0 / 300.0,
-        hot_mean_k: Some(650.0),
-        performance: Some(0.2),
-        bound: Some(0.54),
         entropy_rate_w_per_k: Some(0.1),
         ..Summary::default()
     };
@@ -269,21 +266,18 @@ fn an_undefined_figure_says_why() {
     let no_heat_out = Summary {
         heat_out_j: 0.0,
         entropy_out_j_per_k: 0.0,
-        bound: None,
         ..ok
     };
     assert!(why_undefined(&no_heat_out).is_some_and(|w| w.contains("no heat out")));
+    // T_h = Q_in/S_in = 290 K, below T_c.
     let inverted = Summary {
-        hot_mean_k: Some(290.0),
-        bound: None,
+        entropy_in_j_per_k: 100.0 / 290.0,
         ..ok
     };
     assert!(why_undefined(&inverted).is_some_and(|w| w.contains("T_h is not above T_c")));
     let no_heat_in = Summary {
         heat_in_j: 0.0,
         entropy_in_j_per_k: 0.0,
-        performance: None,
-        hot_mean_k: None,
         ..ok
     };
     assert!(why_undefined(&no_heat_in).is_some_and(|w| w.contains("no heat in")));

@@ -42,6 +42,7 @@ fn impossible(t_s: u32) -> Sample {
         heat_in_w: 500.0,
         work_w: 300.0,
         heat_out_w: None,
+        t_hot2_k: None,
     }
 }
 

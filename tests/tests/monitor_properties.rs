@@ -119,6 +119,7 @@ fn fuzz<R: Real>(
             heat_in_w: R::from_f32(qi),
             work_w: R::from_f32(w),
             heat_out_w: qo.map(R::from_f32),
+            t_hot2_k: None,
         };
         monitor.push(&s);
         let inputs = monitor.alarm_inputs();

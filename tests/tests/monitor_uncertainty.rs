@@ -34,6 +34,7 @@ fn rig(mode: Mode, ambient_k: Option<f64>, window: u32) -> heatbound::config::Ri
             heat_in_rel: Some(U_IN),
             work_rel: Some(U_W),
             heat_out_rel: Some(U_OUT),
+            hot2_k: None,
         }),
         ..Default::default()
     })
@@ -182,6 +183,7 @@ fn varying_runs_match_pypi_uncertainties_vectors() {
                 heat_in_rel: Some(num(&u["heat_in_rel"])),
                 work_rel: Some(num(&u["work_rel"])),
                 heat_out_rel: Some(num(&u["heat_out_rel"])),
+                hot2_k: None,
             }),
             ..Default::default()
         });

@@ -13,6 +13,7 @@ fn steady(t_ms: u32) -> Sample {
         heat_in_w: 1000.0,
         work_w: 150.0,
         heat_out_w: None,
+        t_hot2_k: None,
     }
 }
 
@@ -52,6 +53,7 @@ fn window_slides_over_the_last_n_samples() {
             heat_in_w: f64::from(i),
             work_w: 0.0,
             heat_out_w: None,
+            t_hot2_k: None,
         };
         m.push(&s);
     }
@@ -74,6 +76,7 @@ fn gap_restarts_integration_and_invalid_samples_are_bridged() {
         heat_in_w: q,
         work_w: 0.0,
         heat_out_w: None,
+        t_hot2_k: None,
     };
     assert_eq!(m.push(&s(0, 1.0)), Pushed::Started);
     assert_eq!(m.push(&s(1000, 1.0)), Pushed::Integrated);
@@ -101,6 +104,7 @@ fn millisecond_clock_wrap_is_a_normal_step() {
             heat_in_w: 1000.0,
             work_w: 150.0,
             heat_out_w: None,
+            t_hot2_k: None,
         };
         m.push(&s);
     }

@@ -6,13 +6,14 @@
 //! `tests/tools/gen_wire_golden.py`, which builds each frame from the
 //! specification with Python's struct, zlib.crc32, hmac/hashlib
 //! (HMAC-SHA-256) and PyPI `cobs` 1.2.1, into
-//! `tests/vectors/wire_v2_golden.txt`.
+//! `tests/vectors/wire_v3_golden.txt`.
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::{Mode, RigConfig};
+use heatbound::monitor::Channel;
 use heatbound::wire::{
     self, Addressee, Authenticator, Command, CommandFrame, CommandKey, EventFrame, FaultBits,
-    Frame, Hello, Reply, ReplyCode, RigId, Status, Summary, Uncertainties,
+    Frame, Hello, Reply, ReplyCode, RigId, Status, Summary, Uncertainties, Verdict,
 };
 
 fn hello() -> Frame {
@@ -30,7 +31,9 @@ fn hello() -> Frame {
             heat_in_rel: 0.005,
             work_rel: 0.005,
             heat_out_rel: 0.01,
+            hot2_k: 1.5,
         },
+        losses: Some((0.35, 0.01)),
         config_digest: 0x1234_5678,
         run: 3,
         session: 0x0BAD_CAFE,
@@ -49,10 +52,9 @@ fn summary() -> Frame {
         heat_out_j: 4200.0,
         entropy_in_j_per_k: 10.0,
         entropy_out_j_per_k: 14.0,
-        hot_mean_k: Some(600.0),
+        hot_temperature_integral_k_s: 3600.0,
+        hot_pair_integral_k_s: 240.0,
         ambient_k: Some(300.0),
-        performance: Some(0.3),
-        bound: Some(0.5),
         entropy_rate_w_per_k: Some(0.666_666_7),
         u_performance: Some(0.004),
         u_bound: Some(0.002),
@@ -63,12 +65,19 @@ fn summary() -> Frame {
             heat_out_measured: false,
             trip_active: false,
             any_fault: false,
+            hot2_measured: true,
+            mode: Mode::Engine,
         },
         faults: FaultBits {
             channels: 0,
             stale: false,
         },
         alarms: 0,
+        verdict: Verdict {
+            consistent: Some(false),
+            suspect: Some(Channel::Hot),
+            bias: Some(40.0),
+        },
     })
 }
 
@@ -81,6 +90,11 @@ fn event() -> Frame {
             kind: EventKind::Raised,
             severity: Severity::Trip,
         },
+        verdict: Verdict {
+            consistent: Some(false),
+            suspect: Some(Channel::Hot),
+            bias: None,
+        },
     })
 }
 
@@ -92,9 +106,9 @@ fn reply() -> Frame {
     })
 }
 
-/// The golden frame `name` from `tests/vectors/wire_v2_golden.txt`.
+/// The golden frame `name` from `tests/vectors/wire_v3_golden.txt`.
 fn golden(name: &str) -> String {
-    let text = include_str!("../vectors/wire_v2_golden.txt");
+    let text = include_str!("../vectors/wire_v3_golden.txt");
     text.lines()
         .find_map(|l| l.strip_prefix(name)?.strip_prefix(' '))
         .unwrap_or_else(|| panic!("no golden frame {name}"))

@@ -3,9 +3,10 @@
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::Mode;
+use heatbound::monitor::Channel;
 use heatbound::wire::{
     self, EventFrame, FaultBits, Frame, Hello, Reply, ReplyCode, RigId, Status, Summary,
-    Uncertainties,
+    Uncertainties, Verdict,
 };
 use proptest::prelude::*;
 
@@ -25,30 +26,64 @@ fn figure() -> impl Strategy<Value = Option<f32>> {
 }
 
 fn status() -> impl Strategy<Value = Status> {
-    any::<[bool; 4]>().prop_map(
-        |[steady, heat_out_measured, trip_active, any_fault]| Status {
+    (any::<[bool; 5]>(), mode()).prop_map(
+        |(
+            [
+                steady,
+                heat_out_measured,
+                trip_active,
+                any_fault,
+                hot2_measured,
+            ],
+            mode,
+        )| Status {
             steady,
             heat_out_measured,
             trip_active,
             any_fault,
+            hot2_measured,
+            mode,
         },
     )
 }
 
+/// A verdict as a controller sends it: a suspect (with its bias in a
+/// summary) only when inconsistent.
+fn verdict(with_bias: bool) -> impl Strategy<Value = Verdict> {
+    (
+        0u8..3,
+        proptest::option::of(0usize..Channel::ALL.len()),
+        finite(),
+    )
+        .prop_map(move |(state, suspect, bias)| {
+            let consistent = [None, Some(true), Some(false)][usize::from(state)];
+            let suspect = suspect
+                .filter(|_| consistent == Some(false))
+                .map(|i| Channel::ALL[i]);
+            Verdict {
+                consistent,
+                suspect,
+                bias: suspect.and(Some(bias)).filter(|_| with_bias),
+            }
+        })
+}
+
 prop_compose! {
     fn summary()(seq in any::<u16>(), t_ms in any::<u32>(), integrals in [finite(), finite(),
-        finite(), finite(), finite(), finite()], f in proptest::collection::vec(figure(), 9),
-        status in status(), channels in 0u8..32, stale in any::<bool>(), alarms in 0u8..64)
+        finite(), finite(), finite(), finite(), finite(), finite()],
+        f in proptest::collection::vec(figure(), 6),
+        status in status(), channels in 0u8..64, stale in any::<bool>(), alarms in 0u8..64,
+        verdict in verdict(true))
         -> Summary {
         Summary {
             seq, t_ms,
             duration_s: integrals[0], heat_in_j: integrals[1], work_j: integrals[2],
             heat_out_j: integrals[3], entropy_in_j_per_k: integrals[4],
-            entropy_out_j_per_k: integrals[5],
-            hot_mean_k: f[0], ambient_k: f[1], performance: f[2], bound: f[3],
-            entropy_rate_w_per_k: f[4], u_performance: f[5], u_bound: f[6], u_margin: f[7],
-            u_entropy_rate_w_per_k: f[8],
-            status, faults: FaultBits { channels, stale }, alarms,
+            entropy_out_j_per_k: integrals[5], hot_temperature_integral_k_s: integrals[6],
+            hot_pair_integral_k_s: integrals[7],
+            ambient_k: f[0], entropy_rate_w_per_k: f[1], u_performance: f[2], u_bound: f[3],
+            u_margin: f[4], u_entropy_rate_w_per_k: f[5],
+            status, faults: FaultBits { channels, stale }, alarms, verdict,
         }
     }
 }
@@ -61,16 +96,17 @@ prop_compose! {
     fn hello()(id in "[ -~]{0,16}", fw in any::<(u8, u8, u8)>(), period in any::<u32>(),
         window in any::<u16>(), mode in mode(), k in finite(),
         ambient in prop_oneof![Just(None), finite().prop_map(Some)],
-        u in [finite(), finite(), finite(), finite(), finite()], digest in any::<u32>(),
+        u in [finite(), finite(), finite(), finite(), finite(), finite()], digest in any::<u32>(),
         run in any::<u32>(), session in any::<u32>(), last_counter in any::<u32>(),
-        keyed in any::<bool>())
+        keyed in any::<bool>(), losses in proptest::option::of((finite(), finite())))
         -> Hello {
         Hello {
             rig_id: RigId::new(&id).unwrap(),
             firmware_version: fw, sample_period_ms: period, window_samples: window, mode,
             coverage_factor: k, ambient_k: ambient,
             uncertainty: Uncertainties { hot_k: u[0], cold_k: u[1], heat_in_rel: u[2],
-                work_rel: u[3], heat_out_rel: u[4] },
+                work_rel: u[3], heat_out_rel: u[4], hot2_k: u[5] },
+            losses,
             config_digest: digest, run, session, last_counter, keyed,
         }
     }
@@ -91,8 +127,9 @@ fn event() -> impl Strategy<Value = EventFrame> {
             Just(Severity::Warning),
             Just(Severity::Trip)
         ],
+        verdict(false),
     )
-        .prop_map(|(seq, t_ms, rule, kind, severity)| EventFrame {
+        .prop_map(|(seq, t_ms, rule, kind, severity, verdict)| EventFrame {
             seq,
             event: Event {
                 t_ms,
@@ -100,6 +137,7 @@ fn event() -> impl Strategy<Value = EventFrame> {
                 kind,
                 severity,
             },
+            verdict,
         })
 }
 
@@ -141,12 +179,11 @@ proptest! {
     }
 
     #[test]
-    fn a_missing_figure_roundtrips_as_none(s in summary(), which in 0usize..9) {
+    fn a_missing_figure_roundtrips_as_none(s in summary(), which in 0usize..6) {
         // None travels as the NaN sentinel and must come back as None.
         let mut s = s;
-        let slots = [&mut s.hot_mean_k, &mut s.ambient_k, &mut s.performance, &mut s.bound,
-            &mut s.entropy_rate_w_per_k, &mut s.u_performance, &mut s.u_bound, &mut s.u_margin,
-            &mut s.u_entropy_rate_w_per_k];
+        let slots = [&mut s.ambient_k, &mut s.entropy_rate_w_per_k, &mut s.u_performance,
+            &mut s.u_bound, &mut s.u_margin, &mut s.u_entropy_rate_w_per_k];
         *slots.into_iter().nth(which).unwrap() = None;
         let mut buf = [0u8; wire::MAX_FRAME_LEN];
         let n = wire::encode(&Frame::Summary(s), &mut buf).unwrap();
@@ -160,16 +197,18 @@ fn worst_case_sizes() {
     let worst_summary = Summary {
         seq: u16::MAX,
         t_ms: u32::MAX,
-        hot_mean_k: Some(1.0),
         ambient_k: Some(1.0),
-        performance: Some(1.0),
-        bound: Some(1.0),
         entropy_rate_w_per_k: Some(1.0),
         u_performance: Some(1.0),
         u_bound: Some(1.0),
         u_margin: Some(1.0),
         u_entropy_rate_w_per_k: Some(1.0),
         alarms: 0x3F,
+        verdict: Verdict {
+            consistent: Some(false),
+            suspect: Some(Channel::Hot2),
+            bias: Some(1.0),
+        },
         ..Summary::default()
     };
     let n = wire::encode(&Frame::Summary(worst_summary), &mut buf).unwrap();
@@ -185,6 +224,7 @@ fn worst_case_sizes() {
         coverage_factor: 2.0,
         ambient_k: Some(293.15),
         uncertainty: Uncertainties::default(),
+        losses: Some((1.0, 1.0)),
         config_digest: u32::MAX,
         run: u32::MAX,
         session: u32::MAX,
@@ -193,8 +233,10 @@ fn worst_case_sizes() {
     };
     let n = wire::encode(&Frame::Hello(worst_hello), &mut buf).unwrap();
     // Version 1's 70 bytes, plus three u32 varints at their longest (5
-    // bytes each) and the commands byte.
-    assert_eq!(n, 86);
+    // bytes each) and the commands byte (version 2); plus u(hot2), the
+    // configured losses (1 + 8) (version 3).
+    assert_eq!(n, 99);
+    assert!(n <= wire::MAX_FRAME_LEN);
 
     let worst_reply = wire::Reply {
         counter: u32::MAX,
@@ -231,8 +273,13 @@ fn worst_case_sizes() {
         ..RigConfig::default()
     };
     big.health.stuck_samples = u32::MAX;
+    big.losses = Some(heatbound::config::Losses {
+        ua_w_per_k: 0.35,
+        u_ua_w_per_k: 0.01,
+    });
     let n = command_len(Command::Configure(big));
-    assert_eq!(n, 348);
+    // Version 2's 348 bytes, plus u(hot2) (8) and the losses (1 + 16).
+    assert_eq!(n, 373);
     assert!(n <= wire::MAX_COMMAND_LEN);
 
     let worst_event = EventFrame {
@@ -243,7 +290,12 @@ fn worst_case_sizes() {
             kind: EventKind::Acknowledged,
             severity: Severity::Trip,
         },
+        verdict: Verdict {
+            consistent: Some(false),
+            suspect: Some(Channel::Hot2),
+            bias: None,
+        },
     };
     let n = wire::encode(&Frame::Event(worst_event), &mut buf).unwrap();
-    assert_eq!(n, 19);
+    assert_eq!(n, 20);
 }

@@ -7,7 +7,7 @@ use heatbound::config::{Mode, RigConfig};
 use heatbound::monitor::{Monitor, Sample};
 use heatbound::wire::{
     self, Decoder, DecoderStats, EventFrame, FaultBits, Frame, FrameError, Hello, LinkTracker,
-    RigId, Status, Summary, Uncertainties,
+    RigId, Status, Summary, Uncertainties, Verdict,
 };
 
 /// SplitMix64: small, seeded, good enough to place corruption.
@@ -57,7 +57,9 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                     heat_in_rel: 0.01,
                     work_rel: 0.01,
                     heat_out_rel: 0.02,
+                    hot2_k: 1.0,
                 },
+                losses: (i % 4 == 0).then_some((0.35, 0.01)),
                 config_digest: i as u32,
                 run: (i / 7) as u32,
                 session: 0x5EED,
@@ -72,6 +74,7 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                     kind: EventKind::Raised,
                     severity: Severity::Warning,
                 },
+                verdict: Verdict::default(),
             }),
             _ => {
                 seq = seq.wrapping_add(1);
@@ -85,10 +88,9 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                     heat_out_j: rng.f32(1000.0, 6000.0),
                     entropy_in_j_per_k: rng.f32(1.0, 20.0),
                     entropy_out_j_per_k: rng.f32(1.0, 30.0),
-                    hot_mean_k: some(rng, 400.0, 900.0),
+                    hot_temperature_integral_k_s: rng.f32(2400.0, 5400.0),
+                    hot_pair_integral_k_s: 0.0,
                     ambient_k: some(rng, 280.0, 350.0),
-                    performance: some(rng, 0.0, 0.5),
-                    bound: some(rng, 0.3, 0.7),
                     entropy_rate_w_per_k: some(rng, -0.1, 2.0),
                     u_performance: some(rng, 0.0, 0.01),
                     u_bound: some(rng, 0.0, 0.01),
@@ -99,12 +101,15 @@ fn frames(rng: &mut Rng) -> Vec<Frame> {
                         heat_out_measured: false,
                         trip_active: false,
                         any_fault: false,
+                        hot2_measured: false,
+                        mode: Mode::Engine,
                     },
                     faults: FaultBits {
                         channels: (rng.below(32)) as u8,
                         stale: false,
                     },
                     alarms: (rng.below(64)) as u8,
+                    verdict: Verdict::default(),
                 })
             }
         };
@@ -367,6 +372,7 @@ fn run_monitor(config: &RigConfig, samples: u32, heat_out: bool) -> (Monitor<64>
             heat_in_w: 1500.0 + 10.0 * wobble,
             work_w: 420.0,
             heat_out_w: heat_out.then_some(1070.0 + 10.0 * wobble),
+            t_hot2_k: None,
         });
         alarms.update(i * 100, &monitor.alarm_inputs());
     }
@@ -380,8 +386,8 @@ fn a_real_monitor_summary_fits_the_budget() {
     for heat_out in [false, true] {
         let (monitor, alarms) = run_monitor(&config, 500, heat_out);
         for (seq, t_ms) in [(3u16, 49_900u32), (u16::MAX, u32::MAX)] {
-            let summary = Summary::from_monitor(seq, t_ms, &monitor, &alarms);
-            assert!(summary.performance.is_some() && summary.bound.is_some());
+            let summary = Summary::from_monitor(seq, t_ms, &monitor, &alarms, Verdict::default());
+            assert!(summary.performance().is_some() && summary.bound().is_some());
             assert!(summary.u_margin.is_some());
             assert_eq!(summary.status.heat_out_measured, heat_out);
             let n = wire::encode(&Frame::Summary(summary), &mut buf).unwrap();
@@ -390,11 +396,13 @@ fn a_real_monitor_summary_fits_the_budget() {
             assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Summary(summary)));
 
             // The host recomputes the device's figures from the integrals.
-            let m = summary.integrals().metrics(monitor.settings());
+            let m = monitor.window_metrics();
             let close = |a: Option<f32>, b: Option<f32>| (a.unwrap() - b.unwrap()).abs() < 1e-5;
-            assert!(close(m.efficiency, summary.performance));
-            assert!(close(m.carnot_efficiency, summary.bound));
-            assert!(close(m.entropy_rate_w_per_k, summary.entropy_rate_w_per_k));
+            assert!(close(m.efficiency, summary.performance()));
+            assert!(close(m.carnot_efficiency, summary.bound()));
+            assert!(close(m.hot_mean_k, summary.hot_mean_k()));
+            let r = summary.integrals().metrics(monitor.settings());
+            assert!(close(r.entropy_rate_w_per_k, summary.entropy_rate_w_per_k));
         }
     }
 }

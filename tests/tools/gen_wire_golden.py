@@ -1,12 +1,12 @@
 #!/usr/bin/env python3
-"""Golden frames of wire protocol version 2, built from docs/wire-format.md
+"""Golden frames of wire protocol version 3, built from docs/wire-format.md
 with general-purpose libraries only: Python's struct (IEEE 754 binary32 and
 binary64, little-endian), zlib.crc32 (CRC-32/ISO-HDLC), hmac + hashlib
 (HMAC-SHA-256, RFC 2104 / FIPS 180-4) and PyPI `cobs` (Consistent Overhead
 Byte Stuffing).
 
     pip install cobs==1.2.1
-    python3 tests/tools/gen_wire_golden.py > tests/vectors/wire_v2_golden.txt
+    python3 tests/tools/gen_wire_golden.py > tests/vectors/wire_v3_golden.txt
 
 Each output line is `name hex`, the whole frame on the wire (delimiter
 included). tests/tests/wire_golden.rs compares heatbound's encoder and
@@ -20,7 +20,7 @@ import zlib
 
 from cobs import cobs  # PyPI cobs 1.2.1
 
-VERSION = 2
+VERSION = 3
 KIND_HELLO, KIND_SUMMARY, KIND_EVENT, KIND_REPLY, KIND_COMMAND = 0, 1, 2, 3, 16
 DOMAIN = b"heatbound command v2\x00"
 DEMO_KEY = b"heatbound demo key - not secret!"
@@ -76,7 +76,9 @@ def hello():
         + varint(0)  # engine
         + f32(2.0)
         + opt_f32(293.15)
-        + f32(1.0) + f32(0.125) + f32(0.005) + f32(0.005) + f32(0.01)
+        # uncertainties: hot, cold, heat in, work, heat out, hot2
+        + f32(1.0) + f32(0.125) + f32(0.005) + f32(0.005) + f32(0.01) + f32(1.5)
+        + b"\x01" + f32(0.35) + f32(0.01)  # losses: UA 0.35 W/K, u 0.01 W/K
         + varint(0x12345678)
         + varint(3)  # run
         + varint(0x0BADCAFE)  # session
@@ -86,21 +88,28 @@ def hello():
     return frame(bytes([VERSION, KIND_HELLO]) + body)
 
 
+NAN = struct.pack("<I", 0x7FC00000)  # not available
+
+
 def summary():
     body = (
         varint(513)
         + varint(120000)
-        + b"".join(f32(x) for x in [6.0, 6000.0, 1800.0, 4200.0, 10.0, 14.0])
-        + b"".join(f32(x) for x in [600.0, 300.0, 0.3, 0.5, 0.6666667, 0.004, 0.002, 0.0045])
-        + struct.pack("<I", 0x7FC00000)  # u(entropy rate) not available: NaN
-        + bytes([0x01, 0x00, 0x00])  # steady; no faults; no alarms
+        # duration, Q_in, W, Q_out, S_in, S_out, integral of T_hot, of T_hot - T_hot2
+        + b"".join(f32(x) for x in [6.0, 6000.0, 1800.0, 4200.0, 10.0, 14.0, 3600.0, 240.0])
+        # T0, entropy rate, u(performance), u(bound), u(margin)
+        + b"".join(f32(x) for x in [300.0, 0.6666667, 0.004, 0.002, 0.0045])
+        + NAN  # u(entropy rate) not available
+        + f32(40.0)  # the suspect's bias, K
+        + bytes([0x11, 0x00, 0x00])  # status: steady, hot2 read, engine; no faults; no alarms
+        + bytes([0x02 | (1 << 2)])  # verdict: inconsistent, suspect channel 0 (hot) + 1
     )
     return frame(bytes([VERSION, KIND_SUMMARY]) + body)
 
 
 def event():
-    # beyond_carnot (0) raised (0), trip (2)
-    body = varint(513) + varint(341000) + varint(0) + varint(0) + varint(2)
+    # beyond_carnot (0) raised (0), trip (2); verdict: inconsistent, suspect hot
+    body = varint(513) + varint(341000) + varint(0) + varint(0) + varint(2) + bytes([0x06])
     return frame(bytes([VERSION, KIND_EVENT]) + body)
 
 
@@ -117,7 +126,8 @@ def default_config():
     out += opt_f64(None)  # ambient: the cold-side mean
     out += varint(60)  # window_samples
     out += f64(10.0) + f64(2.0)  # max_gap_s, coverage_factor
-    out += b"".join(f64(x) for x in [2.0 / sqrt3, 0.25 / sqrt3, 0.01 / sqrt3, 0.01 / sqrt3, 0.02 / sqrt3])
+    # uncertainty: hot, hot2, cold, heat in, work, heat out
+    out += b"".join(f64(x) for x in [2.0 / sqrt3, 2.0 / sqrt3, 0.25 / sqrt3, 0.01 / sqrt3, 0.01 / sqrt3, 0.02 / sqrt3])
     out += b"".join(f64(x) for x in [60.0, 2.0, 2.0, 0.05, 0.05, 0.05])  # steady
     out += varint(0) + f64(10.0) + f64(1.0) + f64(3000.0)  # health
     out += f64(0.75) + f64(1100.0)  # near_carnot_fraction, hot_max_k
@@ -133,6 +143,7 @@ def default_config():
     for severity, deadband, latching in rules:
         out += b"\x01" + varint(severity) + f64(deadband) + f64(5.0) + f64(5.0)
         out += b"\x01" if latching else b"\x00"
+    out += opt_f64(None)  # losses: learned
     return out
 
 

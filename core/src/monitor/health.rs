@@ -43,7 +43,8 @@ impl<R: Real> StuckCheck<R> {
             return 0;
         }
         let mut stuck = 0;
-        for (i, ch) in Channel::ALL.iter().enumerate() {
+        // The second hot sensor is checked by the diagnosis, against the first.
+        for (i, ch) in Channel::ALL.iter().take(STEADY_CHANNELS).enumerate() {
             if present & ch.bit() == 0 {
                 self.repeats[i] = 0;
                 continue;

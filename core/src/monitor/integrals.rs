@@ -36,12 +36,20 @@ pub struct Integrals<R> {
     /// With heat out measured: `∫T_cold dt`, K·s, whose time mean is the
     /// default T0 (else 0).
     pub cold_temperature_integral_k_s: R,
+    /// `∫T_hot dt`, K·s: with T0 it gives the heat lost to the room,
+    /// `UA·∫(T_hot − T0) dt`.
+    pub hot_temperature_integral_k_s: R,
+    /// Whether a second hot-side sensor was read.
+    pub hot2_measured: bool,
+    /// With a second hot-side sensor: `∫(T_hot − T_hot2) dt`, K·s (else 0).
+    pub hot_pair_integral_k_s: R,
 }
 
 /// How many integrals the monitor keeps beside time, and where each sits
-/// in a [`Terms`]. Eight lanes of `f32` fill two SSE registers (one AVX
-/// register), which keeps the per-sample sums cheap.
-pub(super) const TERMS: usize = 8;
+/// in a [`Terms`]. The first eight lanes of `f32` fill two SSE registers
+/// (one AVX register), which keeps the per-sample sums cheap; the last two
+/// serve the diagnosis.
+pub(super) const TERMS: usize = 10;
 /// `q_in`.
 const QI: usize = 0;
 /// `w`.
@@ -59,6 +67,10 @@ const CA2: usize = 6;
 /// Measured: `T_cold` (its time integral gives the default T0); inferred:
 /// `w/T_cold²`.
 const CB2: usize = 7;
+/// `T_hot`.
+const HT: usize = 8;
+/// `T_hot − T_hot2` (0 without a second hot sensor).
+const HP: usize = 9;
 
 /// The integrands at one sample, or the contribution of one trapezoid.
 /// Arrays, so that sums and trapezoids vectorise. Time is kept apart, in
@@ -71,13 +83,37 @@ pub(super) fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
     let inv_c = R::ONE / s.t_cold_k;
     let (qi, w) = (s.heat_in_w, s.work_w);
     let si = qi * inv_h;
+    let th = s.t_hot_k;
+    let pair = s.t_hot2_k.map_or(R::ZERO, |t2| th - t2);
     if measured {
         let qo = s.heat_out_w.unwrap_or(R::ZERO);
         let ca = qo * inv_c;
-        [qi, w, si, si * inv_h, ca, qo, ca * inv_c, s.t_cold_k]
+        [
+            qi,
+            w,
+            si,
+            si * inv_h,
+            ca,
+            qo,
+            ca * inv_c,
+            s.t_cold_k,
+            th,
+            pair,
+        ]
     } else {
         let (ca, cb) = (qi * inv_c, w * inv_c);
-        [qi, w, si, si * inv_h, ca, cb, ca * inv_c, cb * inv_c]
+        [
+            qi,
+            w,
+            si,
+            si * inv_h,
+            ca,
+            cb,
+            ca * inv_c,
+            cb * inv_c,
+            th,
+            pair,
+        ]
     }
 }
 
@@ -95,6 +131,7 @@ pub(super) fn integrals_of<R: Real>(
     v: &Terms<R>,
     duration_ms: u64,
     measured: bool,
+    hot2: bool,
 ) -> Integrals<R> {
     let (cold, cold_sensitivity, heat_out_j, cold_heat_in, cold_work, cold_time) = if measured {
         (v[CA], v[CA2], v[CB], R::ZERO, R::ZERO, v[CB2])
@@ -121,5 +158,8 @@ pub(super) fn integrals_of<R: Real>(
         cold_heat_in_j_per_k: cold_heat_in,
         cold_work_j_per_k: cold_work,
         cold_temperature_integral_k_s: cold_time,
+        hot_temperature_integral_k_s: v[HT],
+        hot2_measured: hot2,
+        hot_pair_integral_k_s: if hot2 { v[HP] } else { R::ZERO },
     }
 }

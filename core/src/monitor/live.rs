@@ -58,6 +58,8 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     t_max_k: R,
     /// Whether this run measures heat out; fixed by the first valid sample.
     measured: Option<bool>,
+    /// Whether this run reads a second hot sensor; fixed likewise.
+    hot2: Option<bool>,
     /// Time of the previous valid sample.
     prev_ms: Option<u32>,
     /// Integrands of the previous valid sample.
@@ -95,7 +97,8 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// use heatbound::monitor::{Monitor, Sample, Pushed};
     /// let mut m: Monitor<64> = Monitor::new(&RigConfig::default()).unwrap();
     /// let s = |t_ms| Sample { t_ms, t_hot_k: 600.0, t_cold_k: 300.0,
-    ///                         heat_in_w: 1000.0, work_w: 150.0, heat_out_w: None };
+    ///                         heat_in_w: 1000.0, work_w: 150.0, heat_out_w: None,
+    ///                         t_hot2_k: None };
     /// assert_eq!(m.push(&s(0)), Pushed::Started);
     /// assert_eq!(m.push(&s(1000)), Pushed::Integrated);
     /// let w = m.window_metrics();
@@ -118,6 +121,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             t_min_k: R::from_f64(config.health.min_temperature_k),
             t_max_k: R::from_f64(config.health.max_temperature_k),
             measured: None,
+            hot2: None,
             prev_ms: None,
             prev_point: [R::ZERO; TERMS],
             ring: [[R::ZERO; TERMS]; N],
@@ -194,6 +198,12 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         };
         in_range(s.t_hot_k, Channel::Hot)?;
         in_range(s.t_cold_k, Channel::Cold)?;
+        match (self.hot2, s.t_hot2_k) {
+            (_, Some(t)) if !t.is_finite() => return Err(Invalid::NonFinite(Channel::Hot2)),
+            (_, Some(t)) => in_range(t, Channel::Hot2)?,
+            (Some(true), None) => return Err(Invalid::MissingHot2),
+            _ => {}
+        }
         let max_power = R::from_f32(MAX_POWER_W);
         let bounded = |v: R, c| {
             if v.abs() <= max_power {
@@ -237,6 +247,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             self.faults.invalid = match why {
                 Invalid::NonFinite(c) | Invalid::OutOfRange(c) => c.bit(),
                 Invalid::MissingHeatOut => Channel::HeatOut.bit(),
+                Invalid::MissingHot2 => Channel::Hot2.bit(),
                 Invalid::RepeatedTime => 0,
             };
             self.update_fault_since(s.t_ms, since_last);
@@ -244,6 +255,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         }
         self.faults.invalid = 0;
         let measured = *self.measured.get_or_insert(s.heat_out_w.is_some());
+        self.hot2.get_or_insert(s.t_hot2_k.is_some());
         let point = integrands(s, measured);
         self.last_t_hot_k = Some(s.t_hot_k);
 
@@ -342,6 +354,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             &self.sums.window(),
             self.window_ms,
             self.measured.unwrap_or(false),
+            self.hot2.unwrap_or(false),
         )
     }
 
@@ -351,6 +364,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             &self.sums.totals_f64().map(R::from_f64),
             self.totals_ms,
             self.measured.unwrap_or(false),
+            self.hot2.unwrap_or(false),
         )
     }
 
@@ -429,5 +443,10 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// Whether heat out is measured in this run (`None` before the first valid sample).
     pub fn heat_out_measured(&self) -> Option<bool> {
         self.measured
+    }
+
+    /// Whether this run reads a second hot sensor (`None` before the first valid sample).
+    pub fn hot2_measured(&self) -> Option<bool> {
+        self.hot2
     }
 }

@@ -23,6 +23,10 @@ pub struct Sample<R = f32> {
     pub work_w: R,
     /// Heat out, watts, if measured.
     pub heat_out_w: Option<R>,
+    /// A second hot-side temperature, kelvin, if the rig has one (a
+    /// dual-element thermocouple, say): the diagnosis compares it with
+    /// `t_hot_k`.
+    pub t_hot2_k: Option<R>,
 }
 
 /// The channels of a [`Sample`], for faults and steady-state bands.
@@ -41,16 +45,19 @@ pub enum Channel {
     Work = 3,
     /// `heat_out_w`.
     HeatOut = 4,
+    /// `t_hot2_k`.
+    Hot2 = 5,
 }
 
 impl Channel {
     /// Every channel, in bit order.
-    pub const ALL: [Channel; 5] = [
+    pub const ALL: [Channel; 6] = [
         Channel::Hot,
         Channel::Cold,
         Channel::HeatIn,
         Channel::Work,
         Channel::HeatOut,
+        Channel::Hot2,
     ];
 
     /// The channel's column name.
@@ -61,7 +68,27 @@ impl Channel {
             Channel::HeatIn => "heat_in_w",
             Channel::Work => "work_w",
             Channel::HeatOut => "heat_out_w",
+            Channel::Hot2 => "hot2",
         }
+    }
+
+    /// The channel's name in a diagnosis: `hot`, `hot2`, `cold`, `heat_in`,
+    /// `work` or `heat_out`.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Channel::Hot => "hot",
+            Channel::Cold => "cold",
+            Channel::HeatIn => "heat_in",
+            Channel::Work => "work",
+            Channel::HeatOut => "heat_out",
+            Channel::Hot2 => "hot2",
+        }
+    }
+
+    /// Whether the channel is a temperature (its error an offset in
+    /// kelvin) rather than a power (its error a relative scale).
+    pub const fn is_temperature(self) -> bool {
+        matches!(self, Channel::Hot | Channel::Hot2 | Channel::Cold)
     }
 
     /// The channel's bit in a fault mask.
@@ -93,6 +120,9 @@ pub enum Invalid {
     OutOfRange(Channel),
     /// Heat out is measured in this run, but the sample has none.
     MissingHeatOut,
+    /// The run has a second hot-side sensor, but the sample has no reading
+    /// of it.
+    MissingHot2,
     /// The sample has the same time stamp as the previous one.
     RepeatedTime,
 }
@@ -101,13 +131,14 @@ impl core::fmt::Display for Invalid {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         match self {
             Invalid::NonFinite(c) => write!(f, "{c} is not a finite number"),
-            Invalid::OutOfRange(c @ (Channel::Hot | Channel::Cold)) => {
+            Invalid::OutOfRange(c @ (Channel::Hot | Channel::Cold | Channel::Hot2)) => {
                 write!(f, "{c} is outside the plausible temperature range")
             }
             Invalid::OutOfRange(c) => write!(f, "{c} is beyond ±{MAX_POWER_W:e} W"),
             Invalid::MissingHeatOut => {
                 f.write_str("heat_out_w is missing in a run that measures it")
             }
+            Invalid::MissingHot2 => f.write_str("hot2 is missing in a run that measures it"),
             Invalid::RepeatedTime => f.write_str("time stamp repeats the previous sample's"),
         }
     }

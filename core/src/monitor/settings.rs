@@ -53,6 +53,8 @@ impl core::fmt::Display for Mode {
 pub struct Uncertainty {
     /// Hot-side temperature, kelvin.
     pub hot_k: f64,
+    /// The second hot-side sensor, kelvin (when there is one).
+    pub hot2_k: f64,
     /// Cold-side temperature, kelvin.
     pub cold_k: f64,
     /// Heat input, relative.
@@ -69,6 +71,7 @@ impl Default for Uncertainty {
         const SQRT3: f64 = 1.732_050_807_568_877_2;
         Self {
             hot_k: 2.0 / SQRT3,
+            hot2_k: 2.0 / SQRT3,
             cold_k: 0.25 / SQRT3,
             heat_in_rel: 0.01 / SQRT3,
             work_rel: 0.01 / SQRT3,

@@ -22,6 +22,7 @@ pub(super) struct RawHello {
     coverage_factor: f32,
     ambient_k: Option<f32>,
     uncertainty: Uncertainties,
+    losses: Option<(f32, f32)>,
     config_digest: u32,
     run: u32,
     session: u32,
@@ -33,17 +34,19 @@ pub(super) struct RawHello {
 pub(super) struct RawSummary {
     seq: u16,
     t_ms: u32,
-    integrals: [f32; 6],
-    figures: [f32; 9],
+    integrals: [f32; 8],
+    figures: [f32; 7],
     status: u8,
     faults: u8,
     alarms: u8,
+    verdict: u8,
 }
 
 #[derive(Serialize, Deserialize)]
 pub(super) struct RawEvent {
     seq: u16,
     event: Event,
+    verdict: u8,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -80,6 +83,7 @@ pub(super) fn raw_summary(s: &Summary) -> Result<RawSummary, WireError> {
         status: s.status.to_bits(),
         faults: s.faults.channels | if s.faults.stale { STALE_BIT } else { 0 },
         alarms: s.alarms,
+        verdict: s.verdict.to_bits(),
     })
 }
 
@@ -98,18 +102,19 @@ pub(super) fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
         heat_out_j,
         entropy_in_j_per_k,
         entropy_out_j_per_k,
+        hot_temperature_integral_k_s,
+        hot_pair_integral_k_s,
     ] = r.integrals;
     let [
-        hot_mean_k,
         ambient_k,
-        performance,
-        bound,
         entropy_rate_w_per_k,
         u_performance,
         u_bound,
         u_margin,
         u_entropy_rate_w_per_k,
+        bias,
     ] = r.figures.map(none_if_not_finite);
+    let verdict = Verdict::from_bits(r.verdict, bias).ok_or(Malformed::ReservedBits)?;
     Ok(Summary {
         seq: r.seq,
         t_ms: r.t_ms,
@@ -119,10 +124,9 @@ pub(super) fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
         heat_out_j,
         entropy_in_j_per_k,
         entropy_out_j_per_k,
-        hot_mean_k,
+        hot_temperature_integral_k_s,
+        hot_pair_integral_k_s,
         ambient_k,
-        performance,
-        bound,
         entropy_rate_w_per_k,
         u_performance,
         u_bound,
@@ -134,6 +138,7 @@ pub(super) fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
             stale: r.faults & STALE_BIT != 0,
         },
         alarms: r.alarms,
+        verdict,
     })
 }
 
@@ -147,6 +152,7 @@ pub(super) fn raw_hello(h: &Hello) -> RawHello {
         coverage_factor: h.coverage_factor,
         ambient_k: h.ambient_k,
         uncertainty: h.uncertainty,
+        losses: h.losses,
         config_digest: h.config_digest,
         run: h.run,
         session: h.session,
@@ -168,6 +174,7 @@ pub(super) fn hello_from_raw(r: RawHello) -> Result<Hello, Malformed> {
         coverage_factor: r.coverage_factor,
         ambient_k: r.ambient_k,
         uncertainty: r.uncertainty,
+        losses: r.losses,
         config_digest: r.config_digest,
         run: r.run,
         session: r.session,
@@ -216,6 +223,7 @@ pub fn encode(frame: &Frame, buf: &mut [u8]) -> Result<usize, WireError> {
                 RawEvent {
                     seq: e.seq,
                     event: e.event,
+                    verdict: e.verdict.to_bits(),
                 },
             ),
             &mut raw,
@@ -352,6 +360,7 @@ pub(super) fn decode_in_place(buf: &mut [u8]) -> Result<Frame, FrameError> {
             Frame::Event(EventFrame {
                 seq: r.seq,
                 event: r.event,
+                verdict: Verdict::from_bits(r.verdict, None).ok_or(Malformed::ReservedBits)?,
             })
         }
         kind::REPLY => {

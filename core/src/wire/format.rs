@@ -7,7 +7,7 @@ use crate::monitor::Channel;
 ///
 /// Any change to a field's order, type or meaning, and any new frame kind,
 /// bumps it; decoders reject frames of other versions and count them.
-pub const PROTOCOL_VERSION: u8 = 2;
+pub const PROTOCOL_VERSION: u8 = 3;
 
 /// The longest frame on the wire, delimiter included: a buffer of this size
 /// holds any frame `encode` writes, and a `Decoder` of this capacity
@@ -26,8 +26,9 @@ pub const MAC_LEN: usize = 8;
 /// every varint at its longest (`seq ≥ 2^14`, `t_ms ≥ 2^28`).
 pub const SUMMARY_MAX_WIRE_LEN: usize = cobs_max_len(SUMMARY_MAX_PAYLOAD + CRC_LEN) + 1;
 
-/// Header (2) + `seq` (≤ 3) + `t_ms` (≤ 5) + 15 f32 + 3 bit bytes.
-pub(super) const SUMMARY_MAX_PAYLOAD: usize = 2 + 3 + 5 + 15 * 4 + 3;
+/// Header (2) + `seq` (≤ 3) + `t_ms` (≤ 5) + 8 integrals and 7 figures
+/// (f32) + 4 bit bytes (status, faults, alarms, verdict).
+pub(super) const SUMMARY_MAX_PAYLOAD: usize = 2 + 3 + 5 + (8 + 7) * 4 + 4;
 
 const _: () = assert!(
     SUMMARY_MAX_WIRE_LEN <= 80,
@@ -43,9 +44,18 @@ pub(super) const MAX_RAW_COMMAND_LEN: usize = MAX_COMMAND_LEN - 4;
 const _: () = assert!(cobs_max_len(MAX_RAW_COMMAND_LEN) < MAX_COMMAND_LEN);
 const _: () = assert!(cobs_max_len(MAX_RAW_LEN) < MAX_FRAME_LEN);
 
+/// On a controller the CRC is computed bit by bit: a frame a second does
+/// not need the 1 KiB lookup table, and the flash is short. The host
+/// decodes millions of frames and keeps the table.
+#[cfg(target_os = "none")]
+pub(super) type CrcImpl = crc::NoTable;
+/// The host's CRC: table-driven.
+#[cfg(not(target_os = "none"))]
+pub(super) type CrcImpl = crc::Table<1>;
+
 /// The CRC over the postcard bytes: CRC-32/ISO-HDLC (the Ethernet, zlib and
 /// PNG CRC), check value `0xCBF43926`.
-pub(super) const CRC: crc::Crc<u32> = crc::Crc::<u32>::new(&crc::CRC_32_ISO_HDLC);
+pub(super) const CRC: crc::Crc<u32, CrcImpl> = crc::Crc::<u32, CrcImpl>::new(&crc::CRC_32_ISO_HDLC);
 
 /// The frame kinds, the second header byte.
 pub(super) mod kind {
@@ -69,10 +79,28 @@ pub(super) mod status_bit {
     pub const HEAT_OUT_MEASURED: u8 = 1 << 1;
     pub const TRIP_ACTIVE: u8 = 1 << 2;
     pub const ANY_FAULT: u8 = 1 << 3;
-    pub const DEFINED: u8 = STEADY | HEAT_OUT_MEASURED | TRIP_ACTIVE | ANY_FAULT;
+    pub const HOT2_MEASURED: u8 = 1 << 4;
+    /// Bits 5–6: the mode.
+    pub const MODE_MASK: u8 = 0b11 << 5;
+    pub const MODE_ENGINE: u8 = 0;
+    pub const MODE_HEAT_PUMP: u8 = 1 << 5;
+    pub const MODE_COOLER: u8 = 2 << 5;
+    pub const DEFINED: u8 =
+        STEADY | HEAT_OUT_MEASURED | TRIP_ACTIVE | ANY_FAULT | HOT2_MEASURED | MODE_MASK;
 }
 
-/// The channel bits of a fault byte: bits 0–4 = [`Channel::bit`].
+/// Bits of the verdict byte of `Summary` and `Event`.
+pub(super) mod verdict_bit {
+    /// Bits 0–1: 0 no diagnosis, 1 consistent, 2 inconsistent.
+    pub const STATE_MASK: u8 = 0b11;
+    pub const CONSISTENT: u8 = 1;
+    pub const INCONSISTENT: u8 = 2;
+    /// Bits 2–4: the suspect's `Channel` number + 1, 0 for none.
+    pub const SUSPECT_SHIFT: u8 = 2;
+    pub const DEFINED: u8 = STATE_MASK | (0b111 << SUSPECT_SHIFT);
+}
+
+/// The channel bits of a fault byte: bits 0–5 = [`Channel::bit`].
 pub(super) const CHANNEL_BITS: u8 = {
     let mut m = 0;
     let mut i = 0;
@@ -83,7 +111,7 @@ pub(super) const CHANNEL_BITS: u8 = {
     m
 };
 /// The stale bit of the fault byte.
-pub(super) const STALE_BIT: u8 = 1 << 5;
+pub(super) const STALE_BIT: u8 = 1 << 7;
 /// The alarm bits: bit i = `RuleId::index`.
 pub(super) const ALARM_BITS: u8 = (1 << RuleId::COUNT) - 1;
 

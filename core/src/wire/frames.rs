@@ -6,7 +6,8 @@ use super::error::*;
 use super::format::*;
 use crate::alarm::{AlarmSet, Event};
 use crate::config::{Mode, RigConfig};
-use crate::monitor::{Channel, Integrals, Monitor};
+use crate::diagnosis::{Diagnosis, DiagnosisError};
+use crate::monitor::{Channel, FigureSettings, Integrals, Metrics, Monitor, Uncertainty};
 
 // ---------------------------------------------------------------------------
 // Validated frames
@@ -114,12 +115,15 @@ pub struct Uncertainties {
     pub work_rel: f32,
     /// Heat out, relative.
     pub heat_out_rel: f32,
+    /// The second hot-side sensor, kelvin.
+    pub hot2_k: f32,
 }
 
 impl Uncertainties {
     pub(super) fn all_finite(&self) -> bool {
         [
             self.hot_k,
+            self.hot2_k,
             self.cold_k,
             self.heat_in_rel,
             self.work_rel,
@@ -160,6 +164,10 @@ pub struct Hello {
     pub ambient_k: Option<f32>,
     /// Channel standard uncertainties (finite).
     pub uncertainty: Uncertainties,
+    /// `[losses]`: the configured UA and its standard uncertainty, W/K
+    /// (finite); `None`: the controller learns UA from the first steady
+    /// Summary's window, as the host can from the same Summary.
+    pub losses: Option<(f32, f32)>,
     /// [`Hello::config_digest`] of the configuration in use.
     pub config_digest: u32,
     /// The run counter: +1 for every new run the controller starts on
@@ -201,7 +209,11 @@ impl Hello {
                 heat_in_rel: u.heat_in_rel as f32,
                 work_rel: u.work_rel as f32,
                 heat_out_rel: u.heat_out_rel as f32,
+                hot2_k: u.hot2_k as f32,
             },
+            losses: config
+                .losses
+                .map(|l| (l.ua_w_per_k as f32, l.u_ua_w_per_k as f32)),
             config_digest: Hello::config_digest(config),
             run: 0,
             session: 0,
@@ -233,11 +245,14 @@ impl Hello {
         self.coverage_factor.is_finite()
             && self.ambient_k.is_none_or(f32::is_finite)
             && self.uncertainty.all_finite()
+            && self
+                .losses
+                .is_none_or(|(ua, u)| ua.is_finite() && u.is_finite())
     }
 }
 
 /// A postcard flavor that feeds the bytes to a CRC instead of storing them.
-pub(super) struct CrcFlavor(crc::Digest<'static, u32>);
+pub(super) struct CrcFlavor(crc::Digest<'static, u32, CrcImpl>);
 
 impl postcard::ser_flavors::Flavor for CrcFlavor {
     type Output = u32;
@@ -266,11 +281,22 @@ pub struct Status {
     pub trip_active: bool,
     /// Some channel is faulty.
     pub any_fault: bool,
+    /// A second hot-side sensor is read (else `hot_pair_integral_k_s` is 0).
+    pub hot2_measured: bool,
+    /// Engine, heat pump or cooler: what `performance` and `bound` mean.
+    pub mode: Mode,
 }
 
 impl Status {
     pub(super) fn to_bits(self) -> u8 {
-        let mut b = 0;
+        let mut b = match self.mode {
+            Mode::Engine => status_bit::MODE_ENGINE,
+            Mode::HeatPump => status_bit::MODE_HEAT_PUMP,
+            Mode::Cooler => status_bit::MODE_COOLER,
+        };
+        if self.hot2_measured {
+            b |= status_bit::HOT2_MEASURED;
+        }
         if self.steady {
             b |= status_bit::STEADY;
         }
@@ -287,11 +313,19 @@ impl Status {
     }
 
     pub(super) fn from_bits(b: u8) -> Option<Status> {
+        let mode = match b & status_bit::MODE_MASK {
+            status_bit::MODE_ENGINE => Mode::Engine,
+            status_bit::MODE_HEAT_PUMP => Mode::HeatPump,
+            status_bit::MODE_COOLER => Mode::Cooler,
+            _ => return None,
+        };
         (b & !status_bit::DEFINED == 0).then_some(Status {
             steady: b & status_bit::STEADY != 0,
             heat_out_measured: b & status_bit::HEAT_OUT_MEASURED != 0,
             trip_active: b & status_bit::TRIP_ACTIVE != 0,
             any_fault: b & status_bit::ANY_FAULT != 0,
+            hot2_measured: b & status_bit::HOT2_MEASURED != 0,
+            mode,
         })
     }
 }
@@ -314,26 +348,102 @@ impl FaultBits {
     }
 }
 
-/// One window's raw integrals, the device's figures and its state.
+/// What the controller's diagnosis said about a window (see
+/// [`crate::diagnosis`]): in a `Summary`, of its window; in an `Event`, of
+/// the window at the moment a second-law or energy-balance alarm was
+/// raised.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Verdict {
+    /// Whether the relations held; `None` when no diagnosis was made (no
+    /// window yet).
+    pub consistent: Option<bool>,
+    /// The one channel whose bias explains the inconsistency, if exactly
+    /// one does.
+    pub suspect: Option<Channel>,
+    /// The suspect's bias: K for a temperature, relative for a power.
+    pub bias: Option<f32>,
+}
+
+impl Verdict {
+    /// The verdict of a diagnosis.
+    pub fn of(result: &Result<Diagnosis<f32>, DiagnosisError>) -> Verdict {
+        match result {
+            Ok(d) => Verdict {
+                consistent: Some(d.consistent),
+                suspect: d.suspect,
+                bias: d
+                    .suspect_candidate()
+                    .map(|c| c.bias)
+                    .filter(|b| b.is_finite()),
+            },
+            Err(_) => Verdict::default(),
+        }
+    }
+
+    pub(super) fn to_bits(self) -> u8 {
+        let state = match self.consistent {
+            None => 0,
+            Some(true) => verdict_bit::CONSISTENT,
+            Some(false) => verdict_bit::INCONSISTENT,
+        };
+        state
+            | self
+                .suspect
+                .map_or(0, |c| (c as u8 + 1) << verdict_bit::SUSPECT_SHIFT)
+    }
+
+    pub(super) fn from_bits(b: u8, bias: Option<f32>) -> Option<Verdict> {
+        if b & !verdict_bit::DEFINED != 0 {
+            return None;
+        }
+        let consistent = match b & verdict_bit::STATE_MASK {
+            0 => None,
+            verdict_bit::CONSISTENT => Some(true),
+            verdict_bit::INCONSISTENT => Some(false),
+            _ => return None,
+        };
+        let suspect = match b >> verdict_bit::SUSPECT_SHIFT {
+            0 => None,
+            n => Some(*Channel::ALL.iter().find(|c| **c as u8 + 1 == n)?),
+        };
+        // A suspect comes only with an inconsistent verdict.
+        if suspect.is_some() && consistent != Some(false) {
+            return None;
+        }
+        Some(Verdict {
+            consistent,
+            suspect,
+            bias: bias.filter(|_| suspect.is_some()),
+        })
+    }
+}
+
+/// One window's raw integrals, the device's uncertainties and its state.
 ///
-/// Optional figures are `None` when not available; present ones and every
-/// integral are finite. `performance` and `bound` are η and η_C for an
-/// engine, COP and Carnot COP in reverse modes (the mode is in [`Hello`]).
+/// Every integral is finite; optional figures are `None` when not
+/// available, present ones finite. The figures that follow from the
+/// integrals alone travel no more: [`Summary::metrics`] recomputes them
+/// (T_h, η or COP, its bound, σ̇), as every receiver would. The
+/// uncertainties cannot be recomputed (the sensitivity integrals do not
+/// travel) and are the device's.
 ///
 /// ```
 /// use heatbound::alarm::AlarmSet;
 /// use heatbound::config::RigConfig;
 /// use heatbound::monitor::{Monitor, Sample};
-/// use heatbound::wire::{self, Frame, Summary};
+/// use heatbound::wire::{self, Frame, Summary, Verdict};
 ///
 /// let config = RigConfig::default();
 /// let mut monitor = Monitor::<64, f32>::new(&config).unwrap();
 /// for i in 0..10 {
 ///     monitor.push(&Sample { t_ms: i * 100, t_hot_k: 600.0, t_cold_k: 300.0,
-///                            heat_in_w: 1000.0, work_w: 300.0, heat_out_w: None });
+///                            heat_in_w: 1000.0, work_w: 300.0, heat_out_w: None,
+///                            t_hot2_k: None });
 /// }
-/// let summary = Summary::from_monitor(7, 900, &monitor, &AlarmSet::new(&config));
-/// assert!((summary.performance.unwrap() - 0.3).abs() < 1e-6);
+/// let summary = Summary::from_monitor(7, 900, &monitor, &AlarmSet::new(&config),
+///                                     Verdict::default());
+/// assert!((summary.performance().unwrap() - 0.3).abs() < 1e-6);
 ///
 /// let mut buf = [0; wire::SUMMARY_MAX_WIRE_LEN];
 /// let n = wire::encode(&Frame::Summary(summary), &mut buf).unwrap();
@@ -358,18 +468,16 @@ pub struct Summary {
     pub entropy_in_j_per_k: f32,
     /// `∫q_out/T_cold dt`, J/K.
     pub entropy_out_j_per_k: f32,
-    /// Heat-weighted mean hot-side temperature, kelvin.
-    pub hot_mean_k: Option<f32>,
+    /// `∫T_hot dt`, K·s.
+    pub hot_temperature_integral_k_s: f32,
+    /// `∫(T_hot − T_hot2) dt`, K·s, with a second hot sensor (see
+    /// [`Status::hot2_measured`]); else 0.
+    pub hot_pair_integral_k_s: f32,
     /// T0, kelvin: the configured ambient, else the cold-side mean the
     /// device used (the time mean of `T_cold` with heat out measured, `T_c`
-    /// inferred). The heat-weighted `T_c` itself follows from the integrals
-    /// as `Q_out / ∫q_out/T_cold`.
+    /// inferred).
     pub ambient_k: Option<f32>,
-    /// η (engine) or COP (heat pump, cooler).
-    pub performance: Option<f32>,
-    /// η_C (engine) or Carnot COP.
-    pub bound: Option<f32>,
-    /// σ̇, W/K.
+    /// σ̇, W/K, as the device computed it (its alarms use it).
     pub entropy_rate_w_per_k: Option<f32>,
     /// u(performance), standard.
     pub u_performance: Option<f32>,
@@ -379,16 +487,19 @@ pub struct Summary {
     pub u_margin: Option<f32>,
     /// u(σ̇), W/K, standard.
     pub u_entropy_rate_w_per_k: Option<f32>,
-    /// Steady, heat-out-measured, trip and fault bits.
+    /// Steady, heat-out-measured, trip, fault, hot2 bits and the mode.
     pub status: Status,
     /// Faulty channels and staleness.
     pub faults: FaultBits,
     /// Active alarms, bit i = `RuleId::index` (bits 0–5 only).
     pub alarms: u8,
+    /// The diagnosis of this window.
+    pub verdict: Verdict,
 }
 
 impl Summary {
-    /// The summary of `monitor`'s window and `alarms`' state now.
+    /// The summary of `monitor`'s window, `alarms`' state now and the
+    /// window's `verdict`.
     ///
     /// See the type's docs for an example.
     pub fn from_monitor<const N: usize>(
@@ -396,6 +507,7 @@ impl Summary {
         t_ms: u32,
         monitor: &Monitor<N, f32>,
         alarms: &AlarmSet,
+        verdict: Verdict,
     ) -> Summary {
         let i = monitor.window_integrals();
         let m = i.metrics(monitor.settings());
@@ -411,10 +523,9 @@ impl Summary {
             heat_out_j: i.heat_out_j,
             entropy_in_j_per_k: i.entropy_in_j_per_k,
             entropy_out_j_per_k: i.entropy_out_j_per_k,
-            hot_mean_k: m.hot_mean_k,
+            hot_temperature_integral_k_s: i.hot_temperature_integral_k_s,
+            hot_pair_integral_k_s: i.hot_pair_integral_k_s,
             ambient_k: m.ambient_k,
-            performance: pick(m.efficiency, m.cop),
-            bound: pick(m.carnot_efficiency, m.carnot_cop),
             entropy_rate_w_per_k: m.entropy_rate_w_per_k,
             u_performance: pick(m.u_efficiency, m.u_cop),
             u_bound: pick(m.u_carnot_efficiency, m.u_carnot_cop),
@@ -425,12 +536,15 @@ impl Summary {
                 heat_out_measured: i.heat_out_measured,
                 trip_active: alarms.trip_active(),
                 any_fault: faults.any(),
+                hot2_measured: i.hot2_measured,
+                mode: monitor.settings().mode,
             },
             faults: FaultBits {
                 channels: (faults.invalid | faults.stuck) & CHANNEL_BITS,
                 stale: faults.stale,
             },
             alarms: alarms.active_mask() & ALARM_BITS,
+            verdict,
         }
     }
 
@@ -468,11 +582,52 @@ impl Summary {
                 (true, Some(t0)) => t0 * self.duration_s,
                 _ => 0.0,
             },
+            hot_temperature_integral_k_s: self.hot_temperature_integral_k_s,
+            hot2_measured: self.status.hot2_measured,
+            hot_pair_integral_k_s: self.hot_pair_integral_k_s,
             ..Integrals::default()
         }
     }
 
-    pub(super) fn integral_values(&self) -> [f32; 6] {
+    /// The figures recomputed from the integrals, with the summary's own
+    /// mode and T0: what the device's window gives. The uncertainties
+    /// in it are meaningless (see [`Summary::integrals`]); use the `u_*`
+    /// fields.
+    pub fn metrics(&self) -> Metrics<f32> {
+        let settings = FigureSettings {
+            mode: self.status.mode,
+            ambient_k: self.ambient_k.map(f64::from),
+            uncertainty: Uncertainty::default(),
+        };
+        self.integrals().metrics(&settings)
+    }
+
+    /// Heat-weighted mean hot-side temperature, kelvin.
+    pub fn hot_mean_k(&self) -> Option<f32> {
+        self.metrics().hot_mean_k
+    }
+
+    /// η (engine) or COP (heat pump, cooler), from the integrals.
+    pub fn performance(&self) -> Option<f32> {
+        let m = self.metrics();
+        if self.status.mode.is_reverse() {
+            m.cop
+        } else {
+            m.efficiency
+        }
+    }
+
+    /// η_C (engine) or the Carnot COP, from the integrals.
+    pub fn bound(&self) -> Option<f32> {
+        let m = self.metrics();
+        if self.status.mode.is_reverse() {
+            m.carnot_cop
+        } else {
+            m.carnot_efficiency
+        }
+    }
+
+    pub(super) fn integral_values(&self) -> [f32; 8] {
         [
             self.duration_s,
             self.heat_in_j,
@@ -480,20 +635,20 @@ impl Summary {
             self.heat_out_j,
             self.entropy_in_j_per_k,
             self.entropy_out_j_per_k,
+            self.hot_temperature_integral_k_s,
+            self.hot_pair_integral_k_s,
         ]
     }
 
-    pub(super) fn figures(&self) -> [Option<f32>; 9] {
+    pub(super) fn figures(&self) -> [Option<f32>; 7] {
         [
-            self.hot_mean_k,
             self.ambient_k,
-            self.performance,
-            self.bound,
             self.entropy_rate_w_per_k,
             self.u_performance,
             self.u_bound,
             self.u_margin,
             self.u_entropy_rate_w_per_k,
+            self.verdict.bias,
         ]
     }
 }
@@ -503,20 +658,27 @@ impl Summary {
 ///
 /// ```
 /// use heatbound::alarm::{Event, EventKind, RuleId, Severity};
-/// use heatbound::wire::{self, EventFrame, Frame};
+/// use heatbound::monitor::Channel;
+/// use heatbound::wire::{self, EventFrame, Frame, Verdict};
 /// let e = EventFrame { seq: 41, event: Event { t_ms: 341_000, rule: RuleId::BeyondCarnot,
-///                      kind: EventKind::Raised, severity: Severity::Trip } };
+///                      kind: EventKind::Raised, severity: Severity::Trip },
+///                      verdict: Verdict { consistent: Some(false), suspect: Some(Channel::Hot),
+///                                         bias: None } };
 /// let mut buf = [0; wire::MAX_FRAME_LEN];
 /// let n = wire::encode(&Frame::Event(e), &mut buf).unwrap();
 /// assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Event(e)));
 /// ```
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct EventFrame {
     /// `seq` of the latest summary sent before the event.
     pub seq: u16,
     /// The event.
     pub event: Event,
+    /// For a second-law or energy-balance alarm raised, the diagnosis of
+    /// the window at that moment (no bias: the next `Summary` has it);
+    /// else the default, no diagnosis.
+    pub verdict: Verdict,
 }
 
 /// What became of a command: applied, or why it was refused.

@@ -54,11 +54,11 @@ fn crc_is_iso_hdlc() {
 
 #[test]
 fn summary_budget_holds() {
-    assert_eq!(SUMMARY_MAX_WIRE_LEN, 79);
+    assert_eq!(SUMMARY_MAX_WIRE_LEN, 80);
     let worst = Summary {
         seq: u16::MAX,
         t_ms: u32::MAX,
-        hot_mean_k: Some(1.0),
+        ambient_k: Some(1.0),
         ..Summary::default()
     };
     let mut buf = [0u8; MAX_FRAME_LEN];
@@ -80,7 +80,7 @@ fn encode_rejects_what_cannot_be_decoded() {
         Err(WireError::NotFinite)
     );
     let inf = Summary {
-        bound: Some(f32::INFINITY),
+        u_bound: Some(f32::INFINITY),
         ..Summary::default()
     };
     assert_eq!(
@@ -155,20 +155,22 @@ fn unknown_version_and_kind_are_told_apart() {
         let n = cobs_encode(&raw, &mut enc).unwrap();
         decode(&enc[..n])
     };
-    // Version 1 (before the downlink) is another version now.
+    // Versions 1 (before the downlink) and 2 (before the diagnosis) are
+    // other versions now.
     assert_eq!(frame_with(1, 1), Err(FrameError::UnknownVersion(1)));
-    assert_eq!(frame_with(3, 1), Err(FrameError::UnknownVersion(3)));
+    assert_eq!(frame_with(2, 1), Err(FrameError::UnknownVersion(2)));
+    assert_eq!(frame_with(4, 1), Err(FrameError::UnknownVersion(4)));
     assert_eq!(
-        frame_with(2, 9),
+        frame_with(3, 9),
         Err(FrameError::Malformed(Malformed::UnknownKind(9)))
     );
     // A command (kind 16) is not an uplink frame.
     assert_eq!(
-        frame_with(2, 16),
+        frame_with(3, 16),
         Err(FrameError::Malformed(Malformed::UnknownKind(16)))
     );
     assert_eq!(
-        frame_with(2, 1),
+        frame_with(3, 1),
         Err(FrameError::Malformed(Malformed::Postcard))
     );
 }

@@ -252,6 +252,7 @@ impl Measured {
             heat_in_w,
             work_w,
             heat_out_w: Some(self.calorimetry_w(flow_pulses_per_l)),
+            t_hot2_k: None,
         }
     }
 

@@ -83,18 +83,26 @@ impl Pcg32 {
     }
 
     /// A standard normal deviate (mean 0, standard deviation 1), by the
-    /// Box–Muller transform. Bounded: |x| < 5.8 because the uniform has 24
-    /// bits.
+    /// polar method (Marsaglia and Bray, 1964): a point uniform in the unit
+    /// disc, `(v1, v2)` with `s = v1² + v2²`, gives two independent normal
+    /// deviates `v·√(−2 ln s / s)`. No sine or cosine: an image that has no
+    /// other use for them does not carry them. Bounded: `s ≥ 2⁻⁴⁶`, so
+    /// |x| < 8.
     pub fn gaussian(&mut self) -> f32 {
         if let Some(x) = self.spare.take() {
             return x;
         }
-        let u1 = self.uniform_open0();
-        let u2 = self.uniform_open0();
-        let r = libm::sqrtf(-2.0 * libm::logf(u1));
-        let theta = 2.0 * core::f32::consts::PI * u2;
-        self.spare = Some(r * libm::sinf(theta));
-        r * libm::cosf(theta)
+        loop {
+            let v1 = 2.0 * self.uniform_open0() - 1.0;
+            let v2 = 2.0 * self.uniform_open0() - 1.0;
+            let s = v1 * v1 + v2 * v2;
+            // About 79 % of points fall inside; the rest are drawn again.
+            if s > 0.0 && s < 1.0 {
+                let f = libm::sqrtf(-2.0 * libm::logf(s) / s);
+                self.spare = Some(v2 * f);
+                return v1 * f;
+            }
+        }
     }
 }
 

@@ -217,7 +217,7 @@ fn margin_words(model: &Model) -> String {
         return String::new();
     };
     let k = model.coverage_factor();
-    match (s.performance, s.bound) {
+    match (s.performance(), s.bound()) {
         (Some(p), Some(b)) if b > 0.0 => {
             let u = s
                 .u_margin
@@ -500,10 +500,10 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
         _ => "n/a".to_string(),
     };
     if let Some(s) = latest {
-        let margin = s.bound.zip(s.performance).map(|(b, p)| b - p);
+        let margin = s.bound().zip(s.performance()).map(|(b, p)| b - p);
         for (name, value) in [
-            (perf, pm(s.performance, s.u_performance, "")),
-            (bound, pm(s.bound, s.u_bound, "")),
+            (perf, pm(s.performance(), s.u_performance, "")),
+            (bound, pm(s.bound(), s.u_bound, "")),
             ("margin", pm(margin, s.u_margin, "")),
             (
                 "σ̇",
@@ -513,7 +513,7 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
             lines.push(Line::from(fit(&format!("{name:<7}{value}"), width)));
         }
         let t_c = (s.entropy_out_j_per_k > 0.0).then(|| s.heat_out_j / s.entropy_out_j_per_k);
-        for (name, t) in [("T_hot", s.hot_mean_k), ("T_cold", t_c)] {
+        for (name, t) in [("T_hot", s.hot_mean_k()), ("T_cold", t_c)] {
             let text = match t {
                 Some(t) if view.celsius_only => {
                     format!("{name:<7}{:.1} °C", f64::from(t) - ZERO_CELSIUS_K)

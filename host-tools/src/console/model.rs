@@ -307,10 +307,10 @@ impl Model {
         let point = Point {
             host_ms,
             x_s,
-            performance: pair(s.performance, s.u_performance),
-            bound: pair(s.bound, s.u_bound),
+            performance: pair(s.performance(), s.u_performance),
+            bound: pair(s.bound(), s.u_bound),
             entropy_rate: pair(s.entropy_rate_w_per_k, s.u_entropy_rate_w_per_k),
-            t_hot_k: s.hot_mean_k,
+            t_hot_k: s.hot_mean_k(),
             t_cold_k: (s.entropy_out_j_per_k > 0.0)
                 .then(|| s.heat_out_j / s.entropy_out_j_per_k)
                 .filter(|t| t.is_finite()),
@@ -331,7 +331,7 @@ impl Model {
     /// is not raised: pending (their on-delay runs).
     fn pending(&mut self, s: &Summary) {
         let k = self.coverage_factor();
-        let beyond = match (s.performance, s.bound, s.u_margin) {
+        let beyond = match (s.performance(), s.bound(), s.u_margin) {
             (Some(p), Some(b), Some(u)) => p - b > k * u,
             (Some(p), Some(b), None) => p > b,
             _ => false,

@@ -29,6 +29,7 @@ pub fn sample<R: Real>(
         heat_in_w: R::from_f64(heat_in_w),
         work_w: R::from_f64(work_w),
         heat_out_w: heat_out_w.map(R::from_f64),
+        t_hot2_k: None,
     }
 }
 

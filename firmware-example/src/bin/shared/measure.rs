@@ -39,10 +39,11 @@ use cortex_m::peripheral::syst::SystClkSource;
 use heatbound::alarm::AlarmSet;
 use heatbound::config::RigConfig;
 use heatbound::control::{Controller, ControllerSettings};
+use heatbound::diagnosis::Tracker;
 use heatbound::monitor::{Monitor, Pushed, Sample};
 use heatbound::wire::{
     self, Addressee, Authenticator, Command, CommandFrame, CommandKey, Frame, MAX_COMMAND_LEN,
-    MAX_FRAME_LEN, ReplyCode, RigId, Summary,
+    MAX_FRAME_LEN, ReplyCode, RigId, Summary, Verdict,
 };
 use heatbound_firmware_example::rig::{Rig, Scenario};
 
@@ -158,6 +159,10 @@ pub struct Report {
     pub sqrtf: Instructions,
     /// `Summary::from_monitor` + `wire::encode`, per summary.
     pub summary_encode: Instructions,
+    /// The diagnosis at summary rate: `Tracker::observe` (UA learning)
+    /// + `Tracker::judge`, per summary, on the thermocouple-drift stream
+    /// (inconsistent from about 200 s on, so the candidates are fitted).
+    pub summary_diagnose: Instructions,
     /// `Controller::receive` of a sealed `Acknowledge(None)`, accepted and
     /// applied (no alarm active, so its only frame is the Reply), on a
     /// controller with a [`COMMAND_WINDOW`]-sample window.
@@ -227,7 +232,8 @@ pub fn run<const N: usize>(syst: SYST) -> Report {
     let per_tick = hw::KNOWN_BLOCK_INSTRUCTIONS as f32 / (calibration - overhead);
 
     let config = RigConfig::default();
-    let (push_update, summary_encode, invalid) = rig_stream::<N>(&counter, &config);
+    let (push_update, summary_encode, summary_diagnose, invalid) =
+        rig_stream::<N>(&counter, &config);
     let push_update_synthetic = synthetic::<N>(&counter, &config);
     let (command_ack, command_bad_mac) = commands(&counter, &config);
     let mut sqrt = Ticks::new();
@@ -242,6 +248,7 @@ pub fn run<const N: usize>(syst: SYST) -> Report {
         calibration_ticks: calibration,
         push_update: scale(&push_update, overhead, per_tick),
         summary_encode: scale(&summary_encode, overhead, per_tick),
+        summary_diagnose: scale(&summary_diagnose, overhead, per_tick),
         push_update_synthetic: scale(&push_update_synthetic, overhead, per_tick),
         sqrtf: scale(&sqrt, overhead, per_tick),
         command_ack: scale(&command_ack, overhead, per_tick),
@@ -255,15 +262,17 @@ pub fn run<const N: usize>(syst: SYST) -> Report {
 /// on the simulated rig; samples counted invalid. Not inlined, so its
 /// monitor is off the stack before [`synthetic`] builds another.
 #[inline(never)]
-fn rig_stream<const N: usize>(counter: &Counter, config: &RigConfig) -> (Ticks, Ticks, u32) {
+fn rig_stream<const N: usize>(counter: &Counter, config: &RigConfig) -> (Ticks, Ticks, Ticks, u32) {
     let mut rig = Rig::bench_stirling(Scenario::ThermocoupleDrift, 1);
     let mut monitor = match Monitor::<N>::new(config) {
         Ok(m) => m,
         Err(_) => panic!("the default configuration suits the monitor"),
     };
     let mut alarms = AlarmSet::new(config);
+    let mut tracker = Tracker::<f32>::new(config);
     let mut push_update = Ticks::new();
     let mut summary_encode = Ticks::new();
+    let mut summary_diagnose = Ticks::new();
     let mut invalid = 0u32;
     let mut buf = [0u8; MAX_FRAME_LEN];
 
@@ -284,8 +293,15 @@ fn rig_stream<const N: usize>(counter: &Counter, config: &RigConfig) -> (Ticks, 
         }
         if i % SUMMARY_EVERY == 0 {
             let seq = (i / SUMMARY_EVERY) as u16;
+            let (ticks, verdict) = counter.time(|| {
+                tracker.observe(&monitor, t_ms);
+                Verdict::of(&tracker.judge(&monitor, t_ms))
+            });
+            if i > WARM_UP_SAMPLES {
+                summary_diagnose.add(ticks);
+            }
             let (ticks, _) = counter.time(|| {
-                let s = Summary::from_monitor(seq, t_ms, &monitor, &alarms);
+                let s = Summary::from_monitor(seq, t_ms, &monitor, &alarms, verdict);
                 wire::encode(&Frame::Summary(s), &mut buf)
             });
             if i > WARM_UP_SAMPLES {
@@ -294,7 +310,7 @@ fn rig_stream<const N: usize>(counter: &Counter, config: &RigConfig) -> (Ticks, 
         }
     }
 
-    (push_update, summary_encode, invalid)
+    (push_update, summary_encode, summary_diagnose, invalid)
 }
 
 /// The host benchmark's sample `i` (`core/examples/bench_push.rs`).
@@ -307,6 +323,7 @@ fn synthetic_sample(i: u32) -> Sample {
         heat_in_w: 1000.0 + 10.0 * wobble,
         work_w: 150.0 - 3.0 * wobble,
         heat_out_w: None,
+        t_hot2_k: None,
     }
 }
 
@@ -429,6 +446,7 @@ pub fn print(board: &str, report: &Report) {
     for (name, m) in [
         ("push_update", &report.push_update),
         ("summary_encode", &report.summary_encode),
+        ("summary_diagnose", &report.summary_diagnose),
         ("push_update_synthetic", &report.push_update_synthetic),
         ("libm_sqrtf", &report.sqrtf),
         ("command_ack", &report.command_ack),
