@@ -21,6 +21,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::monitor::Trends;
 pub use crate::monitor::{AlarmInputs, RuleInputs};
 use crate::num::Real;
 
@@ -50,6 +51,9 @@ pub struct Alarms {
     pub near_carnot_fraction: f64,
     /// Hot-side limit for `over_temperature`, kelvin.
     pub hot_max_k: f64,
+    /// `limit_ahead` is raised when a limit is projected to be crossed
+    /// sooner than this, seconds.
+    pub horizon_s: f64,
     /// Per-rule settings, indexed by [`RuleId::index`].
     pub rules: [Rule; RuleId::COUNT],
 }
@@ -88,6 +92,9 @@ pub enum RuleId {
     OverTemperature = 4,
     /// A channel is invalid, stuck or stale for longer than the rule's delay.
     SensorFault = 5,
+    /// The trend of the recent windows reaches the Carnot bound or
+    /// `hot_max_k` sooner than the configured horizon.
+    LimitAhead = 6,
 }
 
 impl RuleId {
@@ -107,7 +114,7 @@ impl RuleId {
     }
 
     /// Number of rules.
-    pub const COUNT: usize = 6;
+    pub const COUNT: usize = 7;
     /// Every rule, in index order.
     pub const ALL: [RuleId; RuleId::COUNT] = [
         RuleId::BeyondCarnot,
@@ -116,6 +123,7 @@ impl RuleId {
         RuleId::EnergyBalance,
         RuleId::OverTemperature,
         RuleId::SensorFault,
+        RuleId::LimitAhead,
     ];
 
     /// Position in per-rule arrays and the bit in an alarm bit mask.
@@ -141,6 +149,7 @@ impl RuleId {
             RuleId::EnergyBalance => "energy_balance",
             RuleId::OverTemperature => "over_temperature",
             RuleId::SensorFault => "sensor_fault",
+            RuleId::LimitAhead => "limit_ahead",
         }
     }
 
@@ -162,16 +171,18 @@ impl RuleId {
                 Severity::Trip
             }
             RuleId::EnergyBalance | RuleId::SensorFault => Severity::Warning,
-            RuleId::NearCarnot => Severity::Advisory,
+            RuleId::NearCarnot | RuleId::LimitAhead => Severity::Advisory,
         }
     }
 
     /// Deadband unless configured otherwise: 1 % of the scale of the rule's
-    /// quantity (a typical starting deadband, from memory).
+    /// quantity (a typical starting deadband, from memory); for
+    /// `limit_ahead`, 10 % of the default horizon, 60 s.
     pub fn default_deadband(self, hot_max_k: f64) -> f64 {
         match self {
             RuleId::OverTemperature => 0.01 * hot_max_k,
             RuleId::SensorFault => 0.0,
+            RuleId::LimitAhead => 60.0,
             _ => 0.01,
         }
     }
@@ -185,6 +196,7 @@ impl RuleId {
             RuleId::EnergyBalance => "fraction of Q_in",
             RuleId::OverTemperature => "kelvin",
             RuleId::SensorFault => "unused",
+            RuleId::LimitAhead => "seconds",
         }
     }
 
@@ -220,6 +232,11 @@ impl RuleId {
                 "alarms.sensor_fault.deadband",
                 "alarms.sensor_fault.on_delay_s",
                 "alarms.sensor_fault.off_delay_s",
+            ],
+            RuleId::LimitAhead => [
+                "alarms.limit_ahead.deadband",
+                "alarms.limit_ahead.on_delay_s",
+                "alarms.limit_ahead.off_delay_s",
             ],
         }
     }
@@ -526,9 +543,11 @@ pub struct Limits {
     pub near_carnot_fraction: f64,
     /// `over_temperature` limit, kelvin.
     pub hot_max_k: f64,
+    /// `limit_ahead` horizon, seconds.
+    pub horizon_s: f64,
     /// Deadband of each rule, in its unit.
     pub deadband: [f64; RuleId::COUNT],
-    /// The same four, in `f32`.
+    /// The same five, in `f32`.
     single: SingleLimits,
 }
 
@@ -538,6 +557,7 @@ struct SingleLimits {
     coverage_factor: f32,
     near_carnot_fraction: f32,
     hot_max_k: f32,
+    horizon_s: f32,
     deadband: [f32; RuleId::COUNT],
 }
 
@@ -550,11 +570,13 @@ impl Limits {
             coverage_factor: config.coverage_factor(),
             near_carnot_fraction: a.near_carnot_fraction,
             hot_max_k: a.hot_max_k,
+            horizon_s: a.horizon_s,
             deadband,
             single: SingleLimits {
                 coverage_factor: config.coverage_factor() as f32,
                 near_carnot_fraction: a.near_carnot_fraction as f32,
                 hot_max_k: a.hot_max_k as f32,
+                horizon_s: a.horizon_s as f32,
                 deadband: deadband.map(|d| d as f32),
             },
         }
@@ -646,7 +668,75 @@ fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COU
         None => Verdict::Clear,
     };
 
-    [beyond, negative_entropy, near, balance, over, sensor]
+    // limit_ahead: horizon − (the sooner projected crossing) > 0, for a
+    // limit still ahead: one within its own rule's deadband is here, and
+    // that rule speaks for it (a reading sitting at a limit is no trend).
+    let hot_max = R::<I>::pick(single.hot_max_k, limits.hot_max_k);
+    let projected = time_to_limit(&inputs.trends(), hot_max, k);
+    let hot_ahead = inputs
+        .t_hot_k()
+        .is_some_and(|t| t < hot_max - db(RuleId::OverTemperature));
+    let margin_ahead = m
+        .carnot_margin
+        .is_some_and(|x| x > db(RuleId::BeyondCarnot));
+    let ahead = TimeToLimit {
+        carnot_bound_s: projected.carnot_bound_s.filter(|_| margin_ahead),
+        hot_max_s: projected.hot_max_s.filter(|_| hot_ahead),
+    };
+    let ahead = level(
+        ahead
+            .sooner()
+            .map(|t| R::<I>::pick(single.horizon_s, limits.horizon_s) - t),
+        db(RuleId::LimitAhead),
+    );
+
+    [beyond, negative_entropy, near, balance, over, sensor, ahead]
+}
+
+/// When each limit is projected to be crossed, seconds from the latest
+/// window: the Carnot margin reaching 0 (the bound) and the hot side
+/// reaching `hot_max_k`, from the lines fitted to the recent windows, when
+/// they head there by more than `k` standard errors of their slopes.
+///
+/// ```
+/// use heatbound::alarm::time_to_limit;
+/// use heatbound::monitor::{Line, Trends};
+/// let trends = Trends {
+///     carnot_margin: Some(Line { value: 0.2_f64, slope_per_s: -0.001, u_slope_per_s: 0.0001 }),
+///     t_hot_k: Some(Line { value: 650.0, slope_per_s: 0.0, u_slope_per_s: 0.01 }),
+/// };
+/// let t = time_to_limit(&trends, 720.0, 2.0);
+/// assert!((t.carnot_bound_s.unwrap() - 200.0).abs() < 1e-9);
+/// assert_eq!(t.hot_max_s, None); // not heading there
+/// assert_eq!(t.sooner(), t.carnot_bound_s);
+/// ```
+pub fn time_to_limit<R: Real>(trends: &Trends<R>, hot_max_k: R, k: R) -> TimeToLimit<R> {
+    TimeToLimit {
+        carnot_bound_s: trends
+            .carnot_margin
+            .and_then(|l| l.time_to(R::ZERO, false, k)),
+        hot_max_s: trends.t_hot_k.and_then(|l| l.time_to(hot_max_k, true, k)),
+    }
+}
+
+/// The projected time to each limit, seconds; `None` when no crossing is
+/// projected.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct TimeToLimit<R> {
+    /// The Carnot margin reaching 0.
+    pub carnot_bound_s: Option<R>,
+    /// The hot side reaching `hot_max_k`.
+    pub hot_max_s: Option<R>,
+}
+
+impl<R: Real> TimeToLimit<R> {
+    /// The sooner of the two.
+    pub fn sooner(&self) -> Option<R> {
+        match (self.carnot_bound_s, self.hot_max_s) {
+            (Some(a), Some(b)) => Some(if a < b { a } else { b }),
+            (a, b) => a.or(b),
+        }
+    }
 }
 
 /// Seconds to whole milliseconds, saturating.
@@ -916,7 +1006,8 @@ mod tests {
 
     #[test]
     fn events_unpack_what_was_packed() {
-        let mut all = [(RuleId::BeyondCarnot, EventKind::Raised, Severity::Advisory); 54];
+        let mut all =
+            [(RuleId::BeyondCarnot, EventKind::Raised, Severity::Advisory); RuleId::COUNT * 9];
         let mut n = 0;
         for rule in RuleId::ALL {
             for kind in KINDS {

@@ -19,6 +19,7 @@
 //! | key | default | basis |
 //! |---|---|---|
 //! | `uncertainty.hot_k` | 1.1547 K | IEC 60584-1 type K class 1 at 500 °C: ±0.004·\|t\| = ±2.0 °C, u = 2.0/√3 |
+//! | `uncertainty.hot2_k` | 1.1547 K | as `hot_k`: a second element of the same type and class |
 //! | `uncertainty.cold_k` | 0.1443 K | IEC 60751 Pt100 class A at 50 °C: ±(0.15 + 0.002·\|t\|) = ±0.25 °C, u = 0.25/√3 |
 //! | `uncertainty.heat_in_rel` | 0.005774 | heater power meter ±1 % of reading (from memory), u = 0.01/√3 |
 //! | `uncertainty.work_rel` | 0.005774 | shaft or generator power ±1 % of reading (from memory), u = 0.01/√3 |
@@ -29,12 +30,16 @@
 //! | `steady.*_band_rel` | 0.05 | 5 % of reading, the typical flow deadband (from memory) |
 //! | `alarms.near_carnot_fraction` | 0.75 | above well-developed engines' 40–60 % of Carnot (from memory) |
 //! | rule deadbands | 1 % of the limit's scale | typical starting deadband for temperatures (from memory) |
+//! | `alarms.horizon_s` | 600 s | ten minutes: time for an operator at the bench to act before a limit |
+//! | `alarms.limit_ahead.deadband` | 60 s | a tenth of the default horizon |
+//! | `[losses]` | none: UA learned | from the first steady window with heat out measured (`docs/diagnosis.md` §5) |
 
 use serde::{Deserialize, Serialize};
 
 use crate::alarm::AlarmConfig;
 pub use crate::alarm::{Alarms, Rule};
 use crate::alarm::{RuleId, Severity};
+use crate::diagnosis::DiagnosisConfig;
 pub use crate::diagnosis::Losses;
 pub use crate::monitor::{Health, Mode, Steady, Uncertainty};
 use crate::monitor::{MonitorConfig, MonitorSettings};
@@ -139,6 +144,9 @@ pub struct AlarmsFile {
     pub near_carnot_fraction: Option<f64>,
     /// `over_temperature` is raised above this hot-side temperature, in kelvin.
     pub hot_max_k: Option<f64>,
+    /// `limit_ahead` is raised when the recent trend reaches the Carnot
+    /// bound or `hot_max_k` sooner than this, in seconds.
+    pub horizon_s: Option<f64>,
     /// On-delay of every rule that does not set its own, in seconds.
     pub on_delay_s: Option<f64>,
     /// Off-delay of every rule that does not set its own, in seconds.
@@ -155,6 +163,8 @@ pub struct AlarmsFile {
     pub over_temperature: Option<RuleFile>,
     /// `[alarms.sensor_fault]`.
     pub sensor_fault: Option<RuleFile>,
+    /// `[alarms.limit_ahead]`.
+    pub limit_ahead: Option<RuleFile>,
 }
 
 /// `[alarms.<rule>]`: overrides for one rule.
@@ -243,6 +253,7 @@ fn builtin_defaults() -> RigConfig {
         alarms: Alarms {
             near_carnot_fraction: 0.75,
             hot_max_k,
+            horizon_s: 600.0,
             rules,
         },
         losses: None,
@@ -382,6 +393,7 @@ impl RigFile {
             &a.energy_balance,
             &a.over_temperature,
             &a.sensor_fault,
+            &a.limit_ahead,
         ];
         let mut rules = d.alarms.rules;
         for id in RuleId::ALL {
@@ -431,6 +443,7 @@ impl RigFile {
                     .near_carnot_fraction
                     .unwrap_or(d.alarms.near_carnot_fraction),
                 hot_max_k,
+                horizon_s: a.horizon_s.unwrap_or(d.alarms.horizon_s),
                 rules,
             },
             losses: self.losses.as_ref().map(|l| Losses {
@@ -497,6 +510,7 @@ impl RigConfig {
             alarms: Some(AlarmsFile {
                 near_carnot_fraction: Some(self.alarms.near_carnot_fraction),
                 hot_max_k: Some(self.alarms.hot_max_k),
+                horizon_s: Some(self.alarms.horizon_s),
                 on_delay_s: Some(first.on_delay_s),
                 off_delay_s: Some(first.off_delay_s),
                 beyond_carnot: rule(RuleId::BeyondCarnot),
@@ -505,6 +519,7 @@ impl RigConfig {
                 energy_balance: rule(RuleId::EnergyBalance),
                 over_temperature: rule(RuleId::OverTemperature),
                 sensor_fault: rule(RuleId::SensorFault),
+                limit_ahead: rule(RuleId::LimitAhead),
             }),
             losses: self.losses.map(|l| LossesFile {
                 ua_w_per_k: Some(l.ua_w_per_k),
@@ -567,6 +582,7 @@ impl RigConfig {
                 Fraction,
             ),
             (a.hot_max_k, "alarms.hot_max_k", Temperature),
+            (a.horizon_s, "alarms.horizon_s", Positive),
         ];
         for (x, key, expect) in settings {
             need(x, key, expect)?;
@@ -608,6 +624,15 @@ impl MonitorConfig for RigConfig {
             steady: self.steady,
             health: self.health,
         }
+    }
+}
+
+impl DiagnosisConfig for RigConfig {
+    fn coverage_factor(&self) -> f64 {
+        self.coverage_factor
+    }
+    fn losses(&self) -> Option<Losses> {
+        self.losses
     }
 }
 

@@ -242,9 +242,15 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
     }
 
     /// Adds `entering[i]` to window sum `i` and run total `i`, and removes
-    /// `leaving[i]`, if any, from window sum `i`.
+    /// `leaving[i]`, if any, from window sum `i`. True when the window's
+    /// sums were rebuilt by this call (once per `refresh_after` entries).
     #[inline]
-    pub fn slide(&mut self, entering: &[R; K], leaving: Option<&[R; K]>, refresh_after: u32) {
+    pub fn slide(
+        &mut self,
+        entering: &[R; K],
+        leaving: Option<&[R; K]>,
+        refresh_after: u32,
+    ) -> bool {
         let (window, fresh) = (&mut self.window, &mut self.fresh);
         match leaving {
             Some(leaving) => lanes::<K>(|i| {
@@ -259,7 +265,9 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
         self.fresh_count += 1;
         if self.fresh_count >= refresh_after {
             self.refresh();
+            return true;
         }
+        false
     }
 
     /// `fresh` holds the window: it replaces the window's sums and joins the

@@ -43,9 +43,9 @@
 //!
 //! 5. **Diagnosis.** Each summary's verdict (consistent or not, the
 //!    suspect and its bias) is recomputed from its raw integrals with the
-//!    Hello's uncertainties and UA ([`crate::verdict_check`]) and compared;
-//!    a verdict on the edge of a band is borderline and not held against
-//!    the device.
+//!    Hello's uncertainties and UA, in f32 like the controller
+//!    ([`crate::verdict_check`]), and compared: an honest controller's
+//!    verdict is reproduced exactly.
 //!
 //! The delays, deadbands and latching come from the audit's configuration
 //! (defaults, or `--config`) with every setting the Hello carries taken
@@ -186,16 +186,15 @@ pub struct Report {
 
 /// The diagnosis section: each summary's verdict (consistent or not, and
 /// the suspect with its bias) recomputed from its raw integrals with the
-/// Hello's settings and UA ([`crate::verdict_check`]).
+/// Hello's settings and UA, in f32 as the controller makes it
+/// ([`crate::verdict_check`]): an honest controller's is reproduced
+/// exactly.
 #[derive(Clone, Debug, Default, Serialize)]
 pub struct DiagnosisCheck {
     /// Section verdict.
     pub pass: bool,
     /// Summaries whose verdict was compared.
     pub compared: u64,
-    /// Summaries on the edge of a band (the verdict turns with `k` moved
-    /// by 0.1 %): not compared.
-    pub borderline: u64,
     /// Summaries that could not be compared: no Hello yet.
     pub without_hello: u64,
     /// Summaries whose verdict differs.
@@ -1169,7 +1168,6 @@ impl<'c> Auditor<'c> {
         let ua = self.ua.ua(hello);
         match crate::verdict_check::compare(s, hello, ua.as_ref()) {
             crate::verdict_check::Agreement::Agrees => dc.compared += 1,
-            crate::verdict_check::Agreement::Borderline => dc.borderline += 1,
             crate::verdict_check::Agreement::Differs(message) => {
                 dc.compared += 1;
                 dc.mismatches += 1;
@@ -1257,6 +1255,8 @@ impl<'c> Auditor<'c> {
             figures,
             t_hot_k: None,
             faults: Faults::default(),
+            // The checked rules read neither the hot side nor the trends.
+            trends: Default::default(),
         };
         let verdicts = self.ctx.limits.verdicts(&inputs);
         let period = self.period_ms;
@@ -1677,12 +1677,11 @@ impl Report {
         let d = &self.diagnosis;
         let _ = writeln!(
             o,
-            "diagnosis           {}  {} verdicts recomputed, {} mismatches, {} borderline (not \
-             compared), {} before a Hello; the device found {} inconsistent windows, {} with a suspect",
+            "diagnosis           {}  {} verdicts recomputed, {} mismatches, {} before a Hello; the \
+             device found {} inconsistent windows, {} with a suspect",
             verdict(d.pass),
             d.compared,
             d.mismatches,
-            d.borderline,
             d.without_hello,
             d.inconsistent,
             d.with_suspect

@@ -344,7 +344,9 @@ pub fn write_chart(log: &Path, run: Option<RunId>, out: &Path) -> Result<Drawn, 
 /// log.insert_frame(run, t0, &Frame::Hello(hello)).expect("logged");
 /// for seq in 0..3u16 {
 ///     let t_ms = 1000 * (u32::from(seq) + 1);
-///     let s = Summary { seq, t_ms, performance: Some(0.3), ..Summary::default() };
+///     // η = W/Q_in = 0.3.
+///     let s = Summary { seq, t_ms, duration_s: 1.0, heat_in_j: 1000.0, work_j: 300.0,
+///                       entropy_in_j_per_k: 1000.0 / 600.0, ..Summary::default() };
 ///     log.insert_frame(run, t0 + i64::from(t_ms), &Frame::Summary(s)).expect("logged");
 /// }
 /// log.end_run(run, t0 + 4000).expect("closed");

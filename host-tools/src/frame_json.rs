@@ -95,6 +95,8 @@ pub fn frame_json(frame: &Frame, host_ms: i64) -> Value {
                 "faulty_channels": faults,
                 "stale": s.faults.stale,
                 "alarms": alarms,
+                "hot2_measured": s.status.hot2_measured,
+                "verdict": verdict(&s.verdict),
             })
         }
         Frame::Event(e) => json!({
@@ -105,6 +107,7 @@ pub fn frame_json(frame: &Frame, host_ms: i64) -> Value {
             "rule": e.event.rule.as_str(),
             "event": e.event.kind.as_str(),
             "severity": e.event.severity.as_str(),
+            "verdict": verdict(&e.verdict),
         }),
         Frame::Reply(r) => json!({
             "kind": "reply",
@@ -115,4 +118,15 @@ pub fn frame_json(frame: &Frame, host_ms: i64) -> Value {
             "meaning": r.code.meaning(),
         }),
     }
+}
+
+/// A controller's diagnosis: `consistent` (true, false, or null when none
+/// was made), the `suspect` channel or null, and its `bias` (K for a
+/// temperature, relative for a power) or null.
+fn verdict(v: &heatbound::wire::Verdict) -> Value {
+    json!({
+        "consistent": v.consistent,
+        "suspect": v.suspect.map(Channel::name),
+        "bias": v.bias.filter(|b| b.is_finite()).map(f64::from),
+    })
 }

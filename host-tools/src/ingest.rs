@@ -690,11 +690,17 @@ impl Ingest {
         } else {
             ("η", "η_C")
         };
+        let m = s.metrics();
+        let (performance, bound_value) = if self.mode.is_reverse() {
+            (m.cop, m.carnot_cop)
+        } else {
+            (m.efficiency, m.carnot_efficiency)
+        };
         let out = &mut self.line;
         let _ = write!(out, "t={:.1}s ", f64::from(s.t_ms) / 1000.0);
-        write_pm(out, perf, s.performance(), s.u_performance, k);
-        write_pm(out, bound, s.bound(), s.u_bound, k);
-        let margin = s.bound().zip(s.performance()).map(|(b, p)| b - p);
+        write_pm(out, perf, performance, s.u_performance, k);
+        write_pm(out, bound, bound_value, s.u_bound, k);
+        let margin = bound_value.zip(performance).map(|(b, p)| b - p);
         write_pm(out, "margin", margin, None, k);
         write_pm(
             out,
@@ -704,7 +710,7 @@ impl Ingest {
             k,
         );
         out.push_str("W/K ");
-        match s.hot_mean_k() {
+        match m.hot_mean_k {
             Some(t) => {
                 let _ = write!(out, "T_h={t:.1}K ");
             }
@@ -727,6 +733,23 @@ impl Ingest {
                 out.push(' ');
                 let (on, off) = highlight(self.style, sev);
                 let _ = write!(out, "{on}ALARM {rule} ({sev}){off}");
+            }
+        }
+        // The controller's diagnosis, when the readings are inconsistent.
+        if s.verdict.consistent == Some(false) {
+            match (s.verdict.suspect, s.verdict.bias) {
+                (Some(c), Some(b)) => {
+                    let _ = write!(
+                        out,
+                        " CHECK {} ({})",
+                        c.name(),
+                        crate::diagnosis_report::bias_text(c, f64::from(b))
+                    );
+                }
+                (Some(c), None) => {
+                    let _ = write!(out, " CHECK {}", c.name());
+                }
+                (None, _) => out.push_str(" inconsistent (no single sensor)"),
             }
         }
     }

@@ -20,7 +20,7 @@ use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
-use heatbound::alarm::{AlarmSet, Event, EventKind};
+use heatbound::alarm::{AlarmSet, Event, EventKind, TimeToLimit, time_to_limit};
 use heatbound::config::{Mode, RigConfig};
 use heatbound::diagnosis::Tracker;
 use heatbound::monitor::{Metrics, Monitor, MonitorError, Sample};
@@ -420,6 +420,9 @@ pub struct Replay {
     pub hot2_measured: Option<bool>,
     /// The diagnosis of the final window.
     pub diagnosis: DiagnosisJson,
+    /// When each limit is projected to be crossed, from the trend of the
+    /// last windows (see `heatbound::alarm::time_to_limit`).
+    pub time_to_limit: TimeToLimit<f64>,
 }
 
 /// Milliseconds since the first row, on the monitor's wrapping `u32` clock.
@@ -483,10 +486,35 @@ pub fn replay_file_with_progress(
     })
 }
 
+/// Stack of the thread a replay runs on: the monitor of a
+/// [`WINDOW_CAPACITY`]-sample window is some hundreds of KiB, built before it
+/// is boxed, which an unoptimised build keeps on the stack more than once.
+const REPLAY_STACK_BYTES: usize = 64 << 20;
+
 /// Replays CSV from `input` through a fresh monitor and alarm set;
 /// `progress`, if given, is moved to the bytes read every 16,384 rows and
-/// at the end, never per row.
-pub fn replay<R: Read>(
+/// at the end, never per row. Runs on a thread of its own, with the stack
+/// the monitor needs, whatever the caller's thread has.
+pub fn replay<R: Read + Send>(
+    input: R,
+    config: &RigConfig,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Replay, CsvError> {
+    std::thread::scope(|scope| {
+        let worker = std::thread::Builder::new()
+            .name("replay".into())
+            .stack_size(REPLAY_STACK_BYTES)
+            .spawn_scoped(scope, || replay_here(input, config, progress))
+            .map_err(CsvError::Read)?;
+        worker.join().unwrap_or_else(|_| {
+            Err(CsvError::Read(std::io::Error::other(
+                "the replay stopped unexpectedly (a bug in heatbound: please report it)",
+            )))
+        })
+    })
+}
+
+fn replay_here<R: Read>(
     input: R,
     config: &RigConfig,
     progress: Option<&indicatif::ProgressBar>,
@@ -638,6 +666,11 @@ pub fn replay<R: Read>(
         events,
         hot2_measured: monitor.hot2_measured(),
         diagnosis: DiagnosisJson::new(&tracker.diagnose(&monitor, last_t_ms), tracker.ua()),
+        time_to_limit: time_to_limit(
+            &monitor.trends(),
+            config.alarms.hot_max_k,
+            config.coverage_factor,
+        ),
     })
 }
 
@@ -757,6 +790,17 @@ struct ReportJson {
     unused_columns: Vec<UnusedColumn>,
     hot2_measured: Option<bool>,
     diagnosis: DiagnosisJson,
+    time_to_limit_s: TimeToLimitJson,
+}
+
+/// `time_to_limit_s`: seconds until each limit is reached at the trend of
+/// the last windows; `null` when no crossing is projected.
+#[derive(Serialize)]
+struct TimeToLimitJson {
+    /// The Carnot margin reaching 0.
+    carnot_bound: Option<f64>,
+    /// The hot side reaching `alarms.hot_max_k`.
+    hot_max: Option<f64>,
 }
 
 /// Where the invalid rows are: `; first at lines 7, 9` (with `…` when
@@ -836,6 +880,10 @@ impl Replay {
             steady_at_end: self.steady_at_end,
             hot2_measured: self.hot2_measured,
             diagnosis: self.diagnosis.clone(),
+            time_to_limit_s: TimeToLimitJson {
+                carnot_bound: self.time_to_limit.carnot_bound_s.filter(|t| t.is_finite()),
+                hot_max: self.time_to_limit.hot_max_s.filter(|t| t.is_finite()),
+            },
         }
     }
 }
@@ -1057,8 +1105,45 @@ impl Replay {
                     "  {:>12.3}  {rule:<28} {kind:<13} {}",
                     e.t_s, e.event.severity
                 );
+                if let Some(d) = &e.diagnosis {
+                    let _ = writeln!(out, "  {:>12}  diagnosis then: {}", "", d.reason);
+                }
             }
         }
+
+        let _ = writeln!(out, "\nDiagnosis of the final window");
+        let _ = writeln!(out, "  {}", self.diagnosis.reason);
+        for c in &self.diagnosis.candidates {
+            let _ = writeln!(
+                out,
+                "  - {:<9} bias {:>10} ({:.1} u){}",
+                c.channel,
+                if c.bias_unit == "K" {
+                    format!("{:+.2} K", c.bias)
+                } else {
+                    format!("{:+.2} %", 100.0 * c.bias)
+                },
+                c.bias_over_u,
+                if c.explains { ", explains" } else { "" }
+            );
+        }
+        if let Some(ua) = &self.diagnosis.ua {
+            let _ = writeln!(
+                out,
+                "  UA {:.4} ± {:.4} W/K ({})",
+                ua.w_per_k, ua.u_w_per_k, ua.source
+            );
+        }
+        let when = |t: Option<f64>| match t {
+            Some(t) => format!("{t:.0} s"),
+            None => "not projected".to_string(),
+        };
+        let _ = writeln!(
+            out,
+            "\nTime to a limit (trend of the last windows)\n  Carnot bound: {}; hot_max_k: {}",
+            when(self.time_to_limit.carnot_bound_s),
+            when(self.time_to_limit.hot_max_s)
+        );
         let _ = writeln!(out, "\n{}", crate::term::SAFETY_NOTE);
         out
     }

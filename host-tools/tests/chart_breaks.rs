@@ -354,7 +354,7 @@ fn an_outage_a_restart_and_a_new_run_break_every_line_and_are_marked() {
 fn alarm_times_in_the_legend_are_those_watch_printed() {
     let dir = TempDir::new().expect("temp dir");
     let (db, lines, _) = broken_log(&dir);
-    // watch: "raised beyond_carnot trip at t=500.4 s".
+    // watch: "raised beyond_carnot trip at t=500.3 s".
     let printed: Vec<(String, String, String)> = lines
         .iter()
         .filter_map(|l| {
@@ -398,7 +398,7 @@ fn alarm_times_in_the_legend_are_those_watch_printed() {
         .map(|t| t.2.clone())
         .unwrap_or_default();
     assert!(
-        carnot.contains("raised 500.3 s (session 2, 1130.3 s on the axis)"),
+        carnot.contains("raised 500.2 s (session 2, 1130.2 s on the axis)"),
         "{carnot}"
     );
 }
@@ -433,7 +433,7 @@ fn the_wall_clock_is_utc_from_the_host_times() {
     // Alarm times are still the device's, with the host's time beside them.
     assert!(
         words.iter().any(|w| w
-            == "beyond_carnot: raised 500.4 s (session 1, 15:15:00 UTC), raised 500.3 s \
+            == "beyond_carnot: raised 500.3 s (session 1, 15:15:00 UTC), raised 500.2 s \
                 (session 2, 15:25:30 UTC)"),
         "{words:?}"
     );

@@ -185,6 +185,9 @@ fn json_has_exactly_the_documented_keys_in_order() {
         "steady_at_end",
         "invalid_lines",
         "unused_columns",
+        "hot2_measured",
+        "diagnosis",
+        "time_to_limit_s",
     ]);
     let mut sorted_expected = expected.clone();
     sorted_expected.sort_unstable();

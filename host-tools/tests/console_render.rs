@@ -160,7 +160,7 @@ fn a_tripped_acknowledged_alarm_reads_at_every_size() {
             .find(|r| r.contains("beyond_carnot") && r.contains("✔ acknowledged"))
             .unwrap_or_else(|| panic!("{w}x{h}: no acknowledged beyond_carnot row:\n{text}"));
         assert!(alarm.contains("trip"), "{alarm}");
-        assert!(alarm.contains("500.4 s"), "{alarm}");
+        assert!(alarm.contains("500.3 s"), "{alarm}");
         assert!(alarm.contains("ack 505.0 s"), "{alarm}");
         assert!(text.contains("▶ "), "the selected row is marked:\n{text}");
         // The readouts and the link line.

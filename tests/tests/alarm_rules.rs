@@ -15,7 +15,7 @@ use heatbound::alarm::{
     AlarmInputs, AlarmSet, AlarmState, Event, EventKind, Events, Limits, RuleId, Severity, Verdict,
 };
 use heatbound::config::{AlarmsFile, RigConfig, RigFile, RuleFile};
-use heatbound::monitor::{AlarmFigures, Faults, Metrics, Monitor, Sample};
+use heatbound::monitor::{AlarmFigures, Faults, Line, Metrics, Monitor, Sample, Trends};
 
 const RAISE: Verdict = Verdict::Raise { since_ms: None };
 
@@ -45,6 +45,7 @@ fn rule_config(rule: RuleId, on: f64, off: f64, latching: bool) -> RigConfig {
         RuleId::NegativeEntropyProduction => a.negative_entropy_production = r,
         RuleId::EnergyBalance => a.energy_balance = r,
         RuleId::SensorFault => a.sensor_fault = r,
+        RuleId::LimitAhead => a.limit_ahead = r,
     }
     config(RigFile {
         alarms: Some(a),
@@ -113,6 +114,7 @@ fn deadband_sits_below_the_limit() {
             figures: AlarmFigures::<f32>::default(),
             t_hot_k: Some(t),
             faults: Faults::default(),
+            trends: Trends::default(),
         };
         limits.verdicts(&inputs)[RuleId::OverTemperature.index()]
     };
@@ -130,6 +132,7 @@ fn deadband_sits_below_the_limit() {
         figures: AlarmFigures::<f32>::default(),
         t_hot_k: None,
         faults: Faults::default(),
+        trends: Trends::default(),
     };
     assert_eq!(limits.verdicts(&none), [Verdict::Clear; RuleId::COUNT]);
 }
@@ -685,6 +688,7 @@ fn figures(f: impl FnOnce(&mut AlarmFigures<f64>)) -> AlarmInputs<f64> {
         figures,
         t_hot_k: None,
         faults: Faults::default(),
+        trends: Trends::default(),
     }
 }
 
@@ -780,4 +784,37 @@ fn energy_balance_raises_holds_in_its_deadband_and_clears() {
         })
     };
     raise_hold_clear(RuleId::EnergyBalance, at(-200.0), at(30.0), at(60.0));
+}
+
+/// `limit_ahead`: the hot side rising 0.5 K/s from 1000 K reaches the
+/// default `hot_max_k` (1100 K, config.rs) in 200 s, inside the default
+/// 600 s horizon; at 0.1 K/s it takes 1000 s, beyond it. The deadband is
+/// 60 s of horizon (config.rs). The arithmetic is the test's own.
+#[test]
+fn limit_ahead_raises_when_a_limit_is_projected_within_the_horizon() {
+    let limits = Limits::new(&RigConfig::default());
+    let heading = |slope: f32, u_slope: f32| {
+        let inputs = AlarmInputs {
+            figures: AlarmFigures::<f32>::default(),
+            t_hot_k: Some(1000.0),
+            faults: Faults::default(),
+            trends: Trends {
+                carnot_margin: None,
+                t_hot_k: Some(Line {
+                    value: 1000.0,
+                    slope_per_s: slope,
+                    u_slope_per_s: u_slope,
+                }),
+            },
+        };
+        limits.verdicts(&inputs)[RuleId::LimitAhead.index()]
+    };
+    assert_eq!(heading(0.5, 0.01), RAISE, "200 s ahead");
+    assert_eq!(heading(0.1, 0.001), Verdict::Clear, "1000 s ahead");
+    // 100 K at 100/630 K/s: 630 s, within the 60 s deadband past 600 s.
+    assert_eq!(heading(100.0 / 630.0, 0.001), Verdict::Hold);
+    // A slope within k = 2 standard errors of zero is no trend.
+    assert_eq!(heading(0.5, 0.3), Verdict::Clear);
+    // Falling: no crossing.
+    assert_eq!(heading(-0.5, 0.01), Verdict::Clear);
 }

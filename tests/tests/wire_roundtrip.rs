@@ -278,8 +278,9 @@ fn worst_case_sizes() {
         u_ua_w_per_k: 0.01,
     });
     let n = command_len(Command::Configure(big));
-    // Version 2's 348 bytes, plus u(hot2) (8) and the losses (1 + 16).
-    assert_eq!(n, 373);
+    // Version 2's 348 bytes, plus u(hot2) (8), the losses (1 + 16), the
+    // horizon (8) and the seventh rule, limit_ahead (27).
+    assert_eq!(n, 408);
     assert!(n <= wire::MAX_COMMAND_LEN);
 
     let worst_event = EventFrame {

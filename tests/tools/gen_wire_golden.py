@@ -130,7 +130,7 @@ def default_config():
     out += b"".join(f64(x) for x in [2.0 / sqrt3, 2.0 / sqrt3, 0.25 / sqrt3, 0.01 / sqrt3, 0.01 / sqrt3, 0.02 / sqrt3])
     out += b"".join(f64(x) for x in [60.0, 2.0, 2.0, 0.05, 0.05, 0.05])  # steady
     out += varint(0) + f64(10.0) + f64(1.0) + f64(3000.0)  # health
-    out += f64(0.75) + f64(1100.0)  # near_carnot_fraction, hot_max_k
+    out += f64(0.75) + f64(1100.0) + f64(600.0)  # near_carnot_fraction, hot_max_k, horizon_s
     # rules: enabled, severity (0 advisory, 1 warning, 2 trip), deadband, on, off, latching
     rules = [
         (2, 0.01, True),  # beyond_carnot
@@ -139,6 +139,7 @@ def default_config():
         (1, 0.01, False),  # energy_balance
         (2, 0.01 * 1100.0, True),  # over_temperature
         (1, 0.0, False),  # sensor_fault
+        (0, 60.0, False),  # limit_ahead
     ]
     for severity, deadband, latching in rules:
         out += b"\x01" + varint(severity) + f64(deadband) + f64(5.0) + f64(5.0)

@@ -16,7 +16,7 @@
 
 use crate::num::Real;
 
-use super::DiagnosisError;
+use super::error::DiagnosisError;
 
 /// Most relations (rows).
 pub const MAX_ROWS: usize = 4;

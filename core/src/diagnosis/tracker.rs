@@ -1,14 +1,22 @@
 //! The diagnosis along a run: UA configured or learned once, then any
 //! window diagnosed on demand.
 
-use crate::config::RigConfig;
-use crate::monitor::{FigureSettings, Integrals, Monitor};
+use crate::monitor::{FigureSettings, Integrals, Monitor, MonitorConfig};
 use crate::num::Real;
 
-use super::DiagnosisError;
+use super::error::DiagnosisError;
 use super::model::Window;
-use super::ua::Ua;
+use super::ua::{Losses, Ua};
 use super::verdict::{Diagnosis, Settings, diagnose, judge};
+
+/// Anything that holds what the diagnosis needs besides the monitor's
+/// settings, such as the validated rig configuration.
+pub trait DiagnosisConfig: MonitorConfig {
+    /// Coverage factor k.
+    fn coverage_factor(&self) -> f64;
+    /// `[losses]`, if configured.
+    fn losses(&self) -> Option<Losses>;
+}
 
 /// Follows a run beside its [`Monitor`]: learns UA from the first steady
 /// window with heat out measured it is shown (unless `[losses]`
@@ -43,11 +51,14 @@ pub struct Tracker<R> {
 
 impl<R: Real> Tracker<R> {
     /// A tracker for `config`.
-    pub fn new(config: &RigConfig) -> Tracker<R> {
+    pub fn new(config: &impl DiagnosisConfig) -> Tracker<R> {
         Tracker {
-            settings: Settings::new(&config.uncertainty, config.coverage_factor),
+            settings: Settings::new(
+                &config.monitor_settings().uncertainty,
+                config.coverage_factor(),
+            ),
             figures: FigureSettings::new(config),
-            ua: config.losses.as_ref().map(Ua::configured),
+            ua: config.losses().as_ref().map(Ua::configured),
         }
     }
 

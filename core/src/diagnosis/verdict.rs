@@ -6,7 +6,7 @@ use heapless::Vec;
 use crate::monitor::Channel;
 use crate::num::Real;
 
-use super::DiagnosisError;
+use super::error::DiagnosisError;
 use super::linear::{MAX_COLS, MAX_ROWS, System};
 use super::model::{COLS, COLUMNS, Relation, UA, Window, column};
 use super::ua::Ua;
@@ -599,7 +599,7 @@ mod tests {
     }
 
     fn ua() -> Ua<f64> {
-        Ua::configured(&super::super::Losses {
+        Ua::configured(&super::super::ua::Losses {
             ua_w_per_k: 0.5,
             u_ua_w_per_k: 0.01,
         })
@@ -683,7 +683,7 @@ mod tests {
             hot_pair_k: w.hot_pair_k.map(|x| x as f32),
         };
         let s32 = Settings::<f32>::new(&crate::monitor::Uncertainty::default(), 2.0);
-        let ua32 = Ua::<f32>::configured(&super::super::Losses {
+        let ua32 = Ua::<f32>::configured(&super::super::ua::Losses {
             ua_w_per_k: 0.5,
             u_ua_w_per_k: 0.01,
         });

@@ -116,6 +116,8 @@ impl<R: Real> Integrals<R> {
     ///     hot_sensitivity: 1000.0 / 360000.0, cold_sensitivity: 850.0 / 90000.0,
     ///     cold_heat_in_j_per_k: 1000.0 / 300.0, cold_work_j_per_k: 150.0 / 300.0,
     ///     cold_temperature_integral_k_s: 0.0, // only used with heat out measured
+    ///     hot_temperature_integral_k_s: 600.0, hot2_measured: false,
+    ///     hot_pair_integral_k_s: 0.0,
     /// };
     /// let m = i.metrics(&FigureSettings::new(&RigConfig::default()));
     /// assert!((m.entropy_generated_j_per_k.unwrap() - 1.16667_f64).abs() < 1e-5);

@@ -10,6 +10,7 @@ use super::rule_inputs::WindowAlarmInputs;
 use super::sample::{Channel, Invalid, MAX_POWER_W, Pushed, Sample};
 use super::settings::{FigureSettings, MonitorConfig};
 use super::steady::{STEADY_CHANNELS, SteadyTracker};
+use super::trend::{TrendTracker, Trends};
 
 /// Errors building a [`Monitor`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -76,6 +77,9 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     window_ms: u64,
     totals_ms: u64,
     steady_ms: u64,
+    /// Whether the rig has been steady since integration (re)started: the
+    /// trends start then.
+    steady_seen: bool,
     steady: SteadyTracker<R>,
     stuck: StuckCheck<R>,
     is_steady: bool,
@@ -87,6 +91,7 @@ pub struct Monitor<const N: usize, R: Real = f32> {
     last_ms: u32,
     span_ms: u64,
     last_t_hot_k: Option<R>,
+    trend: TrendTracker<R>,
 }
 
 impl<const N: usize, R: Real> Monitor<N, R> {
@@ -132,6 +137,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             window_ms: 0,
             totals_ms: 0,
             steady_ms: 0,
+            steady_seen: false,
             steady: SteadyTracker::new(config),
             stuck: StuckCheck {
                 last: [R::ZERO; STEADY_CHANNELS],
@@ -147,6 +153,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             last_ms: 0,
             span_ms: 0,
             last_t_hot_k: None,
+            trend: TrendTracker::new(),
         })
     }
 
@@ -311,8 +318,18 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         // trapezoid enters it, so the run totals are kept there too.
         if self.filled > 1 {
             let leaving = if full { self.ring.get(self.head) } else { None };
-            self.sums.slide(&entry, leaving, self.refresh_after);
+            let rebuilt = self.sums.slide(&entry, leaving, self.refresh_after);
             self.window_ms += u64::from(entry_ms);
+            // Once per window, from the first steady period on (a warm-up
+            // heads for its operating point, not for a limit): a point of
+            // the trends.
+            if rebuilt && full && self.steady_seen {
+                let margin = self
+                    .window_integrals()
+                    .alarm_figures_with::<false>(&self.prepared)
+                    .carnot_margin;
+                self.trend.push(s.t_ms, margin, Some(s.t_hot_k));
+            }
         }
         if let (Some(slot), Some(ms)) = (self.ring.get_mut(newest), self.ring_ms.get_mut(newest)) {
             *slot = entry;
@@ -326,12 +343,16 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         } else {
             if self.valid > 1 {
                 self.restarts += 1;
+                self.trend.clear();
+                // Not drifting from an operating point until steady again.
+                self.steady_seen = false;
             }
             self.steady.restart(s.t_ms);
             Pushed::Started
         };
         self.is_steady = self.steady.push(s.t_ms, &values);
         if self.is_steady {
+            self.steady_seen = true;
             self.steady_ms += u64::from(entry_ms);
         }
         outcome
@@ -388,7 +409,14 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             prepared: &self.prepared,
             t_hot_k: self.last_t_hot_k,
             faults: self.faults,
+            trends: self.trend.lines(),
         }
+    }
+
+    /// The lines fitted to the recent windows' Carnot margin and hot-side
+    /// temperature, where the rig is heading.
+    pub fn trends(&self) -> Trends<R> {
+        self.trend.lines()
     }
 
     /// The settings the figures are computed with.

@@ -63,6 +63,7 @@ mod rule_inputs;
 mod sample;
 mod settings;
 mod steady;
+mod trend;
 mod uncertainty;
 
 pub use figures::{AlarmFigures, Metrics};
@@ -74,3 +75,4 @@ pub use sample::{Channel, Invalid, MAX_POWER_W, Pushed, Sample};
 pub use settings::{
     FigureSettings, Health, Mode, MonitorConfig, MonitorSettings, Steady, Uncertainty,
 };
+pub use trend::{Line, TREND_POINTS, TrendTracker, Trends};

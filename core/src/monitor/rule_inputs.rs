@@ -6,6 +6,7 @@ use crate::num::Real;
 use super::figures::{AlarmFigures, Prepared};
 use super::health::Faults;
 use super::integrals::Integrals;
+use super::trend::Trends;
 
 /// The window's alarm inputs, from `Monitor::alarm_inputs`: its integrals,
 /// from which the figures follow when the rules ask.
@@ -15,6 +16,7 @@ pub struct WindowAlarmInputs<'a, R> {
     pub(super) prepared: &'a Prepared<R>,
     pub(super) t_hot_k: Option<R>,
     pub(super) faults: Faults,
+    pub(super) trends: Trends<R>,
 }
 
 impl<R: Real> WindowAlarmInputs<'_, R> {
@@ -24,6 +26,7 @@ impl<R: Real> WindowAlarmInputs<'_, R> {
             figures: self.figures_with_variances(),
             t_hot_k: self.t_hot_k,
             faults: self.faults,
+            trends: self.trends,
         }
     }
 }
@@ -43,6 +46,9 @@ impl<R: Real> RuleInputs for WindowAlarmInputs<'_, R> {
     fn faults(&self) -> Faults {
         self.faults
     }
+    fn trends(&self) -> Trends<R> {
+        self.trends
+    }
 }
 
 /// What the rules look at, every figure computed up front: the window
@@ -58,6 +64,8 @@ pub struct AlarmInputs<R: Real> {
     pub t_hot_k: Option<R>,
     /// Channel faults.
     pub faults: Faults,
+    /// Where the margin and the hot side are heading.
+    pub trends: Trends<R>,
 }
 
 /// Where the rules read their inputs.
@@ -80,6 +88,8 @@ pub trait RuleInputs {
     fn t_hot_k(&self) -> Option<Self::Real>;
     /// Channel faults.
     fn faults(&self) -> Faults;
+    /// The recent windows' trends.
+    fn trends(&self) -> Trends<Self::Real>;
 }
 
 impl<R: Real> RuleInputs for AlarmInputs<R> {
@@ -95,5 +105,8 @@ impl<R: Real> RuleInputs for AlarmInputs<R> {
     }
     fn faults(&self) -> Faults {
         self.faults
+    }
+    fn trends(&self) -> Trends<R> {
+        self.trends
     }
 }

@@ -16,6 +16,7 @@
 use heatbound::ZERO_CELSIUS_K;
 use heatbound::alarm::Severity;
 use heatbound::config::Mode;
+use heatbound::wire::Verdict;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Color, Modifier, Style};
@@ -25,6 +26,7 @@ use ratatui::widgets::{Axis, Block, Borders, Chart, Clear, Dataset, GraphType, P
 
 use super::keys::{View, span_words};
 use super::model::{AlarmRow, AlarmStatus, Model, Point};
+use crate::diagnosis_report::bias_text;
 
 /// What the console knows about the link holder itself.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
@@ -500,10 +502,16 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
         _ => "n/a".to_string(),
     };
     if let Some(s) = latest {
-        let margin = s.bound().zip(s.performance()).map(|(b, p)| b - p);
+        let m = s.metrics();
+        let (performance, bound_value) = if model.mode() == Mode::Engine {
+            (m.efficiency, m.carnot_efficiency)
+        } else {
+            (m.cop, m.carnot_cop)
+        };
+        let margin = bound_value.zip(performance).map(|(b, p)| b - p);
         for (name, value) in [
-            (perf, pm(s.performance(), s.u_performance, "")),
-            (bound, pm(s.bound(), s.u_bound, "")),
+            (perf, pm(performance, s.u_performance, "")),
+            (bound, pm(bound_value, s.u_bound, "")),
             ("margin", pm(margin, s.u_margin, "")),
             (
                 "σ̇",
@@ -513,7 +521,7 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
             lines.push(Line::from(fit(&format!("{name:<7}{value}"), width)));
         }
         let t_c = (s.entropy_out_j_per_k > 0.0).then(|| s.heat_out_j / s.entropy_out_j_per_k);
-        for (name, t) in [("T_hot", s.hot_mean_k()), ("T_cold", t_c)] {
+        for (name, t) in [("T_hot", m.hot_mean_k), ("T_cold", t_c)] {
             let text = match t {
                 Some(t) if view.celsius_only => {
                     format!("{name:<7}{:.1} °C", f64::from(t) - ZERO_CELSIUS_K)
@@ -541,6 +549,26 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
             Span::styled("steady ✗ not yet", DIM)
         };
         lines.push(Line::from(steady));
+        lines.push(verdict_line(&s.verdict, width));
+        let when = |t: Option<f32>| t.map_or("—".to_string(), |t| format!("{t:.0} s"));
+        let ttl = &model.time_to_limit;
+        let hot = if model.hot_max_k.is_some() {
+            format!("  T_max {}", when(ttl.hot_max_s))
+        } else {
+            String::new()
+        };
+        let ahead = ttl.sooner().is_some();
+        lines.push(Line::from(Span::styled(
+            fit(
+                &format!("limit in: Carnot {}{hot}", when(ttl.carnot_bound_s)),
+                width,
+            ),
+            if ahead {
+                Style::new().fg(Color::Yellow)
+            } else {
+                DIM
+            },
+        )));
     } else {
         lines.push(Line::from(Span::styled("no summary yet", DIM)));
     }
@@ -574,6 +602,33 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
     let inner_height = area.height as usize;
     lines.truncate(inner_height);
     frame.render_widget(Paragraph::new(lines).block(block), area);
+}
+
+/// The controller's diagnosis of the latest window, in one line.
+fn verdict_line(v: &Verdict, width: usize) -> Line<'static> {
+    let (text, style) = match (v.consistent, v.suspect) {
+        (None, _) => ("check  n/a (no window yet)".to_string(), DIM),
+        (Some(true), _) => (
+            "check  consistent ✔".to_string(),
+            Style::new().fg(Color::Green),
+        ),
+        (Some(false), Some(c)) => (
+            format!(
+                "check  ✖ suspect {}{}",
+                c.name(),
+                v.bias.map_or(String::new(), |b| format!(
+                    " ({})",
+                    bias_text(c, f64::from(b))
+                ))
+            ),
+            Style::new().fg(Color::Red).add_modifier(Modifier::BOLD),
+        ),
+        (Some(false), None) => (
+            "check  ✖ inconsistent, no single sensor".to_string(),
+            Style::new().fg(Color::Red),
+        ),
+    };
+    Line::from(Span::styled(fit(&text, width), style))
 }
 
 /// Joules in a readable unit.
@@ -632,6 +687,12 @@ fn alarm_line(row: &AlarmRow, selected: bool, width: usize) -> Line<'static> {
         (_, Some(c)) => format!("cleared {}", t(Some(c))),
         (Some(a), None) => format!("ack {}", t(Some(a))),
         _ => String::new(),
+    };
+    // The diagnosis when a second-law or energy-balance alarm was raised.
+    let after = match (row.verdict.consistent, row.verdict.suspect) {
+        (Some(false), Some(c)) => format!("{after}  suspect {}", c.name()),
+        (Some(false), None) => format!("{after}  no single sensor"),
+        _ => after,
     };
     let marker = if selected { "▶ " } else { "  " };
     let spans = vec![

@@ -10,9 +10,10 @@
 //! without a terminal or a clock.
 use std::collections::VecDeque;
 
-use heatbound::alarm::{EventKind, RuleId, Severity};
+use heatbound::alarm::{EventKind, RuleId, Severity, TimeToLimit, time_to_limit};
 use heatbound::config::Mode;
-use heatbound::wire::{Frame, Hello, Reply, Summary};
+use heatbound::monitor::TrendTracker;
+use heatbound::wire::{Frame, Hello, Reply, Summary, Verdict};
 
 use crate::ingest::{Observed, Totals};
 
@@ -90,6 +91,9 @@ pub struct AlarmRow {
     pub acked_t_ms: Option<u32>,
     /// Device time it cleared, ms.
     pub cleared_t_ms: Option<u32>,
+    /// For a second-law or energy-balance alarm: the controller's
+    /// diagnosis when it was raised.
+    pub verdict: Verdict,
 }
 
 /// Run totals, integrated from the summaries' window means.
@@ -159,6 +163,13 @@ pub struct Model {
     /// The latest events of the link (loss, gap, restart, outage) with
     /// their host times, newest last: shown when they happen.
     pub link_news: VecDeque<(i64, String)>,
+    /// When each limit is projected to be crossed, from the summaries'
+    /// trend (the hot side's only when `hot_max_k` is known).
+    pub time_to_limit: TimeToLimit<f32>,
+    /// `alarms.hot_max_k`, when the console was told it (the Hello does
+    /// not carry it).
+    pub hot_max_k: Option<f32>,
+    trend: TrendTracker<f32>,
     previous_summary: Option<Summary>,
 }
 
@@ -266,7 +277,7 @@ impl Model {
                 self.hello = Some(*h);
             }
             Frame::Summary(s) => self.summary(s, host_ms),
-            Frame::Event(e) => self.event(e.event),
+            Frame::Event(e) => self.event(e.event, e.verdict),
             Frame::Reply(r) => {
                 self.replies.push_back((*r, host_ms));
                 while self.replies.len() > 8 {
@@ -298,6 +309,24 @@ impl Model {
             t.entropies_j_per_k[0] += per_s(s.entropy_in_j_per_k);
             t.entropies_j_per_k[1] += per_s(s.entropy_out_j_per_k);
         }
+        if joined.is_none() {
+            self.trend.clear();
+        }
+        let m = s.metrics();
+        let (perf, bound) = if s.status.mode.is_reverse() {
+            (m.cop, m.carnot_cop)
+        } else {
+            (m.efficiency, m.carnot_efficiency)
+        };
+        self.trend.push(s.t_ms, m.carnot_margin, m.hot_mean_k);
+        let lines = self.trend.lines();
+        let k = self.coverage_factor();
+        self.time_to_limit = TimeToLimit {
+            carnot_bound_s: time_to_limit(&lines, 0.0, k).carnot_bound_s,
+            hot_max_s: self
+                .hot_max_k
+                .and_then(|h| time_to_limit(&lines, h, k).hot_max_s),
+        };
         let pair = |v: Option<f32>, u: Option<f32>| v.map(|v| (v, u.unwrap_or(0.0)));
         let x_s = match (self.points.back(), joined) {
             (Some(last), Some(p)) => last.x_s + f64::from(s.t_ms.wrapping_sub(p.t_ms)) / 1000.0,
@@ -307,10 +336,10 @@ impl Model {
         let point = Point {
             host_ms,
             x_s,
-            performance: pair(s.performance(), s.u_performance),
-            bound: pair(s.bound(), s.u_bound),
+            performance: pair(perf, s.u_performance),
+            bound: pair(bound, s.u_bound),
             entropy_rate: pair(s.entropy_rate_w_per_k, s.u_entropy_rate_w_per_k),
-            t_hot_k: s.hot_mean_k(),
+            t_hot_k: m.hot_mean_k,
             t_cold_k: (s.entropy_out_j_per_k > 0.0)
                 .then(|| s.heat_out_j / s.entropy_out_j_per_k)
                 .filter(|t| t.is_finite()),
@@ -322,16 +351,16 @@ impl Model {
         while self.points.len() > MAX_POINTS {
             self.points.pop_front();
         }
-        self.pending(s);
+        self.pending(s, perf, bound);
         self.previous_summary = Some(*s);
         self.latest = Some((*s, host_ms));
     }
 
     /// Second-law rules whose condition the summary shows but whose alarm
     /// is not raised: pending (their on-delay runs).
-    fn pending(&mut self, s: &Summary) {
+    fn pending(&mut self, s: &Summary, perf: Option<f32>, bound: Option<f32>) {
         let k = self.coverage_factor();
-        let beyond = match (s.performance(), s.bound(), s.u_margin) {
+        let beyond = match (perf, bound, s.u_margin) {
             (Some(p), Some(b), Some(u)) => p - b > k * u,
             (Some(p), Some(b), None) => p > b,
             _ => false,
@@ -357,6 +386,7 @@ impl Model {
                         raised_t_ms: Some(s.t_ms),
                         acked_t_ms: None,
                         cleared_t_ms: None,
+                        verdict: Verdict::default(),
                     },
                 ),
                 (Some(i), false) if self.alarms[i].status == AlarmStatus::Pending => {
@@ -374,7 +404,7 @@ impl Model {
             .position(|r| r.rule == rule && r.status != AlarmStatus::Cleared)
     }
 
-    fn event(&mut self, e: heatbound::alarm::Event) {
+    fn event(&mut self, e: heatbound::alarm::Event, verdict: Verdict) {
         let i = self.current(e.rule);
         match e.kind {
             EventKind::Raised => {
@@ -385,6 +415,7 @@ impl Model {
                     raised_t_ms: Some(e.t_ms),
                     acked_t_ms: None,
                     cleared_t_ms: None,
+                    verdict,
                 };
                 match i {
                     Some(i) => self.alarms[i] = row,

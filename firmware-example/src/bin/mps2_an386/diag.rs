@@ -43,17 +43,29 @@ impl Line {
         self.u64(u64::from(v))
     }
 
-    /// Appends `v` in decimal.
+    /// Appends `v` in decimal, by long division of its four 16-bit limbs
+    /// in 32-bit arithmetic: no 64-bit division routine in the image.
     #[inline(never)]
-    pub fn u64(&mut self, mut v: u64) -> &mut Self {
+    pub fn u64(&mut self, v: u64) -> &mut Self {
+        let mut limbs = [
+            (v >> 48) as u32,
+            (v >> 32) as u32 & 0xFFFF,
+            (v >> 16) as u32 & 0xFFFF,
+            v as u32 & 0xFFFF,
+        ];
         // u64::MAX has 20 digits.
         let mut digits = [0u8; 20];
         let mut start = digits.len();
         for slot in digits.iter_mut().rev() {
-            *slot = b'0' + (v % 10) as u8;
+            let mut rem = 0u32;
+            for limb in limbs.iter_mut() {
+                let cur = (rem << 16) | *limb;
+                *limb = cur / 10;
+                rem = cur % 10;
+            }
+            *slot = b'0' + rem as u8;
             start -= 1;
-            v /= 10;
-            if v == 0 {
+            if limbs.iter().all(|l| *l == 0) {
                 break;
             }
         }
