@@ -304,6 +304,13 @@ pub(crate) fn fin<R: Real>(x: R) -> Option<R> {
     if x.is_finite() { Some(x) } else { None }
 }
 
+/// `a > b`, which is false when either is NaN: `!above(a, b)` reads as
+/// "not (a > b)", NaN included.
+#[inline]
+pub(crate) fn above<R: PartialOrd>(a: R, b: R) -> bool {
+    a > b
+}
+
 /// `a / b` if `b > 0` and the quotient is finite.
 #[inline]
 pub(crate) fn ratio<R: Real>(a: R, b: R) -> Option<R> {

@@ -150,7 +150,7 @@ impl Report<'_> {
     fn near(&mut self, what: &str, got: f64, want: f64, rel: f64, abs: f64) {
         let d = (got - want).abs();
         let tol = rel * want.abs() + abs;
-        if !(d <= tol) {
+        if d.is_nan() || d > tol {
             self.fail(format!(
                 "{what}: got {got:e}, want {want:e}, |difference| {d:e} > {tol:e}"
             ));

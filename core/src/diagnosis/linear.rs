@@ -14,7 +14,7 @@
 //!   `T_j = (f_jᵀ V⁻¹ r)² / (f_jᵀ V⁻¹ f_j)`, estimate
 //!   `b_j = (f_jᵀ V⁻¹ r) / (f_jᵀ V⁻¹ f_j)`.
 
-use crate::num::Real;
+use crate::num::{Real, above};
 
 use super::error::DiagnosisError;
 
@@ -230,7 +230,7 @@ fn invert<R: Real>(m: &[[R; MAX_ROWS]; MAX_ROWS], n: usize) -> Option<[[R; MAX_R
     let mut d = [R::ZERO; MAX_ROWS];
     for i in 0..n {
         let v = m[i][i];
-        if !(v > R::ZERO) || !v.is_finite() {
+        if !above(v, R::ZERO) || !v.is_finite() {
             return None;
         }
         d[i] = v.sqrt();
@@ -251,7 +251,7 @@ fn invert<R: Real>(m: &[[R; MAX_ROWS]; MAX_ROWS], n: usize) -> Option<[[R; MAX_R
                 pivot = r;
             }
         }
-        if !(a[pivot][col].abs() > tiny) {
+        if !above(a[pivot][col].abs(), tiny) {
             return None;
         }
         a.swap(col, pivot);

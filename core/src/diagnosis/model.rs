@@ -3,7 +3,7 @@
 //! the residuals' sensitivities to each channel's error.
 
 use crate::monitor::{Channel, FigureSettings, Integrals, Mode};
-use crate::num::{Real, ratio};
+use crate::num::{Real, above, ratio};
 
 /// The columns of the sensitivity matrix: the six channels in
 /// [`COLUMNS`] order, then UA.
@@ -97,7 +97,7 @@ impl<R: Real> Window<R> {
     /// temperatures are then undefined).
     pub fn from_integrals(i: &Integrals<R>, settings: &FigureSettings) -> Option<Window<R>> {
         let d = i.duration_s;
-        if !(d > R::ZERO) {
+        if !above(d, R::ZERO) {
             return None;
         }
         let th = ratio(i.heat_in_j, i.entropy_in_j_per_k).filter(|t| *t > R::ZERO)?;
@@ -183,7 +183,7 @@ impl<R: Real> Window<R> {
             }
             Channel::HeatIn | Channel::Work | Channel::HeatOut => {
                 let scale = R::ONE + b;
-                if !(scale > R::ZERO) {
+                if !above(scale, R::ZERO) {
                     return None;
                 }
                 match channel {

@@ -3,7 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::num::Real;
+use crate::num::{Real, above};
 
 use super::model::{COLUMNS, Window};
 
@@ -77,7 +77,7 @@ impl<R: Real> Ua<R> {
             return None;
         }
         let x = window.excess_k_s();
-        if !(x > R::from_f64(MIN_EXCESS_K) * window.duration_s) {
+        if !above(x, R::from_f64(MIN_EXCESS_K) * window.duration_s) {
             return None;
         }
         let s = window.sign();

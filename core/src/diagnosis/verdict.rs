@@ -4,7 +4,7 @@
 use heapless::Vec;
 
 use crate::monitor::Channel;
-use crate::num::Real;
+use crate::num::{Real, above};
 
 use super::error::DiagnosisError;
 use super::linear::{MAX_COLS, MAX_ROWS, System};
@@ -319,7 +319,7 @@ fn diagnose_with<R: Real, const STATS: bool>(
         // A candidate moves an active relation (V is positive definite,
         // so that is GLR > 0).
         let moves = rows.iter().take(n).any(|&i| a[i][j] != R::ZERO);
-        if !(var[j] > R::ZERO) || !moves {
+        if !above(var[j], R::ZERO) || !moves {
             continue;
         }
         let stat = |x: Option<&[R; MAX_COLS]>| x.map_or(R::ZERO, |v| v[j]);
@@ -368,7 +368,7 @@ fn diagnose_with<R: Real, const STATS: bool>(
             .iter()
             .position(|o| {
                 let (a, b) = (key(&c), key(o));
-                a.0 < b.0 || (a.0 == b.0 && a.1 < b.1)
+                (!a.0 && b.0) || (a.0 == b.0 && a.1 < b.1)
             })
             .unwrap_or(out.candidates.len());
         // Capacity is one per channel: insertion cannot fail.
@@ -523,7 +523,7 @@ impl<R: Real> Fit<'_, R> {
             let (rp, rm) = (at(p + h)?, at(p - h)?);
             let d = [(rp[0] - rm[0]) / (h + h), (rp[1] - rm[1]) / (h + h)];
             let den = weighted(w, &d, &d);
-            if !(den > R::ZERO) {
+            if !above(den, R::ZERO) {
                 return None;
             }
             let mut step = -weighted(w, &d, &r) / den;

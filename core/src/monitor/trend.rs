@@ -9,7 +9,7 @@
 //! scatter about the line (n − 2 degrees of freedom). Nothing here runs per
 //! sample but the test whether a point is due.
 
-use crate::num::Real;
+use crate::num::{Real, above};
 
 /// Points the fit spans: with a 60-sample window at 10 Hz, the last
 /// 96 seconds.
@@ -52,10 +52,10 @@ impl<R: Real> Line<R> {
         } else {
             (self.value - limit, -self.slope_per_s)
         };
-        if !(speed > R::ZERO) || !(speed > k * self.u_slope_per_s) {
+        if !above(speed, R::ZERO) || !above(speed, k * self.u_slope_per_s) {
             return None;
         }
-        if !(gap > R::ZERO) {
+        if !above(gap, R::ZERO) {
             return Some(R::ZERO);
         }
         let t = gap / speed;
@@ -116,7 +116,7 @@ impl<R: Real> TrendTracker<R> {
 
     /// Adds the point of a window ending at `t_ms` and fits the lines.
     pub fn push(&mut self, t_ms: u32, margin: Option<R>, t_hot_k: Option<R>) {
-        let nan = R::ZERO / R::ZERO;
+        let nan = R::from_f64(f64::NAN);
         let i = (self.head + self.len) % TREND_POINTS;
         self.t_ms[i] = t_ms;
         self.margin[i] = margin.unwrap_or(nan);
@@ -173,7 +173,7 @@ impl<R: Real> TrendTracker<R> {
         let s_tt = stt - st * st / n;
         let s_ty = sty - st * sy / n;
         let s_yy = syy - sy * sy / n;
-        if !(s_tt > zero) {
+        if !above(s_tt, zero) {
             return None;
         }
         let slope = s_ty / s_tt;
