@@ -668,27 +668,48 @@ fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COU
         None => Verdict::Clear,
     };
 
-    // limit_ahead: horizon − (the sooner projected crossing) > 0, for a
-    // limit still ahead: one within its own rule's deadband is here, and
-    // that rule speaks for it (a reading sitting at a limit is no trend).
+    // limit_ahead: a limit still ahead (one within its own rule's deadband
+    // is here, and that rule speaks for it) that the trend reaches within
+    // the horizon. Decided without dividing: the crossing time gap/speed is
+    // within H exactly when gap < speed·H.
     let hot_max = R::<I>::pick(single.hot_max_k, limits.hot_max_k);
-    let projected = time_to_limit(&inputs.trends(), hot_max, k);
-    let hot_ahead = inputs
-        .t_hot_k()
-        .is_some_and(|t| t < hot_max - db(RuleId::OverTemperature));
-    let margin_ahead = m
+    let horizon = R::<I>::pick(single.horizon_s, limits.horizon_s);
+    let trends = inputs.trends();
+    let hot = trends
+        .t_hot_k
+        .filter(|_| {
+            inputs
+                .t_hot_k()
+                .is_some_and(|t| t < hot_max - db(RuleId::OverTemperature))
+        })
+        .map(|l| (hot_max - l.value, l.slope_per_s, l.u_slope_per_s));
+    let margin = trends
         .carnot_margin
-        .is_some_and(|x| x > db(RuleId::BeyondCarnot));
-    let ahead = TimeToLimit {
-        carnot_bound_s: projected.carnot_bound_s.filter(|_| margin_ahead),
-        hot_max_s: projected.hot_max_s.filter(|_| hot_ahead),
-    };
-    let ahead = level(
-        ahead
-            .sooner()
-            .map(|t| R::<I>::pick(single.horizon_s, limits.horizon_s) - t),
-        db(RuleId::LimitAhead),
-    );
+        .filter(|_| {
+            m.carnot_margin
+                .is_some_and(|x| x > db(RuleId::BeyondCarnot))
+        })
+        .map(|l| (l.value, -l.slope_per_s, l.u_slope_per_s));
+    let ahead = [hot, margin]
+        .into_iter()
+        .flatten()
+        .map(|(gap, speed, u)| {
+            let heading = speed > zero && speed > k * u && gap > zero;
+            if heading && gap < speed * horizon {
+                Verdict::Raise { since_ms: None }
+            } else if heading && gap <= speed * (horizon + db(RuleId::LimitAhead)) {
+                Verdict::Hold
+            } else {
+                Verdict::Clear
+            }
+        })
+        .fold(Verdict::Clear, |a, b| match (a, b) {
+            (Verdict::Raise { .. }, _) | (_, Verdict::Raise { .. }) => {
+                Verdict::Raise { since_ms: None }
+            }
+            (Verdict::Hold, _) | (_, Verdict::Hold) => Verdict::Hold,
+            _ => Verdict::Clear,
+        });
 
     [beyond, negative_entropy, near, balance, over, sensor, ahead]
 }

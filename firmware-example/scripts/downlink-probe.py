@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Checks the downlink of a controller on a TCP link by hand: the emulator
 served by `run-emulator.sh --serve`, or anything else that speaks wire
-protocol version 2 with the public demo key.
+protocol version 3 with the public demo key.
 
     firmware-example/scripts/run-emulator.sh --serve     # prints 127.0.0.1:PORT
     python3 firmware-example/scripts/downlink-probe.py 127.0.0.1:PORT
@@ -21,7 +21,7 @@ as tests/tools/gen_wire_golden.py builds its golden commands: struct, zlib
 (CRC-32/ISO-HDLC), hmac + hashlib (HMAC-SHA-256) and PyPI `cobs`
 (`pip install cobs==1.2.1`). Where each constant comes from is named beside
 it; "spec" is the module documentation of core/src/wire/command.rs and
-core/src/wire/mod.rs (docs/wire-format.md does not describe version 2 yet).
+core/src/wire/mod.rs and docs/wire-format.md.
 """
 import argparse
 import hashlib
@@ -35,7 +35,7 @@ import zlib
 from cobs import cobs  # PyPI cobs 1.2.1, as tests/tools/gen_wire_golden.py
 
 # core/src/wire/format.rs: PROTOCOL_VERSION and `mod kind`.
-VERSION = 2
+VERSION = 3
 KIND_HELLO, KIND_SUMMARY, KIND_EVENT, KIND_REPLY, KIND_COMMAND = 0, 1, 2, 3, 16
 # core/src/wire/command.rs: DOMAIN, the tag's domain-separation prefix.
 DOMAIN = b"heatbound command v2\x00"
@@ -150,15 +150,17 @@ def parse_hello(body):
     """The fields of core/src/wire/codec.rs RawHello, in order (postcard;
     gen_wire_golden.py hello()): rig_id [u8; 16], firmware_version (u8, u8,
     u8), sample_period_ms, window_samples, mode (varints), coverage_factor
-    f32, ambient_k Option<f32>, 5 uncertainties f32, config_digest, run,
-    session, last_counter (varints), commands u8 (bit 0 = keyed)."""
+    f32, ambient_k Option<f32>, 6 uncertainties f32, losses Option<(f32,
+    f32)>, config_digest, run, session, last_counter (varints), commands u8
+    (bit 0 = keyed)."""
     rig_id = body[:RIG_ID_LEN]
     i = RIG_ID_LEN + 3
     for _ in range(3):  # sample_period_ms, window_samples, mode
         _, i = take_varint(body, i)
     i += 4  # coverage_factor
     i += 1 + (4 if body[i] == 1 else 0)  # ambient_k
-    i += 5 * 4  # uncertainties
+    i += 6 * 4  # uncertainties (hot2 last)
+    i += 1 + (8 if body[i] == 1 else 0)  # losses
     _, i = take_varint(body, i)  # config_digest
     run, i = take_varint(body, i)
     session, i = take_varint(body, i)

@@ -160,6 +160,7 @@ fn same_seed_gives_bit_identical_samples_and_different_seeds_differ() {
                     s.heat_in_w.to_bits(),
                     s.work_w.to_bits(),
                     s.heat_out_w.map_or(0, f32::to_bits),
+                    s.t_hot2_k.map_or(0, f32::to_bits),
                 ]
             };
             assert_eq!(bits(&x), bits(&y), "{s} sample {i}");
@@ -210,6 +211,8 @@ fn no_nan_except_the_open_thermocouple() {
             assert_eq!(m.t_hot_k.is_nan(), open, "{s} step {i}");
             assert!(m.t_cold_k.is_finite() && m.heat_in_w.is_finite() && m.work_w.is_finite());
             assert!(m.heat_out_w.is_some_and(f32::is_finite), "{s} step {i}");
+            assert_eq!(m.t_hot2_k.is_some(), s.needs_hot2(), "{s} step {i}");
+            assert!(m.t_hot2_k.is_none_or(f32::is_finite), "{s} step {i}");
             rig.step(DT_S);
         }
     }
@@ -315,6 +318,102 @@ fn power_meter_scale_error_is_four_times_the_truth() {
 }
 
 #[test]
+fn the_second_hot_thermocouple_has_its_own_noise_at_the_first_ones_level() {
+    let dual = RigParams {
+        hot2: true,
+        ..RigParams::bench_stirling()
+    };
+    let rig = Rig::new(dual, Scenario::Steady, 11).unwrap();
+    let truth = rig.truth().t_head_k;
+    let n = 20_000u32;
+    let (mut s1, mut s2, mut s11, mut s22, mut s12) = (0.0f64, 0.0, 0.0, 0.0, 0.0);
+    for i in 0..n {
+        let s = rig.sample(i * 100);
+        let d1 = f64::from(s.t_hot_k - truth);
+        let d2 = f64::from(s.t_hot2_k.expect("a second element") - truth);
+        s1 += d1;
+        s2 += d2;
+        s11 += d1 * d1;
+        s22 += d2 * d2;
+        s12 += d1 * d2;
+    }
+    let n = f64::from(n);
+    let (m1, m2) = (s1 / n, s2 / n);
+    let (v1, v2) = (s11 / n - m1 * m1, s22 / n - m2 * m2);
+    let corr = (s12 / n - m1 * m2) / (v1 * v2).sqrt();
+    let want = f64::from(dual.noise.thermocouple_k);
+    assert!((v2.sqrt() / want - 1.0).abs() < 0.1, "σ₂ = {}", v2.sqrt());
+    assert!(m2.abs() < 0.02, "mean {m2}");
+    // Independent of the first element: |r| within about 3/√n.
+    assert!(corr.abs() < 0.03, "correlation {corr}");
+}
+
+#[test]
+fn hot2_drift_changes_the_second_reading_only() {
+    let mut drift = Rig::bench_stirling(Scenario::Hot2Drift, 4);
+    let dual = RigParams {
+        hot2: true,
+        ..RigParams::bench_stirling()
+    };
+    let mut steady = Rig::new(dual, Scenario::Steady, 4).unwrap();
+    assert!(drift.has_hot2());
+    for _ in 0..2_400 {
+        drift.step(DT_S);
+        steady.step(DT_S);
+    }
+    // 240 s: two minutes of drift at 20 K/min, 40 K low; nothing else moves.
+    assert_eq!(drift.truth(), steady.truth());
+    let (a, b) = (steady.sample(240_000), drift.sample(240_000));
+    assert_eq!(a.t_hot_k, b.t_hot_k);
+    assert_eq!(a.t_cold_k, b.t_cold_k);
+    let d = a.t_hot2_k.unwrap() - b.t_hot2_k.unwrap();
+    assert!((d - 40.0).abs() < 0.01, "{d}");
+    for _ in 0..6_000 {
+        drift.step(DT_S);
+        steady.step(DT_S);
+    }
+    // 840 s: at the bound.
+    let d = steady.sample(840_000).t_hot2_k.unwrap() - drift.sample(840_000).t_hot2_k.unwrap();
+    let limit = heatbound_firmware_example::rig::scenario::HOT2_DRIFT_LIMIT_K;
+    assert!((d - limit).abs() < 0.01, "{d}");
+    drift.repair();
+    let d = steady.sample(840_000).t_hot2_k.unwrap() - drift.sample(840_000).t_hot2_k.unwrap();
+    assert_eq!(d, 0.0);
+}
+
+#[test]
+fn cold_offset_reads_25_k_high_and_leaves_the_calorimetry_alone() {
+    let mut fault = Rig::bench_stirling(Scenario::ColdOffset, 4);
+    let mut steady = Rig::bench_stirling(Scenario::Steady, 4);
+    let before = fault.sample(0).t_cold_k - steady.sample(0).t_cold_k;
+    for _ in 0..1_300 {
+        fault.step(DT_S);
+        steady.step(DT_S);
+    }
+    assert_eq!(fault.truth(), steady.truth());
+    let (a, b) = (steady.sample(130_000), fault.sample(130_000));
+    assert_eq!(before, 0.0);
+    assert!((b.t_cold_k - a.t_cold_k - 25.0).abs() < 1e-3, "{a:?} {b:?}");
+    assert_eq!(a.heat_out_w, b.heat_out_w);
+    assert_eq!(a.t_hot_k, b.t_hot_k);
+}
+
+#[test]
+fn heater_scale_error_reads_15_percent_high() {
+    let mut rig = Rig::bench_stirling(Scenario::HeaterScaleError, 4);
+    let before = rig.sample(0).heat_in_w / rig.truth().heater_w;
+    for _ in 0..1_300 {
+        rig.step(DT_S);
+    }
+    let after = rig.sample(130_000).heat_in_w / rig.truth().heater_w;
+    // Noise: 0.3 % a reading.
+    assert!(
+        (before - 1.0).abs() < 0.02 && (after - 1.15).abs() < 0.02,
+        "{before} {after}"
+    );
+}
+
+#[test]
 fn invalid_parameters_are_rejected() {
     let mut p = RigParams::bench_stirling();
     p.peak_carnot_fraction = 1.0;
@@ -337,7 +436,7 @@ proptest! {
         load in 0.0f32..2.0,
         inlet in 280.0f32..305.0,
         steps in proptest::collection::vec(0.001f32..60.0, 1..40),
-        scenario in 0usize..6,
+        scenario in 0usize..Scenario::ALL.len(),
     ) {
         let mut p = RigParams::bench_stirling();
         p.heater_power_w = heater;

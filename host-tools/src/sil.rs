@@ -5,7 +5,7 @@
 //! Data flow (DESIGN.md §2, with the rig standing in for the sensors):
 //!
 //! ```text
-//! Rig::sample(t_ms) --> control::Controller<64> (Monitor<64, f32> + AlarmSet + link) --> frames
+//! Rig::sample(t_ms) --> control::Controller<64> (Monitor<64, f32> + AlarmSet + diagnosis + link) --> frames
 //! commands (bytes from the host) --> Controller::receive --> Reply, Event and Hello frames
 //! frames --> wire::encode --> bytes (file, stdout, TCP)
 //! ```
@@ -17,6 +17,12 @@
 //! nothing here reads a clock, so the same options and seed give the same
 //! bytes. Pacing to real time is the caller's business.
 //!
+//! Each Summary carries the controller's verdict on its window (consistent,
+//! or which single channel's bias explains the inconsistency). With a second
+//! hot thermocouple ([`SimOptions::hot2`], or the `hot2-drift` scenario) the
+//! hot pair is checked too; the first law needs UA, from `[losses]` in the
+//! configuration or learned from a steady window.
+//!
 //! The simulation is not a real controller: with no key given it answers
 //! commands sealed with the public [`CommandKey::DEMO`], and it has no
 //! random source, so its session number comes from the seed.
@@ -24,8 +30,8 @@ use heatbound::alarm::Event;
 use heatbound::config::RigConfig;
 use heatbound::control::{Controller, ControllerSettings};
 use heatbound::monitor::MonitorError;
-use heatbound::wire::{self, CommandKey, Frame, Hello, RigId};
-use heatbound_firmware_example::rig::{Rig, Scenario};
+use heatbound::wire::{self, CommandKey, Frame, Hello, RigId, Verdict};
+use heatbound_firmware_example::rig::{ParamsError, Rig, RigParams, Scenario};
 use std::io::Write as _;
 use std::net::TcpStream;
 use std::time::{Duration, Instant};
@@ -63,6 +69,9 @@ pub struct SimOptions {
     /// Rig time at which the scenario's fault is put right ([`Rig::repair`]),
     /// if it is.
     pub repair_at_s: Option<f64>,
+    /// Whether the rig's head carries a second thermocouple, sent as
+    /// `t_hot2_k` ([`RigParams::hot2`]); `hot2-drift` fits one regardless.
+    pub hot2: bool,
 }
 
 impl Default for SimOptions {
@@ -76,7 +85,31 @@ impl Default for SimOptions {
             // A fixed, valid identifier: cannot fail.
             rig_id: RigId::new(RIG_ID).unwrap_or_default(),
             repair_at_s: None,
+            hot2: false,
         }
+    }
+}
+
+impl SimOptions {
+    /// The rig these options simulate: the bench defaults
+    /// ([`RigParams::bench_stirling`]), with a second hot thermocouple if
+    /// asked for.
+    ///
+    /// ```
+    /// use heatbound_firmware_example::rig::Scenario;
+    /// use heatbound_host::sil::SimOptions;
+    /// let rig = SimOptions { hot2: true, ..SimOptions::default() }.rig()?;
+    /// assert!(rig.sample(0).t_hot2_k.is_some());
+    /// let rig = SimOptions { scenario: Scenario::Hot2Drift, ..SimOptions::default() }.rig()?;
+    /// assert!(rig.has_hot2());
+    /// # Ok::<(), heatbound_firmware_example::rig::ParamsError>(())
+    /// ```
+    pub fn rig(&self) -> Result<Rig, ParamsError> {
+        let params = RigParams {
+            hot2: self.hot2,
+            ..RigParams::bench_stirling()
+        };
+        Rig::new(params, self.scenario, self.seed)
     }
 }
 
@@ -96,6 +129,9 @@ pub enum SimError {
     /// The configuration does not suit the controller's monitor.
     #[error("the configuration does not fit the simulated controller: {0}")]
     Monitor(#[from] MonitorError),
+    /// The rig's parameters are out of range.
+    #[error("the simulated rig cannot be built: {0}")]
+    Rig(#[from] ParamsError),
     /// A frame could not be encoded (a core invariant broke).
     #[error("cannot encode a frame: {0}")]
     Encode(#[from] wire::WireError),
@@ -125,6 +161,10 @@ pub struct SimStats {
     pub trip_changes: Vec<(u32, bool)>,
     /// When the fault was put right, ms of rig time.
     pub repaired_at_ms: Option<u32>,
+    /// The verdict of the latest Summary, if one was sent.
+    pub last_verdict: Option<Verdict>,
+    /// Sample time of the first Summary whose verdict was "inconsistent", ms.
+    pub first_inconsistent_ms: Option<u32>,
 }
 
 impl SimStats {
@@ -136,7 +176,13 @@ impl SimStats {
     fn count(&mut self, frame: &Frame) {
         match frame {
             Frame::Hello(_) => self.hellos += 1,
-            Frame::Summary(_) => self.summaries += 1,
+            Frame::Summary(s) => {
+                self.summaries += 1;
+                self.last_verdict = Some(s.verdict);
+                if s.verdict.consistent == Some(false) && self.first_inconsistent_ms.is_none() {
+                    self.first_inconsistent_ms = Some(s.t_ms);
+                }
+            }
             Frame::Event(e) => {
                 self.events += 1;
                 self.alarm_events.push(e.event);
@@ -209,7 +255,7 @@ impl Simulation {
             hello_period_ms: summary_period_ms.saturating_mul(HELLO_EVERY),
         };
         Ok(Self {
-            rig: Rig::bench_stirling(options.scenario, options.seed),
+            rig: options.rig()?,
             controller: Controller::new(&settings, config, key, session(options.seed))?,
             dt_s: (1.0 / rate) as f32,
             sample_period_ms,
@@ -281,6 +327,11 @@ impl Simulation {
     /// The Hello this controller sends now.
     pub fn hello(&self) -> &Hello {
         self.controller.hello()
+    }
+
+    /// The simulated rig, with its truth.
+    pub fn rig(&self) -> &Rig {
+        &self.rig
     }
 
     /// The controller: monitor, alarms, trip output, link state.

@@ -11,13 +11,16 @@ use heatbound::alarm::{EventKind, RuleId};
 use heatbound::wire::{self, Decoder, DecoderStats, Frame};
 use tempfile::TempDir;
 
-const SCENARIOS: [&str; 6] = [
+const SCENARIOS: [&str; 9] = [
     "steady",
     "warm-up",
     "thermocouple-drift",
     "coolant-loss",
     "open-thermocouple",
     "power-meter-scale-error",
+    "hot2-drift",
+    "cold-offset",
+    "heater-scale-error",
 ];
 
 fn heatbound() -> Command {

@@ -495,7 +495,8 @@ impl<R: Real> Fit<'_, R> {
     /// corrected residuals by central differences, at most [`MAX_STEPS`]
     /// steps. A step that would leave the valid corrections is halved
     /// until it does not. `Some` only when it converges: a step below
-    /// `1e-9·u`, or below the arithmetic's resolution of `p`.
+    /// `1e-9·u`, or below the arithmetic's resolution of `p` (that last
+    /// step taken).
     fn least_squares(
         &self,
         rows: &Rows,
@@ -540,7 +541,9 @@ impl<R: Real> Fit<'_, R> {
                 return None;
             }
             if step.abs() <= tol {
-                return Some(p);
+                // Converged: the last, small step too (in f32 it is what
+                // lands a root within the arithmetic's reach).
+                return Some(if at(p + step).is_some() { p + step } else { p });
             }
             // Halve a step that would leave the valid corrections.
             let mut next = None;

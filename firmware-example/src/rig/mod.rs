@@ -1,6 +1,7 @@
 //! A simulated bench heat engine for software-in-the-loop runs: an
 //! electrically heated Stirling-type engine with a water-cooled cold side,
-//! its sensors, their noise and the faults the alarms exist to catch.
+//! its sensors, their noise and the faults the alarms and the consistency
+//! diagnosis exist to catch.
 //!
 //! ```text
 //! Scenario --> Rig::step(dt_s)     physics: two lumped masses, explicit Euler
@@ -23,12 +24,19 @@
 //! | `heat_in_w` | heater V·I | electrical heater power: what the rig pays for |
 //! | `work_w` | generator V·I | the engine's electrical output |
 //! | `heat_out_w` | flow meter + inlet/outlet Pt100s | coolant calorimetry ṁ·c_p·(T_out − T_in) |
+//! | `t_hot2_k` | a second type-K thermocouple in the heater head, when [`Rig::has_hot2`] | heater-head temperature again, with its own noise; only [`Rig::sample`] reports it |
 //!
 //! So the monitor's control volume is the heater head, the engine and the
 //! cooler: heat enters at the head temperature, leaves into the coolant at
 //! the cooler temperature, and the energy-balance residual
 //! `Q_in − W − Q_out` is the loss to the room (plus any change in stored
-//! energy during transients).
+//! energy during transients): `UA_h·(T_h − T_0)` from the head (0.15 W/K,
+//! 56.4 W at the set point) and `UA_r·(T_c − T_0)` from the cold side
+//! (0.3 W/K, 1.9 W), to a room at `T_0` = 293.15 K
+//! ([`RigParams::head_room_ua_w_per_k`], [`RigParams::cold_room_ua_w_per_k`],
+//! [`RigParams::ambient_k`]; [`Truth::room_loss_w`]). A balance that
+//! writes the loss as `UA·(T_hot − T_0)`, as `[losses]` in `rig.toml`
+//! does, sees UA = 0.155 W/K here ([`Truth::room_ua_w_per_k`]).
 //!
 //! ## The physics (truth)
 //! See [`model`] for the equations. In words:
@@ -55,7 +63,16 @@
 //! [`NoiseParams`]: thermocouple 0.3 K, RTDs 0.05 K, powers 0.3 %, flow
 //! 0.3 %. The noise of a reading depends only on the rig's seed and the
 //! reading's `t_ms`, so the same seed and the same calls give identical
-//! readings, and different seeds give different noise.
+//! readings, and different seeds give different noise. The second hot
+//! thermocouple draws from a generator of its own
+//! ([`Pcg32::for_second_hot`](noise::Pcg32::for_second_hot)), at the
+//! first one's 0.3 K, so fitting it shifts no other reading.
+//!
+//! The calorimeter's noise, √2 × 0.05 K on a 4.25 K rise, is 1.7 % of heat
+//! out a sample: over the 60 s of the default steady test (max − min
+//! within 5 %) the readings span about 11 %, so a monitor with the default
+//! `[steady]` never calls this rig steady, and never learns UA from it.
+//! `heat_out_band_rel = 0.15` fits the noise (UA is then learned at 60 s).
 //!
 //! ## Scenarios
 //! Every fault starts at 120 s ([`scenario::FAULT_START_S`]); at 10 Hz the
@@ -71,6 +88,23 @@
 //! | `coolant-loss` | from 120 s the flow falls to zero over 30 s | cold side heats up (≈ 0.25 K/s), η_C and the engine's efficiency fall, the head heats up | measured heat out collapses to 0; with `hot_max_k = 720 K` and `ambient_k = 293.15 K`, `over_temperature` at 578 s and nothing else (the readings stay possible). With the default T0 (the heat-weighted cold-side mean, undefined once heat out is gone) `negative_entropy_production` fires at 160.9 s instead |
 //! | `open-thermocouple` | from 120 s the hot thermocouple is open circuit | unchanged | `t_hot_k` NaN, counted invalid; `sensor_fault` at 125.0 s (the 5 s on-delay) |
 //! | `power-meter-scale-error` | from 120 s `work_w` reads 4× high | unchanged | `energy_balance` 126.6 s, `near_carnot` 127.8 s, `beyond_carnot` and `negative_entropy_production` 129.5 s |
+//! | `hot2-drift` | the head has a second thermocouple; from 120 s it reads low by 20 K/min, up to 150 K (from 570 s) | unchanged | none: no rule watches the two hot sensors |
+//! | `cold-offset` | from 120 s the cold-side Pt100 reads 25 K high (the coolant Pt100s are unaffected) | unchanged | none: the second law keeps a wide margin ([`scenario::COLD_OFFSET_K`]) |
+//! | `heater-scale-error` | from 120 s `heat_in_w` reads 15 % high (the heater current channel) | unchanged | none: the apparent loss to the room grows to 133 W, which the energy-balance rule accepts |
+//!
+//! What the consistency diagnosis makes of them (`heatbound::diagnosis`;
+//! `host-tools/tests/sim_diagnosis.rs`, seed 1, 10 Hz, `Monitor<64, f32>`,
+//! T0 the room; "UA known" is `[losses] ua_w_per_k = 0.155` or UA learned
+//! with the wider steady band above):
+//!
+//! | scenario | second law (and hot pair) only | with the first law (UA known) |
+//! |---|---|---|
+//! | `thermocouple-drift` | fails from 497 s; hot, heat_in and work each explain it: no suspect | fails from about 220 s; hot named from 494 s, bias −340 K (injected −338 K) |
+//! | … with a second hot thermocouple | the pair fails from 127 s; hot named from 497 s | hot named from about 220 s |
+//! | `power-meter-scale-error` | fails from 125 s; the second law cannot tell work from heat_in, hot or cold: no suspect | fails from 121 s; work (bias +2.99) and heat_in explain: no suspect |
+//! | `hot2-drift` | the pair fails from 133 s; hot and hot2 both explain: no suspect | hot2 named once the drift passes about 90–100 K (384–420 s), bias −150 K |
+//! | `cold-offset` | consistent (σ̇ 0.64 → 0.55 W/K) | consistent |
+//! | `heater-scale-error` | consistent (σ̇ 0.64 → 0.78 W/K) | the first law is 75 W out from 122 s; heat_in (bias +0.150), work and heat_out explain: no suspect |
 //!
 //! The model ignores boiling: after a coolant loss the cold side passes
 //! 100 °C at about 478 s, and from there on the numbers show
@@ -177,9 +211,31 @@ pub struct Truth {
 }
 
 impl Truth {
-    /// Total heat lost to the room, W.
+    /// Total heat lost to the room, from the head and the cold side, W.
+    /// In the truth the heater's power is all accounted for:
+    /// `heater_w = work_w + coolant_heat_w + room_loss_w() + dU/dt`.
     pub fn room_loss_w(&self) -> f32 {
         self.head_room_loss_w + self.cold_room_loss_w
+    }
+
+    /// The loss coefficient to the room referred to the hot side,
+    /// `room_loss_w / (T_h − T_0)`, W/K: the UA of a heat balance that
+    /// writes the whole loss as `UA·(T_hot − T_0)`, as the consistency
+    /// diagnosis does (`[losses] ua_w_per_k`). `None` unless the head is
+    /// above the room. The head's own [`RigParams::head_room_ua_w_per_k`]
+    /// plus the cold side's loss over the head's excess: 0.155 W/K at the
+    /// bench set point, so exact there and in any steady state.
+    ///
+    /// ```
+    /// use heatbound_firmware_example::rig::{Rig, Scenario};
+    /// let t = Rig::bench_stirling(Scenario::Steady, 1).truth();
+    /// let ua = t.room_ua_w_per_k().unwrap();
+    /// assert!((ua - 0.155).abs() < 0.001);
+    /// assert!((ua * (t.t_head_k - t.ambient_k) - t.room_loss_w()).abs() < 1e-3);
+    /// ```
+    pub fn room_ua_w_per_k(&self) -> Option<f32> {
+        let excess = self.t_head_k - self.ambient_k;
+        (excess > 0.0).then(|| self.room_loss_w() / excess)
     }
 
     /// The engine's own efficiency W/Q_eng, if it draws heat.
@@ -403,6 +459,19 @@ impl Rig {
         self.seed
     }
 
+    /// Whether the head carries a second thermocouple, so that
+    /// [`Rig::sample`] fills `t_hot2_k`: [`RigParams::hot2`], or a scenario
+    /// that needs one ([`Scenario::needs_hot2`]).
+    ///
+    /// ```
+    /// use heatbound_firmware_example::rig::{Rig, Scenario};
+    /// assert!(!Rig::bench_stirling(Scenario::Steady, 1).has_hot2());
+    /// assert!(Rig::bench_stirling(Scenario::Hot2Drift, 1).has_hot2());
+    /// ```
+    pub fn has_hot2(&self) -> bool {
+        self.params.hot2 || self.scenario.needs_hot2()
+    }
+
     /// Rig time, seconds since the start.
     pub fn time_s(&self) -> f64 {
         self.t_us as f64 / 1e6
@@ -464,8 +533,13 @@ impl Rig {
         let n = libm::ceilf(dt_s / self.params.max_substep_s).clamp(1.0, 10_000.0) as u32;
         let h = dt_s / n as f32;
         let dt_us = libm::round(f64::from(dt_s) * 1e6) as u64;
-        for k in 0..u64::from(n) {
-            let f = self.flows_at(self.t_us + dt_us * k / u64::from(n));
+        for k in 0..n {
+            // dt_us·k/n exactly (in f64: the product is below 2^53 and the
+            // quotient's fraction, a multiple of 1/n, is never lost), with
+            // no 64-bit integer division, whose routine the QEMU image
+            // would carry for this alone.
+            let offset_us = (dt_us as f64 * f64::from(k) / f64::from(n)) as u64;
+            let f = self.flows_at(self.t_us + offset_us);
             add_compensated(&mut self.head_k, h * f.head_rate(&self.params));
             add_compensated(&mut self.cold_k, h * f.cold_rate(&self.params));
         }
@@ -570,21 +644,32 @@ impl Rig {
         let heater_a = heater_v / p.heater_resistance_ohm;
         let gen_v = libm::sqrtf(truth.work_w * p.load_resistance_ohm);
         let gen_a = gen_v / p.load_resistance_ohm;
-        let scale = if fault && self.scenario == Scenario::PowerMeterScaleError {
+        // The current channels' scale errors and the cold sensor's offset.
+        let work_scale = if fault && self.scenario == Scenario::PowerMeterScaleError {
             scenario::WORK_SCALE_ERROR
         } else {
             1.0
+        };
+        let heater_scale = if fault && self.scenario == Scenario::HeaterScaleError {
+            scenario::HEATER_SCALE_ERROR
+        } else {
+            1.0
+        };
+        let cold_offset_k = if fault && self.scenario == Scenario::ColdOffset {
+            scenario::COLD_OFFSET_K
+        } else {
+            0.0
         };
 
         let volume_l_s = truth.coolant_flow_kg_s / model::water_density(p.coolant_inlet_k) * 1e3;
         Measured {
             hot_junction_c,
             cold_junction_c: p.board_k - ZERO_C_K + n.cold_junction_k * g_cj,
-            cold_side_c: truth.t_cold_k - ZERO_C_K + n.rtd_k * g_cold,
+            cold_side_c: truth.t_cold_k + cold_offset_k - ZERO_C_K + n.rtd_k * g_cold,
             heater_v: heater_v * (1.0 + rel * g_hv),
-            heater_a: heater_a * (1.0 + rel * g_hi),
+            heater_a: heater_a * heater_scale * (1.0 + rel * g_hi),
             generator_v: gen_v * (1.0 + rel * g_gv),
-            generator_a: gen_a * scale * (1.0 + rel * g_gi),
+            generator_a: gen_a * work_scale * (1.0 + rel * g_gi),
             coolant_flow_hz: (volume_l_s * p.flow_pulses_per_l * (1.0 + n.flow_rel * g_flow))
                 .max(0.0),
             coolant_inlet_c: p.coolant_inlet_k - ZERO_C_K + n.rtd_k * g_in,
@@ -593,19 +678,61 @@ impl Rig {
     }
 
     /// The monitor [`Sample`] stamped `t_ms`: [`Rig::measured`] converted by
-    /// [`Measured::to_sample`].
+    /// [`Measured::to_sample`], and, when the head has a second
+    /// thermocouple ([`Rig::has_hot2`]), its reading [`Rig::hot2_k`] as
+    /// `t_hot2_k`.
     ///
     /// ```
-    /// use heatbound_firmware_example::rig::{Rig, Scenario};
+    /// use heatbound_firmware_example::rig::{Rig, RigParams, Scenario};
     /// let rig = Rig::bench_stirling(Scenario::Steady, 1);
     /// let s = rig.sample(0);
     /// assert!((s.heat_in_w - 500.0).abs() < 10.0);
     /// assert!(s.heat_out_w.unwrap() > 300.0);
     /// assert!(s.t_hot_k > s.t_cold_k);
+    /// assert_eq!(s.t_hot2_k, None);
+    ///
+    /// let dual = RigParams { hot2: true, ..RigParams::bench_stirling() };
+    /// let rig = Rig::new(dual, Scenario::Steady, 1)?;
+    /// let s2 = rig.sample(0);
+    /// assert!((s2.t_hot2_k.unwrap() - rig.truth().t_head_k).abs() < 2.0);
+    /// assert_eq!(s2.t_hot_k, s.t_hot_k); // the first element's noise is unchanged
+    /// # Ok::<(), heatbound_firmware_example::rig::ParamsError>(())
     /// ```
     pub fn sample(&self, t_ms: u32) -> Sample {
-        self.measured(t_ms)
-            .to_sample(t_ms, self.params.flow_pulses_per_l)
+        let mut s = self
+            .measured(t_ms)
+            .to_sample(t_ms, self.params.flow_pulses_per_l);
+        if self.has_hot2() {
+            s.t_hot2_k = Some(self.hot2_k(t_ms));
+        }
+        s
+    }
+
+    /// The second hot thermocouple's reading stamped `t_ms`, K: the head
+    /// temperature with its own noise ([`Pcg32::for_second_hot`], at the
+    /// first thermocouple's level) and, in `hot2-drift`, its drift. Only
+    /// [`Rig::sample`] reports it (the bus-level simulation has no
+    /// converter for it), and only when [`Rig::has_hot2`].
+    ///
+    /// ```
+    /// use heatbound_firmware_example::rig::{Rig, Scenario};
+    /// let mut rig = Rig::bench_stirling(Scenario::Hot2Drift, 1);
+    /// rig.step(300.0); // three minutes of drift at 20 K/min
+    /// let low = rig.truth().t_head_k - rig.hot2_k(300_000);
+    /// assert!((low - 60.0).abs() < 1.5, "{low}");
+    /// ```
+    pub fn hot2_k(&self, t_ms: u32) -> f32 {
+        let truth_k = self.truth().t_head_k;
+        let noise =
+            self.params.noise.thermocouple_k * Pcg32::for_second_hot(self.seed, t_ms).gaussian();
+        let drift = if self.scenario == Scenario::Hot2Drift && self.fault_active() {
+            let since_s = self.time_s() - f64::from(scenario::FAULT_START_S);
+            (scenario::HOT2_DRIFT_RATE_K_PER_S * since_s as f32)
+                .clamp(0.0, scenario::HOT2_DRIFT_LIMIT_K)
+        } else {
+            0.0
+        };
+        truth_k - drift + noise
     }
 }
 
@@ -616,6 +743,76 @@ mod tests {
     #[test]
     fn bench_defaults_are_valid() {
         assert_eq!(RigParams::bench_stirling().validate(), Ok(()));
+    }
+
+    /// The heater's power is all accounted for, in steady state and while
+    /// the rig warms up: `heater = work + coolant heat + room loss + dU/dt`,
+    /// and the room loss is the head's `UA_h·(T_h − T_0)` plus the cold
+    /// side's `UA_r·(T_c − T_0)`, which the hot-side UA of
+    /// [`Truth::room_ua_w_per_k`] reproduces.
+    #[test]
+    fn the_energy_balance_closes_with_the_room_loss() {
+        let p = RigParams::bench_stirling();
+        let t = Rig::bench_stirling(Scenario::Steady, 1).truth();
+        let out = t.work_w + t.coolant_heat_w + t.room_loss_w();
+        assert!((t.heater_w - out).abs() < 0.05, "{t:?}");
+        let head = p.head_room_ua_w_per_k * (t.t_head_k - p.ambient_k);
+        let cold = p.cold_room_ua_w_per_k * (t.t_cold_k - p.ambient_k);
+        assert!((t.head_room_loss_w - head).abs() < 1e-4);
+        assert!((t.cold_room_loss_w - cold).abs() < 1e-4);
+        // The documented figures: 56.4 W + 1.9 W, UA 0.155 W/K.
+        assert!((t.head_room_loss_w - 56.4).abs() < 0.1, "{t:?}");
+        assert!((t.cold_room_loss_w - 1.9).abs() < 0.1, "{t:?}");
+        let ua = t.room_ua_w_per_k().unwrap();
+        assert!((ua - 0.155).abs() < 0.0005, "{ua}");
+        assert!((ua * (t.t_head_k - t.ambient_k) - t.room_loss_w()).abs() < 1e-3);
+
+        // Warming up, over five minutes: the stored energy takes up the
+        // difference (summed in f64; the temperatures are f32, so a single
+        // step's dU/dt is only good to about half a watt).
+        let mut rig = Rig::bench_stirling(Scenario::WarmUp, 1);
+        let u0 = f64::from(rig.truth().stored_energy_j);
+        let (mut heat_in, mut out) = (0.0f64, 0.0f64);
+        for _ in 0..3000 {
+            let a = rig.truth();
+            heat_in += f64::from(a.heater_w) * 0.1;
+            out += f64::from(a.work_w + a.coolant_heat_w + a.room_loss_w()) * 0.1;
+            rig.step(0.1);
+        }
+        let stored = f64::from(rig.truth().stored_energy_j) - u0;
+        assert!(stored > 0.5 * heat_in, "{stored} J stored of {heat_in} J");
+        let residual = heat_in - out - stored;
+        assert!(
+            residual.abs() < 1e-4 * heat_in + 1.0,
+            "{residual} J of {heat_in} J"
+        );
+        assert!(rig.truth().room_ua_w_per_k().is_some());
+    }
+
+    #[test]
+    fn the_second_hot_element_reads_only_through_sample() {
+        let dual = RigParams {
+            hot2: true,
+            ..RigParams::bench_stirling()
+        };
+        let one = Rig::bench_stirling(Scenario::Steady, 4);
+        let two = Rig::new(dual, Scenario::Steady, 4).unwrap();
+        assert!(two.has_hot2() && !one.has_hot2());
+        for t_ms in [0, 100, 123_400] {
+            // The bus sees the same; the sample adds the second element.
+            assert_eq!(one.measured(t_ms), two.measured(t_ms));
+            let (a, b) = (one.sample(t_ms), two.sample(t_ms));
+            assert_eq!(a.t_hot2_k, None);
+            assert_eq!(
+                Sample {
+                    t_hot2_k: None,
+                    ..b
+                },
+                a
+            );
+            assert_eq!(b.t_hot2_k, Some(two.hot2_k(t_ms)));
+            assert_ne!(b.t_hot2_k, Some(b.t_hot_k));
+        }
     }
 
     #[test]

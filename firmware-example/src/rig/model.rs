@@ -79,9 +79,13 @@ pub struct RigParams {
     /// Load as a fraction of nominal (1 = nominal, the efficiency peak;
     /// 0 = open circuit; 2 = stalled).
     pub load: f32,
-    /// Head-to-room loss conductance UA_h, W/K.
+    /// Head-to-room loss conductance UA_h, W/K: the hot side loses
+    /// `Q_room,h = UA_h·(T_h − T_0)` through its insulation
+    /// ([`Truth::head_room_loss_w`](super::Truth::head_room_loss_w)).
     pub head_room_ua_w_per_k: f32,
-    /// Cold-side-to-room conductance UA_r, W/K.
+    /// Cold-side-to-room conductance UA_r, W/K: `Q_room,c = UA_r·(T_c − T_0)`
+    /// ([`Truth::cold_room_loss_w`](super::Truth::cold_room_loss_w);
+    /// negative when the room warms the cold side).
     pub cold_room_ua_w_per_k: f32,
     /// Cooler metal-to-coolant conductance UA_c, W/K.
     pub cooler_ua_w_per_k: f32,
@@ -102,6 +106,13 @@ pub struct RigParams {
     pub max_substep_s: f32,
     /// Measurement noise.
     pub noise: NoiseParams,
+    /// Whether the heater head carries a second thermocouple beside the
+    /// first, reported as [`Sample::t_hot2_k`](heatbound::monitor::Sample::t_hot2_k)
+    /// by [`Rig::sample`](super::Rig::sample) (its own noise, at the first
+    /// one's level [`NoiseParams::thermocouple_k`]). The bus-level
+    /// simulation has no converter for it. `hot2-drift` fits one whatever
+    /// this says ([`Rig::has_hot2`](super::Rig::has_hot2)).
+    pub hot2: bool,
 }
 
 impl RigParams {
@@ -109,13 +120,23 @@ impl RigParams {
     /// - 500 W heater (48 V class, 4.6 Ω), 120 s warm-up ramp;
     /// - head 250 J/K (about 0.5 kg of stainless steel), cold side 1500 J/K;
     /// - G_eng = 1.2 W/K, 35 % of Carnot at nominal load;
-    /// - head losses 0.15 W/K to a 20 °C room, cold side 0.3 W/K;
+    /// - head losses 0.15 W/K to a 20 °C (293.15 K) room, cold side 0.3 W/K;
     /// - cooler UA 60 W/K, 0.02 kg/s (about 1.2 L/min) of 18 °C water;
     /// - noise (1σ): thermocouple 0.3 K, RTDs 0.05 K, powers 0.3 %, flow 0.3 %.
     ///
     /// In steady state: head 669 K (396 °C), cold side 299.5 K, 444 W into
     /// the engine, 86 W of work (17 % of the heater power, 31 % of Carnot's
-    /// 55 %), 356 W into the coolant (a 4.25 K rise), 58 W lost to the room.
+    /// 55 %), 356 W into the coolant (a 4.25 K rise), 58 W lost to the room:
+    /// 56.4 W from the head (0.15 W/K × 376 K) and 1.9 W from the cold side
+    /// (0.3 W/K × 6.4 K).
+    ///
+    /// A heat balance that charges the whole room loss to the hot side,
+    /// `UA·(T_hot − T_0)` (`[losses] ua_w_per_k` in `rig.toml`), sees
+    /// UA = 58.3 W / 376 K = 0.155 W/K here: the head's 0.15 W/K plus the
+    /// cold side's loss referred to the head's excess over the room
+    /// ([`Truth::room_ua_w_per_k`](super::Truth::room_ua_w_per_k)).
+    ///
+    /// One hot thermocouple ([`RigParams::hot2`] false).
     pub const fn bench_stirling() -> Self {
         Self {
             heater_power_w: 500.0,
@@ -143,6 +164,7 @@ impl RigParams {
                 power_rel: 0.003,
                 flow_rel: 0.003,
             },
+            hot2: false,
         }
     }
 

@@ -6,7 +6,7 @@
 //! options --> sil::Simulation --> frames --> wire::encode --> sink (file | stdout | TCP)
 //!                                                 (paced at F x real time if asked)
 //! TCP peers' commands --> Inbox --> Simulation::receive --> Reply, events, Hello --> sink
-//! run summary + caution --> stderr
+//! run summary (alarms, the controller's last verdict) + caution --> stderr
 //! ```
 //!
 //! The stream is deterministic: the same options and seed give the same
@@ -32,20 +32,15 @@ use heatbound_host::sil::{self, SimOptions, Simulation};
 
 /// Arguments of `heatbound simulate`.
 #[derive(clap::Args)]
-#[command(
-    allow_negative_numbers = true,
-    after_help = "Scenarios: steady, warm-up, thermocouple-drift, coolant-loss, \
-open-thermocouple, power-meter-scale-error (faults begin at 120 s).\n\
-Without --config the built-in defaults are used with ambient_k set to the rig's room \
-temperature (293.15 K): the rig measures heat out, so its balance residual is heat lost \
-to the room. With --config the file is used as written.\n\
-The stream goes to stdout unless --out, --listen or --connect is given; the run \
-summary goes to stderr."
-)]
+#[command(allow_negative_numbers = true, after_help = after_help())]
 pub struct Args {
-    /// Rig scenario to run.
+    /// Rig scenario to run (listed below).
     #[arg(long, value_name = "NAME", default_value = "steady", value_parser = parse_scenario)]
     pub scenario: Scenario,
+    /// Give the rig's head a second thermocouple, sent as t_hot2_k, so the
+    /// controller checks the two against each other (hot2-drift implies it).
+    #[arg(long)]
+    pub hot2: bool,
     /// Sample rate, Hz.
     #[arg(long, value_name = "R", default_value_t = 10.0)]
     pub rate_hz: f64,
@@ -104,6 +99,40 @@ fn parse_scenario(s: &str) -> Result<Scenario, String> {
     Scenario::parse(s).map_err(|e| e.to_string())
 }
 
+/// The text after the options: each scenario with what it does, then the
+/// configuration and where the output goes.
+fn after_help() -> String {
+    use std::fmt::Write as _;
+    let mut out = String::from("Scenarios (faults begin at 120 s):\n");
+    let width = Scenario::ALL
+        .iter()
+        .map(|s| s.name().len())
+        .max()
+        .unwrap_or(0);
+    for s in Scenario::ALL {
+        let _ = writeln!(out, "  {:<width$}  {}", s.name(), s.description());
+    }
+    // The rig's own loss coefficient, from its set-point truth.
+    let ua = Rig::bench_stirling(Scenario::Steady, 1)
+        .truth()
+        .room_ua_w_per_k()
+        .unwrap_or(f32::NAN);
+    let _ = write!(
+        out,
+        "\nWithout --config the built-in defaults are used with ambient_k set to the rig's room \
+temperature (293.15 K): the rig measures heat out, so its balance residual is heat lost \
+to the room. With --config the file is used as written.\n\
+Each summary carries the controller's verdict: whether the second law, the first law and \
+(with --hot2) the two hot sensors agree, and which one channel's bias explains it when \
+they do not. The first law needs UA: give [losses] in --config (this rig's UA is \
+{ua:.3} W/K), or let the controller learn it from a steady window (this rig's calorimeter \
+is steady only with [steady] heat_out_band_rel = 0.15).\n\
+The stream goes to stdout unless --out, --listen or --connect is given; the run \
+summary goes to stderr.",
+    );
+    out
+}
+
 /// Runs the subcommand.
 pub fn run(args: &Args) -> Result<()> {
     let f = args.speed;
@@ -124,6 +153,7 @@ pub fn run(args: &Args) -> Result<()> {
         summary_period_s: args.summary_period_s,
         rig_id,
         repair_at_s: args.repair_at_s,
+        hot2: args.hot2,
     };
     if let Some(r) = args.repair_at_s
         && !(r.is_finite() && r >= 0.0)
@@ -262,10 +292,15 @@ fn run_summary(args: &Args, sim: &Simulation, bytes: u64, target: &str) -> Strin
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "heatbound simulate: rig {}, scenario {}, seed {}, {} samples at {} Hz ({} invalid), \
+        "heatbound simulate: rig {}, scenario {}{}, seed {}, {} samples at {} Hz ({} invalid), \
          config digest {:#010x}",
         sim.hello().rig_id,
         args.scenario,
+        if sim.rig().has_hot2() {
+            " (two hot thermocouples)"
+        } else {
+            ""
+        },
         args.seed,
         s.samples,
         args.rate_hz,
@@ -299,6 +334,20 @@ fn run_summary(args: &Args, sim: &Simulation, bytes: u64, target: &str) -> Strin
     } else {
         let _ = writeln!(out, "  alarms raised: {}", raised.join(", "));
     }
+    let _ = match (s.first_inconsistent_ms, &s.last_verdict) {
+        (_, None) => writeln!(out, "  diagnosis: no summary sent"),
+        (None, Some(v)) => writeln!(
+            out,
+            "  diagnosis: {} throughout",
+            heatbound_host::verdict_check::words(v)
+        ),
+        (Some(t), Some(v)) => writeln!(
+            out,
+            "  diagnosis: inconsistent from {:.1} s; last summary: {}",
+            f64::from(t) / 1000.0,
+            heatbound_host::verdict_check::words(v)
+        ),
+    };
     let _ = writeln!(out, "{}", heatbound_host::term::SAFETY_NOTE);
     out
 }
