@@ -32,7 +32,7 @@ use heatbound_host::sil::{self, SimOptions, Simulation};
 
 /// Arguments of `heatbound simulate`.
 #[derive(clap::Args)]
-#[command(allow_negative_numbers = true, after_help = after_help())]
+#[command(allow_negative_numbers = true, after_help = sil::simulate_help())]
 pub struct Args {
     /// Rig scenario to run (listed below).
     #[arg(long, value_name = "NAME", default_value = "steady", value_parser = parse_scenario)]
@@ -97,40 +97,6 @@ pub struct Args {
 
 fn parse_scenario(s: &str) -> Result<Scenario, String> {
     Scenario::parse(s).map_err(|e| e.to_string())
-}
-
-/// The text after the options: each scenario with what it does, then the
-/// configuration and where the output goes.
-fn after_help() -> String {
-    use std::fmt::Write as _;
-    let mut out = String::from("Scenarios (faults begin at 120 s):\n");
-    let width = Scenario::ALL
-        .iter()
-        .map(|s| s.name().len())
-        .max()
-        .unwrap_or(0);
-    for s in Scenario::ALL {
-        let _ = writeln!(out, "  {:<width$}  {}", s.name(), s.description());
-    }
-    // The rig's own loss coefficient, from its set-point truth.
-    let ua = Rig::bench_stirling(Scenario::Steady, 1)
-        .truth()
-        .room_ua_w_per_k()
-        .unwrap_or(f32::NAN);
-    let _ = write!(
-        out,
-        "\nWithout --config the built-in defaults are used with ambient_k set to the rig's room \
-temperature (293.15 K): the rig measures heat out, so its balance residual is heat lost \
-to the room. With --config the file is used as written.\n\
-Each summary carries the controller's verdict: whether the second law, the first law and \
-(with --hot2) the two hot sensors agree, and which one channel's bias explains it when \
-they do not. The first law needs UA: give [losses] in --config (this rig's UA is \
-{ua:.3} W/K), or let the controller learn it from a steady window (this rig's calorimeter \
-is steady only with [steady] heat_out_band_rel = 0.15).\n\
-The stream goes to stdout unless --out, --listen or --connect is given; the run \
-summary goes to stderr.",
-    );
-    out
 }
 
 /// Runs the subcommand.
