@@ -132,6 +132,7 @@ fn the_console_in_tmux() {
             "simulate",
             "--scenario",
             "thermocouple-drift",
+            "--hot2",
             "--speed",
             "25",
             "--duration-s",

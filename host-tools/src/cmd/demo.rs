@@ -83,6 +83,9 @@ pub fn run(args: &Args) -> Result<()> {
 
     let options = SimOptions {
         scenario: SCENARIO,
+        // Two hot thermocouples: when the first drifts, the diagnosis can
+        // say which one.
+        hot2: true,
         duration_s: DURATION_S,
         repair_at_s: Some(REPAIR_S),
         ..SimOptions::default()

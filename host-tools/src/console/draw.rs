@@ -550,7 +550,11 @@ fn draw_readouts(frame: &mut Frame, area: Rect, model: &Model, view: &View) {
         };
         lines.push(Line::from(steady));
         lines.push(verdict_line(&s.verdict, width));
-        let when = |t: Option<f32>| t.map_or("—".to_string(), |t| format!("{t:.0} s"));
+        let when = |t: Option<f32>| match t {
+            None => "—".to_string(),
+            Some(t) if t <= 0.0 => "reached".to_string(),
+            Some(t) => format!("{t:.0} s"),
+        };
         let ttl = &model.time_to_limit;
         let hot = if model.hot_max_k.is_some() {
             format!("  T_max {}", when(ttl.hot_max_s))
@@ -624,7 +628,7 @@ fn verdict_line(v: &Verdict, width: usize) -> Line<'static> {
             Style::new().fg(Color::Red).add_modifier(Modifier::BOLD),
         ),
         (Some(false), None) => (
-            "check  ✖ inconsistent, no single sensor".to_string(),
+            "check  ✖ no single sensor".to_string(),
             Style::new().fg(Color::Red),
         ),
     };
