@@ -41,6 +41,10 @@ pub struct Ua<R> {
     /// When learned: the end of the window it was learned from, ms (the
     /// sample clock).
     pub learned_at_ms: Option<u32>,
+    /// When learned with a second hot sensor: the mean `T_hot − T_hot2` of
+    /// that window, K. A hot-side bias that predates the learning must
+    /// have shown there too.
+    pub learned_pair_k: Option<R>,
 }
 
 /// The least `(H − T0·D)/D`, K, from which UA is learned: below it the
@@ -56,6 +60,7 @@ impl<R: Real> Ua<R> {
             u_w_per_k: R::from_f64(losses.u_ua_w_per_k),
             source: UaSource::Config,
             learned_at_ms: None,
+            learned_pair_k: None,
         }
     }
 
@@ -107,6 +112,7 @@ impl<R: Real> Ua<R> {
             u_w_per_k: var.sqrt(),
             source: UaSource::Learned,
             learned_at_ms: Some(t_ms),
+            learned_pair_k: window.hot_pair_k,
         };
         (ua.is_finite() && out.u_w_per_k.is_finite() && g.iter().all(|v| v.is_finite()))
             .then_some(out)

@@ -9,7 +9,7 @@ use crate::num::{Real, above};
 use super::error::DiagnosisError;
 use super::linear::{MAX_COLS, MAX_ROWS, System};
 use super::model::{COLS, COLUMNS, Relation, UA, Window, column};
-use super::ua::Ua;
+use super::ua::{Ua, UaSource};
 
 /// What the diagnosis needs besides the window: the channels' standard
 /// uncertainties and the coverage factor.
@@ -314,6 +314,30 @@ fn diagnose_with<R: Real, const STATS: bool>(
         second_law_fails: out.is_active(Relation::SecondLaw),
         u_sigma: out.residual(Relation::SecondLaw).map_or(R::ZERO, |r| r.u),
     };
+    // With a learned UA a channel's constant bias may predate the learning:
+    // UA then absorbed it, and the first law as measured cannot see it, so
+    // it cannot exonerate that channel either. Such a channel also
+    // explains when, corrected as fitted to the hot pair alone, every other
+    // relation holds, the first law holds as measured, and (for a hot-side
+    // sensor) the hot pair of the learning window allows the same bias.
+    let learned = ua_value.is_some() && ua.is_some_and(|u| u.source == UaSource::Learned);
+    let learned_pair = ua.and_then(|u| u.learned_pair_k);
+    let u_pair = residuals[Relation::HotPair as usize].map(|x| x.u);
+    let pair_then_allows = |channel: Channel, b: R| match (channel, learned_pair, u_pair) {
+        (Channel::Hot, Some(p), Some(u)) => (p - b).abs() <= k * u,
+        (Channel::Hot2, Some(p), Some(u)) => (p + b).abs() <= k * u,
+        _ => true,
+    };
+    let mut pair = Rows::default();
+    if residuals[Relation::HotPair as usize].is_some() {
+        pair.push(Relation::HotPair as usize);
+    }
+    let before_learning = Fit {
+        equalities: pair.weights(&a, &var).map(|w| (pair, w)),
+        ..fit
+    };
+    let first_law_as_measured = residuals[Relation::FirstLaw as usize]
+        .is_none_or(|x| holds(Relation::FirstLaw as usize, x.value, x.u));
 
     for (j, &channel) in COLUMNS.iter().enumerate() {
         // A candidate moves an active relation (V is positive definite,
@@ -324,19 +348,21 @@ fn diagnose_with<R: Real, const STATS: bool>(
         }
         let stat = |x: Option<&[R; MAX_COLS]>| x.map_or(R::ZERO, |v| v[j]);
         let linear = stat(rec.as_ref().map(|r| &r.glr_bias));
-        let Some((bias, second_law_binds)) = fit.bias(channel, settings.u[j]) else {
+        let explains_with =
+            |bias: R, first_law: bool| fit.explains(channel, bias, &residuals, first_law, k);
+        let Some((mut bias, mut second_law_binds)) = fit.bias(channel, settings.u[j]) else {
             continue;
         };
-        let explains = window
-            .corrected(channel, bias)
-            .map(|w| {
-                let rc = w.residuals(ua_value);
-                residuals.iter().enumerate().all(|(i, x)| match (x, rc[i]) {
-                    (Some(x), Some(v)) => holds(i, v, x.u),
-                    _ => true,
-                })
-            })
-            .unwrap_or(false);
+        let mut explains = explains_with(bias, true);
+        if !explains
+            && learned
+            && first_law_as_measured
+            && let Some((b, binds)) = before_learning.bias(channel, settings.u[j])
+            && explains_with(b, false)
+            && pair_then_allows(channel, b)
+        {
+            (bias, second_law_binds, explains) = (b, binds, true);
+        }
         let c = Candidate {
             channel,
             bias,
@@ -400,9 +426,11 @@ impl Rows {
         &self.i[..self.n]
     }
 
+    // Out of line: a controller's flash is short.
     /// The inverse of these rows' covariance `A Σ Aᵀ`, in closed form;
     /// `None` when it is singular (a pivot below `1e-6` of the diagonal's
     /// scale) or there are no rows.
+    #[inline(never)]
     fn weights<R: Real>(&self, a: &[[R; COLS]; 3], var: &[R; MAX_COLS]) -> Option<[[R; 2]; 2]> {
         let cov =
             |p: usize, q: usize| (0..COLS).fold(R::ZERO, |s, j| s + a[p][j] * a[q][j] * var[j]);
@@ -429,6 +457,7 @@ fn weighted<R: Real>(w: &[[R; 2]; 2], x: &[R; 2], y: &[R; 2]) -> R {
 
 /// What a channel's bias is fitted to: the equalities, with the second
 /// law as a constraint.
+#[derive(Clone, Copy)]
 struct Fit<'a, R: Real> {
     window: &'a Window<R>,
     ua: Option<R>,
@@ -467,13 +496,13 @@ impl<R: Real> Fit<'_, R> {
             p = self.least_squares(rows, w, channel, none, u)?;
         }
         let mut binds = false;
-        let sigma = self.sigma(channel, p)?;
-        if self.second_law_fails && sigma < R::ZERO && self.a[1][j] != R::ZERO {
-            let mut rows = Rows::default();
-            rows.push(Relation::SecondLaw as usize);
+        let mut second = Rows::default();
+        second.push(Relation::SecondLaw as usize);
+        let sigma = |p: R| self.rows_at(&second, channel, p).map(|r| r[0]);
+        if self.second_law_fails && sigma(p)? < R::ZERO && self.a[1][j] != R::ZERO {
             let one = [[R::ONE, R::ZERO], [R::ZERO, R::ZERO]];
-            if let Some(root) = self.least_squares(&rows, &one, channel, p, u)
-                && self.sigma(channel, root)?.abs() <= self.u_sigma * R::from_f64(1e-3)
+            if let Some(root) = self.least_squares(&second, &one, channel, p, u)
+                && sigma(root)?.abs() <= self.u_sigma * R::from_f64(1e-3)
             {
                 p = root;
                 binds = true;
@@ -484,10 +513,41 @@ impl<R: Real> Fit<'_, R> {
         Some((b, binds))
     }
 
-    /// σ̇ with parameter `p` of `channel` removed.
-    fn sigma(&self, channel: Channel, p: R) -> Option<R> {
+    /// Whether, with `bias` of `channel` removed, every relation of
+    /// `residuals` holds within `k·u` (σ̇ ≥ −k·u), the first law left out
+    /// unless `first_law`.
+    #[inline(never)]
+    fn explains(
+        &self,
+        channel: Channel,
+        bias: R,
+        residuals: &[Option<Residual<R>>; 3],
+        first_law: bool,
+        k: R,
+    ) -> bool {
+        let Some(w) = self.window.corrected(channel, bias) else {
+            return false;
+        };
+        let rc = w.residuals(self.ua);
+        residuals.iter().enumerate().all(|(i, x)| match (x, rc[i]) {
+            _ if i == Relation::FirstLaw as usize && !first_law => true,
+            (Some(x), Some(v)) if i == Relation::SecondLaw as usize => v >= -k * x.u,
+            (Some(x), Some(v)) => v.abs() <= k * x.u,
+            _ => true,
+        })
+    }
+
+    /// The residuals of `rows` with parameter `p` of `channel` removed
+    /// (see [`to_bias`]); `None` when the correction is not valid.
+    #[inline(never)]
+    fn rows_at(&self, rows: &Rows, channel: Channel, p: R) -> Option<[R; 2]> {
         let b = to_bias(!channel.is_temperature(), p);
-        self.window.corrected(channel, b)?.residuals(self.ua)[1]
+        let r = self.window.corrected(channel, b)?.residuals(self.ua);
+        let mut out = [R::ZERO; 2];
+        for (o, &i) in out.iter_mut().zip(rows.rows()) {
+            *o = r[i]?;
+        }
+        Some(out)
     }
 
     /// Minimises `r(p)ᵀ W r(p)` over `rows` by Gauss–Newton from `p0`
@@ -505,18 +565,7 @@ impl<R: Real> Fit<'_, R> {
         p0: R,
         u: R,
     ) -> Option<R> {
-        let power = !channel.is_temperature();
-        let at = |p: R| -> Option<[R; 2]> {
-            let r = self
-                .window
-                .corrected(channel, to_bias(power, p))?
-                .residuals(self.ua);
-            let mut out = [R::ZERO; 2];
-            for (o, &i) in out.iter_mut().zip(rows.rows()) {
-                *o = r[i]?;
-            }
-            Some(out)
-        };
+        let at = |p: R| self.rows_at(rows, channel, p);
         let mut p = p0;
         let mut r = at(p)?;
         for _ in 0..MAX_STEPS {
@@ -666,6 +715,32 @@ mod tests {
         assert!(d.residual(Relation::FirstLaw).is_none());
         let d = diagnose(&window(0.0, None, true), &settings(), Some(&ua()), true).unwrap();
         assert_eq!(d.first_law_unavailable, Some(Unavailable::UaLearnedHere));
+    }
+
+    #[test]
+    fn a_learned_ua_does_not_exonerate_a_bias_it_absorbed() {
+        // Hot reads 40 K low from the start: UA is learned from a window
+        // that already has the offset, so the first law as measured holds,
+        // and the pair alone cannot say which element is wrong.
+        let w = window(-40.0, Some(0.0), true);
+        let learned = Ua::learn(&w, &settings().u, 60_000).unwrap();
+        assert_eq!(learned.learned_pair_k, Some(-40.0));
+        let d = diagnose(&w, &settings(), Some(&learned), false).unwrap();
+        assert!(!d.consistent);
+        assert_eq!(d.suspect, None, "{d:?}");
+        assert!(d.candidate(Channel::Hot).is_some_and(|c| c.explains));
+        assert!(d.candidate(Channel::Hot2).is_some_and(|c| c.explains));
+        // Learned from a window whose pair agreed, the same offset now is
+        // a new fault on hot, which the first law sees: hot is named.
+        let clean = Ua::learn(&window(0.0, Some(0.0), true), &settings().u, 60_000).unwrap();
+        let d = diagnose(
+            &window(-80.0, Some(0.0), true),
+            &settings(),
+            Some(&clean),
+            false,
+        )
+        .unwrap();
+        assert_eq!(d.suspect, Some(Channel::Hot), "{d:?}");
     }
 
     #[test]
