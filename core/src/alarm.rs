@@ -690,26 +690,23 @@ fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COU
                 .is_some_and(|x| x > db(RuleId::BeyondCarnot))
         })
         .map(|l| (l.value, -l.slope_per_s, l.u_slope_per_s));
-    let ahead = [hot, margin]
-        .into_iter()
-        .flatten()
-        .map(|(gap, speed, u)| {
-            let heading = speed > zero && speed > k * u && gap > zero;
-            if heading && gap < speed * horizon {
-                Verdict::Raise { since_ms: None }
-            } else if heading && gap <= speed * (horizon + db(RuleId::LimitAhead)) {
-                Verdict::Hold
+    let ahead_of = |line: Option<(R<I>, R<I>, R<I>)>| match line {
+        Some((gap, speed, u)) if speed > zero && speed > k * u && gap > zero => {
+            if gap < speed * horizon {
+                2
+            } else if gap <= speed * (horizon + db(RuleId::LimitAhead)) {
+                1
             } else {
-                Verdict::Clear
+                0
             }
-        })
-        .fold(Verdict::Clear, |a, b| match (a, b) {
-            (Verdict::Raise { .. }, _) | (_, Verdict::Raise { .. }) => {
-                Verdict::Raise { since_ms: None }
-            }
-            (Verdict::Hold, _) | (_, Verdict::Hold) => Verdict::Hold,
-            _ => Verdict::Clear,
-        });
+        }
+        _ => 0,
+    };
+    let ahead = match ahead_of(hot).max(ahead_of(margin)) {
+        2 => Verdict::Raise { since_ms: None },
+        1 => Verdict::Hold,
+        _ => Verdict::Clear,
+    };
 
     [beyond, negative_entropy, near, balance, over, sensor, ahead]
 }

@@ -323,7 +323,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             // Once per window, from the first steady period on (a warm-up
             // heads for its operating point, not for a limit): a point of
             // the trends.
-            if rebuilt && full && self.steady_seen {
+            if rebuilt && full && self.steady_seen && self.trend.due(s.t_ms) {
                 let margin = self
                     .window_integrals()
                     .alarm_figures_with::<false>(&self.prepared)

@@ -3,8 +3,8 @@
 //! `limit_ahead` rule projects when a limit would be crossed.
 //!
 //! One point per window (when the window's sums are rebuilt, so once per
-//! `window_samples` samples): the window's margin and the latest hot-side
-//! temperature. The fit is ordinary least squares over the last
+//! `window_samples` samples), at least [`MIN_SPACING_MS`] apart: the
+//! window's margin and the latest hot-side temperature. The fit is ordinary least squares over the last
 //! [`TREND_POINTS`] points, with the standard error of its slope from the
 //! scatter about the line (n − 2 degrees of freedom). Nothing here runs per
 //! sample but the test whether a point is due.
@@ -17,6 +17,10 @@ pub const TREND_POINTS: usize = 16;
 
 /// The fewest points a line is fitted to.
 const MIN_POINTS: usize = 4;
+
+/// The least spacing of two points, ms: a short window does not crowd the
+/// fit into a few seconds of history (nor fit it every few samples).
+pub const MIN_SPACING_MS: u32 = 5_000;
 
 /// A straight line fitted to recent windows.
 #[derive(Clone, Copy, Debug, PartialEq, Default)]
@@ -112,6 +116,14 @@ impl<R: Real> TrendTracker<R> {
         self.len = 0;
         self.head = 0;
         self.lines = Trends::default();
+    }
+
+    /// Whether a point at `t_ms` is due: the first, or [`MIN_SPACING_MS`]
+    /// after the latest.
+    pub fn due(&self, t_ms: u32) -> bool {
+        self.len == 0
+            || t_ms.wrapping_sub(self.t_ms[(self.head + self.len - 1) % TREND_POINTS])
+                >= MIN_SPACING_MS
     }
 
     /// Adds the point of a window ending at `t_ms` and fits the lines.

@@ -491,7 +491,7 @@ pub struct Summary {
     pub status: Status,
     /// Faulty channels and staleness.
     pub faults: FaultBits,
-    /// Active alarms, bit i = `RuleId::index` (bits 0–5 only).
+    /// Active alarms, bit i = `RuleId::index` (bits 0–6 only).
     pub alarms: u8,
     /// The diagnosis of this window.
     pub verdict: Verdict,
