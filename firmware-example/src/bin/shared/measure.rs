@@ -159,8 +159,8 @@ pub struct Report {
     pub sqrtf: Instructions,
     /// `Summary::from_monitor` + `wire::encode`, per summary.
     pub summary_encode: Instructions,
-    /// The diagnosis at summary rate: `Tracker::observe` (UA learning)
-    /// + `Tracker::judge`, per summary, on the thermocouple-drift stream
+    /// The diagnosis at summary rate, per summary: `Tracker::observe` (UA
+    /// learning) and `Tracker::judge`, on the thermocouple-drift stream
     /// (inconsistent from about 200 s on, so the candidates are fitted).
     pub summary_diagnose: Instructions,
     /// `Controller::receive` of a sealed `Acknowledge(None)`, accepted and
