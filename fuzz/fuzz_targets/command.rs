@@ -37,7 +37,6 @@ fuzz_target!(|data: &[u8]| {
             heat_in_w: 500.0,
             work_w: 300.0,
             heat_out_w: None,
-        t_hot2_k: None,
             t_hot2_k: None,
         };
         c.step(&s, &mut |_: &Frame| {});
