@@ -848,3 +848,62 @@ fn unused_columns_and_invalid_rows_are_located_and_a_huge_header_is_not_echoed()
     assert!(err.len() < 1000, "{} bytes of error", err.len());
     assert!(!err.contains('\u{1b}'), "{err}");
 }
+
+/// A hot thermocouple that drops 400 K after 120 s makes the engine look
+/// better than Carnot: the second-law alarms' raises carry the diagnosis
+/// of that moment, and the final window's diagnosis names the hot sensor,
+/// because the second element (`hot2_k`) and `[losses]` isolate it
+/// (docs/diagnosis.md §6; the rig is this test's own, its first law closed
+/// by construction: 1000 W = 200 W + 597.5 W + 0.5 W/K · 405 K).
+#[test]
+fn second_law_raises_carry_the_diagnosis_and_the_hot_sensor_is_named() {
+    let dir = TempDir::new().unwrap();
+    let mut csv = String::from("time_s,hot_k,hot2_k,cold_k,heat_in_w,work_w,heat_out_w\n");
+    for t in 0..400 {
+        let hot = if t < 120 { 700.0 } else { 300.0 };
+        csv.push_str(&format!("{t},{hot},700,300,1000,200,597.5\n"));
+    }
+    let csv = write(&dir, "drop.csv", &csv);
+    let rig = write(
+        &dir,
+        "rig.toml",
+        "ambient_k = 295.0\n[losses]\nua_w_per_k = 0.5\nu_ua_w_per_k = 0.01\n",
+    );
+    let out = heatbound()
+        .arg("analyze")
+        .arg(&csv)
+        .arg("--config")
+        .arg(&rig)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let j: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let raises: Vec<&Value> = j["alarms"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|a| a["event"] == "raised" && a["rule"] == "beyond_carnot")
+        .collect();
+    assert_eq!(raises.len(), 1, "{}", j["alarms"]);
+    let d = &raises[0]["diagnosis"];
+    assert_eq!(d["consistent"], false, "{d}");
+    assert_eq!(j["diagnosis"]["suspect"], "hot", "{}", j["diagnosis"]);
+    let c = &j["diagnosis"]["candidates"][0];
+    assert_eq!(c["channel"], "hot");
+    assert!((c["bias"].as_f64().unwrap() + 400.0).abs() < 1.0, "{c}");
+    assert_eq!(j["hot2_measured"], true);
+    // Alarms that are not second-law or energy-balance raises carry none.
+    assert!(
+        j["alarms"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|a| a["event"] != "raised")
+            .all(|a| a.get("diagnosis").is_none())
+    );
+}
