@@ -66,8 +66,8 @@ impl<R: Real> Ua<R> {
 
     /// UA learned from `window`, `UA = s·(Q_in − W − Q_out)/(H − T0·D)`,
     /// with its uncertainty propagated from the channels' (`u` per channel
-    /// in [`COLUMNS`] order). `None` without heat out measured, or when
-    /// the hot side is within [`MIN_EXCESS_K`] of T0.
+    /// in `COLUMNS` order). `None` without heat out measured, or when
+    /// the hot side is within `MIN_EXCESS_K` of T0.
     ///
     /// A later window's first law treats this uncertainty as independent
     /// of that window's errors. The same systematic errors move both, so

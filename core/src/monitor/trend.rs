@@ -3,7 +3,7 @@
 //! `limit_ahead` rule projects when a limit would be crossed.
 //!
 //! One point per window (when the window's sums are rebuilt, so once per
-//! `window_samples` samples), at least [`MIN_SPACING_MS`] apart: the
+//! `window_samples` samples), at least `MIN_SPACING_MS` apart: the
 //! window's margin and the latest hot-side temperature. The fit is ordinary least squares over the last
 //! [`TREND_POINTS`] points, with the standard error of its slope from the
 //! scatter about the line (n − 2 degrees of freedom). Nothing here runs per
@@ -118,7 +118,7 @@ impl<R: Real> TrendTracker<R> {
         self.lines = Trends::default();
     }
 
-    /// Whether a point at `t_ms` is due: the first, or [`MIN_SPACING_MS`]
+    /// Whether a point at `t_ms` is due: the first, or `MIN_SPACING_MS`
     /// after the latest.
     pub fn due(&self, t_ms: u32) -> bool {
         self.len == 0
