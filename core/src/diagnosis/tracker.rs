@@ -105,13 +105,24 @@ impl<R: Real> Tracker<R> {
         monitor: &Monitor<N, R>,
         t_ms: u32,
     ) -> Result<Diagnosis<R>, DiagnosisError> {
+        let (w, overlaps) = self.window(monitor, t_ms)?;
+        diagnose(&w, &self.settings, self.ua.as_ref(), overlaps)
+    }
+
+    /// The monitor's window ending at `t_ms`, and whether it still
+    /// overlaps the one UA was learned from.
+    fn window<const N: usize>(
+        &self,
+        monitor: &Monitor<N, R>,
+        t_ms: u32,
+    ) -> Result<(Window<R>, bool), DiagnosisError> {
         let w = Window::from_integrals(&monitor.window_integrals(), &self.figures)
             .ok_or(DiagnosisError::NoWindow)?;
         let overlaps = self
             .ua
             .as_ref()
             .is_some_and(|ua| overlaps_learning(ua.learned_at_ms, t_ms, w.duration_s));
-        diagnose(&w, &self.settings, self.ua.as_ref(), overlaps)
+        Ok((w, overlaps))
     }
 
     /// [`Tracker::diagnose`] without the test statistics ([`judge`]):
@@ -121,12 +132,7 @@ impl<R: Real> Tracker<R> {
         monitor: &Monitor<N, R>,
         t_ms: u32,
     ) -> Result<Diagnosis<R>, DiagnosisError> {
-        let w = Window::from_integrals(&monitor.window_integrals(), &self.figures)
-            .ok_or(DiagnosisError::NoWindow)?;
-        let overlaps = self
-            .ua
-            .as_ref()
-            .is_some_and(|ua| overlaps_learning(ua.learned_at_ms, t_ms, w.duration_s));
+        let (w, overlaps) = self.window(monitor, t_ms)?;
         judge(&w, &self.settings, self.ua.as_ref(), overlaps)
     }
 }
