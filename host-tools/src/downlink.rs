@@ -45,6 +45,10 @@ pub enum Ask {
     Configure(Box<RigConfig>),
     /// A command sealed elsewhere (by a holder of the key), sent as it is.
     Forward(Vec<u8>),
+    /// A command sealed elsewhere that came through a broker: sent as it is
+    /// only if its seal verifies under this holder's key for the
+    /// controller's session; else refused, and the refusal logged.
+    Relay(Vec<u8>),
     /// An operator's action that sends nothing (pausing the trends,
     /// changing the span, leaving): logged only.
     Note {
@@ -63,6 +67,7 @@ impl Ask {
             Ask::NewRun => "new_run",
             Ask::Configure(_) => "configure",
             Ask::Forward(_) => "forward",
+            Ask::Relay(_) => "relay",
             Ask::Note { .. } => "note",
         }
     }
@@ -317,6 +322,35 @@ impl Downlink {
         writer: Option<&mut dyn Write>,
         now: Instant,
     ) -> Result<(), StoreError> {
+        if let Ask::Relay(bytes) = &request.ask
+            && let Some((counter, name, detail)) = self.forged(bytes, to)
+        {
+            // Logged with what it claimed to be, and never written to the link.
+            let run = ingest.run_id();
+            let detail = format!("refused {detail}: its seal does not verify under this watch's key");
+            let log_id = ingest.log_mut().insert_command(
+                run,
+                now_ms(),
+                &request.origin,
+                name,
+                &detail,
+                counter,
+                to.session,
+                bytes,
+            )?;
+            ingest
+                .log_mut()
+                .settle_command_as(log_id, now_ms(), None, Some("refused"))?;
+            let _ = request.answer.send(Answer::unavailable(
+                "refused",
+                format!(
+                    "{detail} for rig {} session {} (forged, or sealed with another key or for another session); not sent",
+                    to.rig_id.as_str(),
+                    to.session
+                ),
+            ));
+            return Ok(());
+        }
         let last_accepted = ingest.latest_hello().map_or(0, |h| h.last_counter);
         let (counter, name, detail, bytes) = match self.seal(&request.ask, to, last_accepted) {
             Ok(sealed) => sealed,
@@ -360,6 +394,21 @@ impl Downlink {
         Ok(())
     }
 
+    /// For relayed `bytes` that are a well-formed command whose seal does
+    /// not verify for `to`: its counter, name and description. `None` for
+    /// an authentic command, and for bytes that are no command at all
+    /// (refused by [`Downlink::seal`] as invalid).
+    fn forged(&self, bytes: &[u8], to: &Addressee) -> Option<(u32, &'static str, String)> {
+        let body = bytes.strip_suffix(&[0]).unwrap_or(bytes);
+        let mut copy = body.to_vec();
+        let received = wire::decode_command(&mut copy).ok()?;
+        if received.authentic(&self.auth, to) {
+            return None;
+        }
+        let c = received.frame.command;
+        Some((received.frame.counter, c.name(), describe(&c)))
+    }
+
     /// The bytes of `ask` for `to`: (counter, command name, detail, bytes).
     fn seal(
         &mut self,
@@ -369,7 +418,7 @@ impl Downlink {
     ) -> Result<(u32, &'static str, String, Vec<u8>), String> {
         let mut buf = [0u8; wire::MAX_COMMAND_LEN];
         let (frame, sealed, detail) = match ask {
-            Ask::Forward(bytes) => {
+            Ask::Forward(bytes) | Ask::Relay(bytes) => {
                 let body = bytes.strip_suffix(&[0]).unwrap_or(bytes);
                 let mut copy = body.to_vec();
                 let received = wire::decode_command(&mut copy).map_err(|e| {
@@ -403,7 +452,9 @@ impl Downlink {
                             .map_err(|e| format!("the configuration does not validate: {e}"))?;
                         Command::Configure(**config)
                     }
-                    Ask::Hello | Ask::Forward(_) | Ask::Note { .. } => Command::HelloRequest,
+                    Ask::Hello | Ask::Forward(_) | Ask::Relay(_) | Ask::Note { .. } => {
+                        Command::HelloRequest
+                    }
                 };
                 let counter = self.next_counter.max(last_accepted.saturating_add(1));
                 self.next_counter = counter.saturating_add(1);

@@ -47,7 +47,7 @@ use heatbound::wire::{
     Reply, Summary,
 };
 
-use crate::store::{LinkErrorKind, Log, RunId, StoreError};
+use crate::store::{LinkErrorKind, LinkErrorRow, Log, Record, RunId, Stored, StoreError};
 
 /// How live lines are written.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -195,6 +195,25 @@ pub struct Ingest {
     /// The run was ended on purpose (a signal, a bound, the operator):
     /// a frame cut off by that is not a loss of the link.
     stopped: bool,
+    /// Who hears of each row a lab should have, as it is logged
+    /// (`watch --publish`).
+    feed: Option<std::sync::mpsc::Sender<Logged>>,
+    /// The `ord` of the previous row fed in this run (−1: none).
+    prev_fed: i64,
+}
+
+/// A row just logged that a lab should have (see [`crate::store::carried`]),
+/// with its place in the run.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Logged {
+    /// The run.
+    pub run: RunId,
+    /// Its `ord`.
+    pub ord: i64,
+    /// The `ord` of the run's previous row that a lab should have (−1: none).
+    pub prev_ord: i64,
+    /// The row.
+    pub record: Record,
 }
 
 /// A replayed section not yet logged.
@@ -216,7 +235,13 @@ impl Ingest {
         style: LineStyle,
     ) -> Result<Ingest, StoreError> {
         let run = log.begin_run(source, host_ms)?;
-        Ok(Ingest {
+        Ok(Ingest::with_run(log, run, style))
+    }
+
+    /// Goes on writing `run`, already begun in `log` (a lab's run, whose
+    /// rows keep coming from the same source).
+    pub fn with_run(log: Log, run: RunId, style: LineStyle) -> Ingest {
+        Ingest {
             log,
             run,
             decoder: Decoder::new(),
@@ -245,7 +270,9 @@ impl Ingest {
             replies: Vec::new(),
             observer: None,
             stopped: false,
-        })
+            feed: None,
+            prev_fed: -1,
+        }
     }
 
     /// The run is being ended on purpose (a signal, a time bound, the
@@ -283,6 +310,28 @@ impl Ingest {
             .insert_operator_action(run, host_ms, origin, action, detail)
     }
 
+    /// Sends every row a lab should have to `feed` as it is logged (frames,
+    /// and the losses [`crate::store::carried`]). A gone receiver is forgotten.
+    pub fn set_feed(&mut self, feed: std::sync::mpsc::Sender<Logged>) {
+        self.feed = Some(feed);
+    }
+
+    /// Tells the feed of a row just logged.
+    fn fed(&mut self, ord: i64, record: impl FnOnce() -> Record) {
+        if let Some(feed) = &self.feed {
+            let logged = Logged {
+                run: self.run,
+                ord,
+                prev_ord: self.prev_fed,
+                record: record(),
+            };
+            if feed.send(logged).is_err() {
+                self.feed = None;
+            }
+            self.prev_fed = ord;
+        }
+    }
+
     /// The latest Hello, if one has arrived: who the controller is, its
     /// session and its last accepted command counter.
     pub fn latest_hello(&self) -> Option<&Hello> {
@@ -293,6 +342,36 @@ impl Ingest {
     /// times, oldest first.
     pub fn take_replies(&mut self) -> Vec<(Reply, i64)> {
         std::mem::take(&mut self.replies)
+    }
+
+    /// Exchanges the log this ingest writes with `other`: a lab keeps one
+    /// log and lends it to the ingest of each rig's run in turn.
+    pub fn swap_log(&mut self, other: &mut Log) {
+        std::mem::swap(&mut self.log, other);
+    }
+
+    /// Logs a loss that another host saw on the rig's own link (a lab
+    /// taking a publishing watch's row), as it was recorded there.
+    pub fn log_loss(&mut self, row: &LinkErrorRow) -> Result<(), StoreError> {
+        self.log
+            .insert_link_error(self.run, row.host_ms, row.kind, row.count, &row.detail)
+            .map(|_| ())
+    }
+
+    /// Logs an outage of the rig's own link that another host saw (a lab
+    /// taking a publishing watch's run).
+    pub fn log_outage(
+        &mut self,
+        started_host_ms: i64,
+        ended_host_ms: Option<i64>,
+        reason: &str,
+    ) -> Result<(), StoreError> {
+        let id = self.log.begin_outage(self.run, started_host_ms, reason)?;
+        self.totals.outages += 1;
+        match ended_host_ms {
+            Some(end) => self.log.end_outage(id, end),
+            None => Ok(()),
+        }
     }
 
     /// The log, for writing rows that are not frames (the commands sent).
@@ -405,6 +484,12 @@ impl Ingest {
     /// Ends the run at `host_ms`: counts a frame left unfinished as a loss,
     /// closes an open outage, commits, and returns the totals.
     pub fn finish(mut self, host_ms: i64) -> Result<Totals, StoreError> {
+        self.close(host_ms)
+    }
+
+    /// [`Ingest::finish`] that leaves the ingest (and its log) with the
+    /// caller: a lab closes one rig's run and keeps its log for the others.
+    pub fn close(&mut self, host_ms: i64) -> Result<Totals, StoreError> {
         // A frame cut off by the end of the input is a loss too; not one
         // cut off because the run was ended on purpose mid-frame.
         if self.decoder.has_unfinished() && !self.limit_reached() && !self.stopped {
@@ -467,6 +552,9 @@ impl Ingest {
             let r = self
                 .log
                 .insert_link_error(self.run, host_ms, kind, n, &detail);
+            if let Ok(ord) = r {
+                self.fed(ord, || loss_record(ord, host_ms, kind, n, &detail));
+            }
             self.line = detail;
             r?;
         }
@@ -499,8 +587,13 @@ impl Ingest {
             r.summaries,
             &detail,
         );
+        if let Ok(ord) = result {
+            self.fed(ord, || {
+                loss_record(ord, r.host_ms, LinkErrorKind::Replay, r.summaries, &detail)
+            });
+        }
         self.line = detail;
-        result
+        result.map(|_| ())
     }
 
     /// Whether summary `s` replays one already seen in this device
@@ -608,7 +701,13 @@ impl Ingest {
             Frame::Event(_) => {}
             Frame::Reply(r) => self.replies.push((*r, host_ms)),
         }
-        self.log.insert_frame(self.run, host_ms, frame)?;
+        let ord = self.log.insert_frame(self.run, host_ms, frame)?;
+        self.fed(ord, || {
+            Record::Frame(Stored {
+                host_ms,
+                frame: frame.clone(),
+            })
+        });
         if self.observer.is_some() {
             self.tell(Observed::Frame {
                 frame: frame.clone(),
@@ -680,7 +779,7 @@ impl Ingest {
             .log
             .insert_link_error(self.run, host_ms, kind, count, &detail);
         self.line = detail;
-        r
+        r.map(|_| ())
     }
 
     fn write_summary(&mut self, s: &Summary) {
@@ -859,4 +958,15 @@ fn write_event(out: &mut String, e: &EventFrame, style: LineStyle) {
         ev.severity,
         f64::from(ev.t_ms) / 1000.0
     );
+}
+
+/// A carried `link_errors` row as a [`Record`].
+fn loss_record(ord: i64, host_ms: i64, kind: LinkErrorKind, count: u64, detail: &str) -> Record {
+    Record::Loss(LinkErrorRow {
+        ord,
+        host_ms,
+        kind,
+        count,
+        detail: detail.to_string(),
+    })
 }

@@ -42,6 +42,7 @@ pub mod ingest;
 pub mod keyfile;
 pub mod link;
 pub mod live;
+pub mod mqtt;
 pub mod operator;
 pub mod replay;
 pub mod rigfile;

@@ -65,6 +65,11 @@ impl Live {
         })
     }
 
+    /// Where requests for the controller go (a lab's relayed commands).
+    pub fn requester(&self) -> Sender<Request> {
+        self.requests_tx.clone()
+    }
+
     /// The control socket's path.
     pub fn socket(&self) -> &Path {
         self.server.path()

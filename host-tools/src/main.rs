@@ -23,6 +23,8 @@ enum Command {
     Analyze(cmd::analyze::Args),
     /// Decode a live stream, print a line per summary and log everything to SQLite.
     Watch(cmd::watch::Args),
+    /// Collect every rig that a `watch --publish` sends to the lab's MQTT broker into one log, and show them.
+    Lab(cmd::lab::Args),
     /// Run the simulated bench rig through the monitor and alarms and emit the wire stream.
     Simulate(cmd::simulate::Args),
     /// Re-check a capture or a log database; exit non-zero when it is not trustworthy.
@@ -87,6 +89,7 @@ fn main() -> ExitCode {
         Command::Analyze(args) => cmd::analyze::run(&args),
         Command::Watch(args) => cmd::watch::run(&args),
         Command::Simulate(args) => cmd::simulate::run(&args),
+        Command::Lab(args) => cmd::lab::run(&args),
         Command::Audit(args) => cmd::audit::run(&args),
         Command::Chart(args) => cmd::chart::run(&args),
         Command::Demo(args) => cmd::demo::run(&args),

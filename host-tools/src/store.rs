@@ -48,6 +48,9 @@ use heatbound::wire::{
 };
 use rusqlite::{Connection, OpenFlags, Row, params};
 
+mod lab;
+pub use lab::{LabSource, Publication, Record, SourceKey, carried};
+
 /// The schema version this tool writes (`PRAGMA user_version`).
 pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
 
@@ -210,6 +213,31 @@ pub const MIGRATIONS: &[&str] = &[
         SET faults = (faults & 31) | ((faults & 32) << 2)
             | (CASE WHEN faults & 192 != 0 THEN 64 ELSE 0 END)
         WHERE typeof(faults) = 'integer' AND faults BETWEEN 0 AND 255;",
+    // 6: the lab (`watch --publish`, `lab`). Every log gets an id of its own,
+    // so that a lab tells apart the runs of two bench PCs. A watch log
+    // records, per run it publishes, the last row up to which the broker
+    // acknowledged everything; a lab log records which rig each run came
+    // from and, per source run, the last row it took.
+    "CREATE TABLE log_identity (id INTEGER NOT NULL);
+    INSERT INTO log_identity (id) SELECT abs(random() % 9007199254740991);
+    ALTER TABLE runs ADD COLUMN rig TEXT;
+    CREATE TABLE publications (
+        run_id          INTEGER PRIMARY KEY REFERENCES runs(id),
+        broker          TEXT NOT NULL,
+        acked_ord       INTEGER NOT NULL,
+        updated_host_ms INTEGER NOT NULL
+    );
+    CREATE TABLE lab_sources (
+        rig         TEXT NOT NULL,
+        log_id      INTEGER NOT NULL,
+        source_run  INTEGER NOT NULL,
+        run_id      INTEGER NOT NULL REFERENCES runs(id),
+        last_ord    INTEGER NOT NULL,
+        duplicates  INTEGER NOT NULL DEFAULT 0,
+        recovered   INTEGER NOT NULL DEFAULT 0,
+        lost        INTEGER NOT NULL DEFAULT 0,
+        PRIMARY KEY (rig, log_id, source_run)
+    ) WITHOUT ROWID;",
 ];
 
 /// What went wrong with the log.
@@ -859,13 +887,13 @@ impl Log {
         Ok(())
     }
 
-    /// Logs one frame of `run`, received at `host_ms`.
+    /// Logs one frame of `run`, received at `host_ms`. Returns its `ord`.
     pub fn insert_frame(
         &mut self,
         run: RunId,
         host_ms: i64,
         frame: &Frame,
-    ) -> Result<(), StoreError> {
+    ) -> Result<i64, StoreError> {
         self.row(host_ms)?;
         let ord = self.ord(run)?;
         let result = match frame {
@@ -973,10 +1001,12 @@ impl Log {
             }),
         };
         result.map_err(|e| self.err("cannot log a frame", e))?;
-        self.after_row()
+        self.after_row()?;
+        Ok(ord)
     }
 
-    /// Logs `count` losses of `kind` on `run` at `host_ms`.
+    /// Logs `count` losses of `kind` on `run` at `host_ms`. Returns the
+    /// row's `ord`.
     pub fn insert_link_error(
         &mut self,
         run: RunId,
@@ -984,7 +1014,7 @@ impl Log {
         kind: LinkErrorKind,
         count: u64,
         detail: &str,
-    ) -> Result<(), StoreError> {
+    ) -> Result<i64, StoreError> {
         self.row(host_ms)?;
         let ord = self.ord(run)?;
         let count = i64::try_from(count).unwrap_or(i64::MAX);
@@ -992,7 +1022,8 @@ impl Log {
             .prepare_cached(INSERT_LINK_ERROR)
             .and_then(|mut st| st.execute(params![run, ord, host_ms, kind.as_str(), count, detail]))
             .map_err(|e| self.err("cannot log a link error", e))?;
-        self.after_row()
+        self.after_row()?;
+        Ok(ord)
     }
 
     /// Records that the link of `run` dropped at `host_ms`; commits at once.

@@ -41,8 +41,12 @@ pub struct Args {
     #[arg(long, value_name = "RIG.toml")]
     pub config: Option<PathBuf>,
     /// With a database: the run to audit (default: the latest).
-    #[arg(long, value_name = "ID")]
+    #[arg(long, value_name = "ID", conflicts_with = "rig")]
     pub run: Option<i64>,
+    /// With a database (a lab log, or a watch log): audit every run of this
+    /// rig, each on its own; trustworthy only if every one is.
+    #[arg(long, value_name = "ID")]
+    pub rig: Option<String>,
     /// Print JSON instead of a readable report.
     #[arg(long)]
     pub json: bool,
@@ -55,6 +59,9 @@ pub fn run(args: &Args) -> Result<()> {
     let name = args.input.display().to_string();
     let size = std::fs::metadata(&args.input).map_or(0, |m| m.len());
     let label = format!("audit {name}");
+    if let Some(rig) = &args.rig {
+        return audit_rig(args, rig, &config);
+    }
     let report = if is_database(&args.input)? {
         // Frames, read and then checked: the engine sets the length.
         let bar = progress_bar(&label, 0, Counting::Frames, size);
@@ -100,6 +107,66 @@ pub fn run(args: &Args) -> Result<()> {
     }
     stdout.flush().context("writing the report")?;
     if !report.trustworthy {
+        std::process::exit(1);
+    }
+    Ok(())
+}
+
+/// `--rig ID`: every run of the rig, a report each, then the verdict.
+fn audit_rig(args: &Args, rig: &str, config: &heatbound::config::RigConfig) -> Result<()> {
+    let name = args.input.display().to_string();
+    if !is_database(&args.input)? {
+        bail!("{name}: --rig applies to a log database, and this is a raw capture");
+    }
+    let log = heatbound_host::store::Log::open_read(&args.input)?;
+    let runs = log.runs_of_rig(rig)?;
+    drop(log);
+    if runs.is_empty() {
+        bail!("{name}: no run of rig {rig:?} (no run is named for it, and no Hello names it)");
+    }
+    let mut reports = Vec::new();
+    for run in &runs {
+        let bar = progress_bar(&format!("audit {name} run {run}"), 0, Counting::Frames, 0);
+        let report = audit_database_with_progress(&args.input, Some(*run), config, Some(&bar));
+        bar.finish_and_clear();
+        reports.push((*run, report?));
+    }
+    let trustworthy = reports.iter().all(|(_, r)| r.trustworthy);
+    let mut stdout = std::io::stdout().lock();
+    if args.json {
+        let value = serde_json::json!({
+            "rig": rig,
+            "trustworthy": trustworthy,
+            "runs": reports.iter().map(|(run, r)| serde_json::json!({"run": run, "report": r})).collect::<Vec<_>>(),
+        });
+        let text = serde_json::to_string_pretty(&value).context("encoding the report")?;
+        writeln!(stdout, "{text}").context("writing the report")?;
+    } else {
+        for (run, report) in &reports {
+            write!(stdout, "{}", report.text(&format!("{name}, rig {rig}, run {run}")))
+                .context("writing the report")?;
+            writeln!(stdout).context("writing the report")?;
+        }
+        let bad: Vec<String> = reports
+            .iter()
+            .filter(|(_, r)| !r.trustworthy)
+            .map(|(run, _)| run.to_string())
+            .collect();
+        if bad.is_empty() {
+            writeln!(stdout, "rig {rig}: {} runs, every one trustworthy", reports.len())
+        } else {
+            writeln!(
+                stdout,
+                "rig {rig}: {} runs, NOT trustworthy: run {}",
+                reports.len(),
+                bad.join(", ")
+            )
+        }
+        .context("writing the report")?;
+        writeln!(stdout, "{}", SAFETY_NOTE).context("writing the report")?;
+    }
+    stdout.flush().context("writing the report")?;
+    if !trustworthy {
         std::process::exit(1);
     }
     Ok(())

@@ -5,6 +5,7 @@ pub mod chart;
 pub mod convert;
 pub mod cycle;
 pub mod demo;
+pub mod lab;
 pub mod operate;
 pub mod shell;
 pub mod simulate;

@@ -19,6 +19,10 @@
 //! commands with the rig's key (`--key-file`, `$HEATBOUND_KEY_FILE`, else
 //! the public demo key, said so) and logs each with its reply.
 //!
+//! With `--publish mqtt://HOST:PORT` (or `mqtts://`) every row a lab should
+//! have also goes to the broker ([`heatbound_host::mqtt::publisher`]), from
+//! this log, so an outage of the broker loses nothing.
+//!
 //! SIGINT and SIGTERM end the run cleanly: the loop notices within one read
 //! timeout, commits and closes the run. A second signal exits at once; the
 //! batches already committed survive (WAL).
@@ -33,6 +37,9 @@ use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::keyfile;
 use heatbound_host::link::{self, Bounds, LinkOptions, Source, now_ms};
 use heatbound_host::live::Live;
+use heatbound_host::mqtt::broker::{Broker, BrokerArgs};
+use heatbound_host::mqtt::publisher::{PublishConfig, Publisher};
+use heatbound_host::mqtt::topics::Topics;
 use heatbound_host::store::{DEFAULT_DB, Log};
 use heatbound_host::term::{self, Counting};
 
@@ -83,6 +90,13 @@ pub struct Args {
     /// (default: $HEATBOUND_KEY_FILE, else the public demo key).
     #[arg(long, value_name = "FILE")]
     pub key_file: Option<PathBuf>,
+    /// Also publish every frame to this MQTT broker (mqtt://HOST:PORT, or
+    /// mqtts://HOST:PORT for TLS), for a lab's `heatbound lab` and dashboards.
+    #[arg(long, value_name = "URL")]
+    pub publish: Option<String>,
+    /// How to reach the broker of --publish.
+    #[command(flatten)]
+    pub broker: BrokerArgs,
 }
 
 /// A duration option in seconds, checked.
@@ -116,6 +130,14 @@ pub fn run(args: &Args) -> Result<()> {
     link::check_log_target(&args.db)?;
     // The key is checked up front too: a key file others can read is refused.
     let (key, key_origin) = keyfile::resolve(args.key_file.as_deref())?;
+    // So is the broker: its address, login and certificates.
+    let publish = match &args.publish {
+        Some(url) => Some((
+            Broker::new(url, &args.broker)?,
+            Topics::new(&args.broker.topic_root).map_err(anyhow::Error::msg)?,
+        )),
+        None => None,
+    };
     let name = match (&source, &args.input) {
         (Some(s), _) => s.name(),
         (None, Some(p)) if p.as_os_str() == "-" => "stdin".to_string(),
@@ -156,11 +178,22 @@ pub fn run(args: &Args) -> Result<()> {
     let mut ingest = Ingest::new(log, &name, now_ms(), style)
         .with_context(|| format!("cannot start a run in {}", args.db.display()))?;
     ingest.set_summary_limit(args.max_summaries);
+    let mut publish = publish;
+    let mut publisher: Option<Publisher> = None;
+    let mut feed = None;
+    if publish.is_some() {
+        let (tx, rx) = std::sync::mpsc::channel();
+        ingest.set_feed(tx);
+        feed = Some(rx);
+    }
 
     let print = |line: &str| println!("{line}");
     let end = match (source, input) {
         (Some(source), _) => {
             let live = Live::start(&key, key_origin, &name, &args.db)?;
+            if let (Some((broker, topics)), Some(rx)) = (publish.take(), feed.take()) {
+                publisher = Some(start_publisher(broker, topics, args, ingest.run_id(), rx, Some(live.requester()))?);
+            }
             eprintln!("heatbound watch: {}", live.key_origin().describe());
             eprintln!(
                 "heatbound watch: commands (`heatbound ack`, `configure`, `new-run`) reach the controller through {}",
@@ -177,6 +210,9 @@ pub fn run(args: &Args) -> Result<()> {
             }
         }
         (None, Some(file)) => {
+            if let (Some((broker, topics)), Some(rx)) = (publish.take(), feed.take()) {
+                publisher = Some(start_publisher(broker, topics, args, ingest.run_id(), rx, None)?);
+            }
             // Bytes of the capture on stderr, unless the lines share the terminal.
             let size = file.metadata().map_or(0, |m| m.len());
             let bar = if args.quiet || !std::io::stdout().is_terminal() {
@@ -211,12 +247,15 @@ pub fn run(args: &Args) -> Result<()> {
         Err(e) => {
             // Close the run before reporting, so the log says where it ended.
             let _ = ingest.finish(now_ms());
+            finish_publisher(publisher);
             return Err(e.into());
         }
     };
     let totals = ingest
         .finish(now_ms())
-        .with_context(|| format!("cannot close the run in {}", args.db.display()))?;
+        .with_context(|| format!("cannot close the run in {}", args.db.display()));
+    finish_publisher(publisher);
+    let totals = totals?;
     if args.json {
         eprintln!("{}", link::closing_line(&totals, end, &args.db));
     } else {
@@ -224,4 +263,52 @@ pub fn run(args: &Args) -> Result<()> {
     }
     eprintln!("{}", heatbound_host::term::SAFETY_NOTE);
     Ok(())
+}
+
+/// Starts publishing run `run` of `args.db`; the publisher's news goes to
+/// stderr.
+fn start_publisher(
+    broker: Broker,
+    topics: Topics,
+    args: &Args,
+    run: i64,
+    feed: std::sync::mpsc::Receiver<heatbound_host::ingest::Logged>,
+    requests: Option<std::sync::mpsc::Sender<heatbound_host::downlink::Request>>,
+) -> Result<Publisher> {
+    let (tx, rx) = std::sync::mpsc::channel::<String>();
+    std::thread::spawn(move || {
+        for line in rx {
+            eprintln!("heatbound watch: {line}");
+        }
+    });
+    let config = PublishConfig {
+        broker,
+        topics,
+        db: args.db.clone(),
+        run,
+    };
+    Publisher::start(config, feed, requests, tx).context("cannot start publishing")
+}
+
+/// Publishes the rest of the run, waits for the broker, and says how it went.
+fn finish_publisher(publisher: Option<Publisher>) {
+    if let Some(p) = publisher {
+        let t = p.finish();
+        eprintln!(
+            "heatbound watch: published: {} records acknowledged by the broker, {} published again after a session was lost, {} sent again at a lab's request, {} lab commands relayed, {} refused{}",
+            t.acknowledged,
+            t.republished,
+            t.resent,
+            t.relayed,
+            t.refused,
+            if t.unacknowledged > 0 {
+                format!(
+                    "; {} not yet acknowledged: they stay in the log and go out when watch next publishes",
+                    t.unacknowledged
+                )
+            } else {
+                String::new()
+            }
+        );
+    }
 }
