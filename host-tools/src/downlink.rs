@@ -327,7 +327,8 @@ impl Downlink {
         {
             // Logged with what it claimed to be, and never written to the link.
             let run = ingest.run_id();
-            let detail = format!("refused {detail}: its seal does not verify under this watch's key");
+            let detail =
+                format!("refused {detail}: its seal does not verify under this watch's key");
             let log_id = ingest.log_mut().insert_command(
                 run,
                 now_ms(),

@@ -47,7 +47,7 @@ use heatbound::wire::{
     Reply, Summary,
 };
 
-use crate::store::{LinkErrorKind, LinkErrorRow, Log, Record, RunId, Stored, StoreError};
+use crate::store::{LinkErrorKind, LinkErrorRow, Log, Record, RunId, StoreError, Stored};
 
 /// How live lines are written.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

@@ -116,9 +116,12 @@ fn migrates_an_empty_database_and_reopens() {
             "commands",
             "events",
             "hellos",
+            "lab_sources",
             "link_errors",
+            "log_identity",
             "operator_actions",
             "outages",
+            "publications",
             "replies",
             "runs",
             "summaries"

@@ -143,8 +143,12 @@ fn audit_rig(args: &Args, rig: &str, config: &heatbound::config::RigConfig) -> R
         writeln!(stdout, "{text}").context("writing the report")?;
     } else {
         for (run, report) in &reports {
-            write!(stdout, "{}", report.text(&format!("{name}, rig {rig}, run {run}")))
-                .context("writing the report")?;
+            write!(
+                stdout,
+                "{}",
+                report.text(&format!("{name}, rig {rig}, run {run}"))
+            )
+            .context("writing the report")?;
             writeln!(stdout).context("writing the report")?;
         }
         let bad: Vec<String> = reports
@@ -153,7 +157,11 @@ fn audit_rig(args: &Args, rig: &str, config: &heatbound::config::RigConfig) -> R
             .map(|(run, _)| run.to_string())
             .collect();
         if bad.is_empty() {
-            writeln!(stdout, "rig {rig}: {} runs, every one trustworthy", reports.len())
+            writeln!(
+                stdout,
+                "rig {rig}: {} runs, every one trustworthy",
+                reports.len()
+            )
         } else {
             writeln!(
                 stdout,

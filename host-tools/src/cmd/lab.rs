@@ -85,24 +85,40 @@ pub fn run(args: &Args) -> Result<()> {
     let mut shown = Instant::now();
     let mut ticked = Instant::now();
     let mut backoff = Duration::from_millis(250);
+    let mut connected_once = false;
     while !STOP.load(Ordering::SeqCst) && deadline.is_none_or(|d| Instant::now() < d) {
         match connection.recv_timeout(Duration::from_millis(50)) {
             Ok(Ok(Event::Incoming(Packet::ConnAck(_)))) => {
                 backoff = Duration::from_millis(250);
                 if last_error.take().is_some() {
                     eprintln!("heatbound lab: broker {} is back", broker.url.name());
+                } else if !connected_once {
+                    eprintln!("heatbound lab: connected to {}", broker.url.name());
                 }
+                connected_once = true;
                 for leaf in [Leaf::Records, Leaf::Status] {
                     client
                         .try_subscribe(topics.every_rig(leaf), QoS::AtLeastOnce)
                         .context("cannot subscribe")?;
+                }
+                // What the broker held for the lab while it was away may be
+                // gone: every open run is asked for the rest.
+                for ask in collector.resync() {
+                    let _ = client.try_publish(
+                        topics.rig(&ask.rig, Leaf::Resend),
+                        QoS::AtLeastOnce,
+                        false,
+                        ask.body,
+                    );
                 }
             }
             Ok(Ok(Event::Incoming(Packet::Publish(p)))) => match topics.parse(&p.topic) {
                 Some((rig, Leaf::Records)) => collector
                     .take(&rig, &p.payload)
                     .with_context(|| format!("cannot log a record of rig {rig}"))?,
-                Some((rig, Leaf::Status)) => collector.overview.status(&rig, &p.payload),
+                Some((rig, Leaf::Status)) => collector
+                    .status(&rig, &p.payload)
+                    .with_context(|| format!("cannot log the status of rig {rig}"))?,
                 _ => {}
             },
             Ok(Ok(_)) => {}
@@ -120,7 +136,9 @@ pub fn run(args: &Args) -> Result<()> {
                 } else {
                     backoff
                 };
-                backoff = (backoff * 2).min(Duration::from_secs(5));
+                // Back soon: whatever the broker lost while the lab was away is
+                // asked for again only once it is back.
+                backoff = (backoff * 2).min(Duration::from_secs(1));
                 let until = Instant::now() + wait;
                 while Instant::now() < until && !STOP.load(Ordering::SeqCst) {
                     std::thread::sleep(Duration::from_millis(50));

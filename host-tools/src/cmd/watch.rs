@@ -192,7 +192,14 @@ pub fn run(args: &Args) -> Result<()> {
         (Some(source), _) => {
             let live = Live::start(&key, key_origin, &name, &args.db)?;
             if let (Some((broker, topics)), Some(rx)) = (publish.take(), feed.take()) {
-                publisher = Some(start_publisher(broker, topics, args, ingest.run_id(), rx, Some(live.requester()))?);
+                publisher = Some(start_publisher(
+                    broker,
+                    topics,
+                    args,
+                    ingest.run_id(),
+                    rx,
+                    Some(live.requester()),
+                )?);
             }
             eprintln!("heatbound watch: {}", live.key_origin().describe());
             eprintln!(
@@ -211,7 +218,14 @@ pub fn run(args: &Args) -> Result<()> {
         }
         (None, Some(file)) => {
             if let (Some((broker, topics)), Some(rx)) = (publish.take(), feed.take()) {
-                publisher = Some(start_publisher(broker, topics, args, ingest.run_id(), rx, None)?);
+                publisher = Some(start_publisher(
+                    broker,
+                    topics,
+                    args,
+                    ingest.run_id(),
+                    rx,
+                    None,
+                )?);
             }
             // Bytes of the capture on stderr, unless the lines share the terminal.
             let size = file.metadata().map_or(0, |m| m.len());

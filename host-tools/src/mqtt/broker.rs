@@ -24,7 +24,9 @@ pub const PASSWORD_ENV: &str = "HEATBOUND_MQTT_PASSWORD";
 #[non_exhaustive]
 pub enum BrokerError {
     /// The address is not `mqtt://HOST[:PORT]` or `mqtts://HOST[:PORT]`.
-    #[error("broker address {given:?}: {why} (give mqtt://HOST:PORT, or mqtts://HOST:PORT for TLS)")]
+    #[error(
+        "broker address {given:?}: {why} (give mqtt://HOST:PORT, or mqtts://HOST:PORT for TLS)"
+    )]
     Url {
         /// What was given.
         given: String,
@@ -192,8 +194,12 @@ fn read_private(path: &Path, what: &str) -> Result<Vec<u8>, BrokerError> {
         path: path.to_path_buf(),
         why,
     };
-    let meta = std::fs::metadata(path)
-        .map_err(|e| file_err(format!("cannot read the {what}: {}", crate::term::os_words(&e))))?;
+    let meta = std::fs::metadata(path).map_err(|e| {
+        file_err(format!(
+            "cannot read the {what}: {}",
+            crate::term::os_words(&e)
+        ))
+    })?;
     #[cfg(unix)]
     {
         use std::os::unix::fs::PermissionsExt;
@@ -207,8 +213,12 @@ fn read_private(path: &Path, what: &str) -> Result<Vec<u8>, BrokerError> {
     }
     #[cfg(not(unix))]
     let _ = meta;
-    std::fs::read(path)
-        .map_err(|e| file_err(format!("cannot read the {what}: {}", crate::term::os_words(&e))))
+    std::fs::read(path).map_err(|e| {
+        file_err(format!(
+            "cannot read the {what}: {}",
+            crate::term::os_words(&e)
+        ))
+    })
 }
 
 fn load_login(path: &Path) -> Result<Login, BrokerError> {
@@ -391,12 +401,11 @@ fn tls_config(
                 return Err(cert_err("no certificate in the file".into()));
             }
             let key_bytes = read_private(key, "client key")?;
-            let key_der = PrivateKeyDer::from_pem_slice(&key_bytes).map_err(|_| {
-                BrokerError::File {
+            let key_der =
+                PrivateKeyDer::from_pem_slice(&key_bytes).map_err(|_| BrokerError::File {
                     path: key.to_path_buf(),
                     why: "no PEM private key in the file".into(),
-                }
-            })?;
+                })?;
             builder
                 .with_client_auth_cert(chain, key_der)
                 .map_err(|e| cert_err(format!("the certificate and key do not go together: {e}")))

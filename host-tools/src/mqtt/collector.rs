@@ -73,8 +73,15 @@ struct Source {
     asked: Option<Instant>,
     asked_through: i64,
     hole_since: Option<Instant>,
+    /// The last row its watch says it published, when beyond the last
+    /// taken, and since when.
+    tail: Option<(i64, Instant)>,
     closed: bool,
 }
+
+/// Seconds a source may stay behind what its watch says it published
+/// before the rest is asked for (rows in flight arrive well within it).
+pub const TAIL_GRACE: Duration = Duration::from_secs(3);
 
 /// The lab's log and its sources.
 pub struct Collector {
@@ -113,6 +120,7 @@ impl Collector {
                     asked: None,
                     asked_through: -1,
                     hole_since: None,
+                    tail: None,
                     closed,
                 },
             );
@@ -164,7 +172,8 @@ impl Collector {
             Ok(r) => r,
             Err(e) => {
                 self.totals.refused += 1;
-                self.overview.note(rig, format!("a message that is no record: {e}"));
+                self.overview
+                    .note(rig, format!("a message that is no record: {e}"));
                 return Ok(());
             }
         };
@@ -200,6 +209,42 @@ impl Collector {
         }
         self.apply(&key, record)?;
         self.take_held(&key)
+    }
+
+    /// Takes the retained status of `rig`: the overview's state, and how
+    /// far its watch has published, so that a lab that lost the last rows
+    /// of a run (a broker restarted without them) asks for them.
+    pub fn status(&mut self, rig: &str, payload: &[u8]) -> Result<(), StoreError> {
+        self.overview.status(rig, payload);
+        #[derive(serde::Deserialize)]
+        struct Status {
+            log: i64,
+            run: i64,
+            last_ord: i64,
+        }
+        let Ok(st) = serde_json::from_slice::<Status>(payload) else {
+            return Ok(());
+        };
+        let key = SourceKey {
+            rig: rig.to_string(),
+            log_id: st.log,
+            source_run: st.run,
+        };
+        if st.last_ord < 0 {
+            return Ok(());
+        }
+        if !self.sources.contains_key(&key) {
+            self.add_source(&key, now_ms())?;
+        }
+        if let Some(src) = self.sources.get_mut(&key) {
+            if st.last_ord > src.lab.last_ord && !src.closed {
+                let since = src.tail.map_or_else(Instant::now, |(_, t)| t);
+                src.tail = Some((st.last_ord, since));
+            } else {
+                src.tail = None;
+            }
+        }
+        Ok(())
     }
 
     /// Takes the held records that now follow on.
@@ -253,6 +298,7 @@ impl Collector {
                 asked: None,
                 asked_through: -1,
                 hole_since: None,
+                tail: None,
                 closed: false,
             },
         );
@@ -279,7 +325,10 @@ impl Collector {
                 src.closed = true;
                 let mut r = Ok(());
                 for o in outages {
-                    r = r.and_then(|()| src.ingest.log_outage(o.started_host_ms, o.ended_host_ms, &o.reason));
+                    r = r.and_then(|()| {
+                        src.ingest
+                            .log_outage(o.started_host_ms, o.ended_host_ms, &o.reason)
+                    });
                 }
                 r.and_then(|()| src.ingest.close(record.host_ms).map(|_| ()))
             }
@@ -308,6 +357,28 @@ impl Collector {
         let mut asks = Vec::new();
         let mut give_up = Vec::new();
         for (key, src) in &mut self.sources {
+            if let Some((tail, since)) = src.tail {
+                if tail <= src.lab.last_ord || src.closed {
+                    src.tail = None;
+                } else if src.held.is_empty()
+                    && since.elapsed() >= TAIL_GRACE
+                    && src.asked.is_none_or(|t| t.elapsed() >= ASK_EVERY)
+                {
+                    src.asked = Some(Instant::now());
+                    src.asked_through = src.asked_through.max(tail);
+                    self.totals.resend_requests += 1;
+                    asks.push(ResendAsk {
+                        rig: key.rig.clone(),
+                        body: serde_json::json!({
+                            "log": key.log_id,
+                            "run": key.source_run,
+                            "after_ord": src.lab.last_ord,
+                            "through_ord": tail,
+                        })
+                        .to_string(),
+                    });
+                }
+            }
             let Some((_, first)) = src.held.first_key_value() else {
                 continue;
             };
@@ -352,6 +423,31 @@ impl Collector {
             self.take_held(&key)?;
         }
         Ok(asks)
+    }
+
+    /// After a connection to the broker (which may have lost what it held
+    /// for the lab while it was away): asks every open source for all its
+    /// rows after the last one taken, and for its end if it has one.
+    pub fn resync(&mut self) -> Vec<ResendAsk> {
+        let mut asks = Vec::new();
+        for (key, src) in &mut self.sources {
+            if src.closed {
+                continue;
+            }
+            src.asked = Some(Instant::now());
+            self.totals.resend_requests += 1;
+            asks.push(ResendAsk {
+                rig: key.rig.clone(),
+                body: serde_json::json!({
+                    "log": key.log_id,
+                    "run": key.source_run,
+                    "after_ord": src.lab.last_ord,
+                    "through_ord": i64::MAX,
+                })
+                .to_string(),
+            });
+        }
+        asks
     }
 
     /// Commits and closes every run still open (the lab stops).

@@ -67,11 +67,14 @@ impl Overview {
                     .filter(|r| s.alarms & (1 << r.index()) != 0)
                     .map(RuleId::as_str)
                     .collect();
-                view.check = s.verdict.consistent.map(|ok| match (ok, s.verdict.suspect) {
-                    (true, _) => "consistent".to_string(),
-                    (false, Some(c)) => format!("suspect {}", c.name()),
-                    (false, None) => "inconsistent".to_string(),
-                });
+                view.check = s
+                    .verdict
+                    .consistent
+                    .map(|ok| match (ok, s.verdict.suspect) {
+                        (true, _) => "consistent".to_string(),
+                        (false, Some(c)) => format!("suspect {}", c.name()),
+                        (false, None) => "inconsistent".to_string(),
+                    });
             }
             _ => {}
         }

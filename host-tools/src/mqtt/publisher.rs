@@ -298,7 +298,11 @@ impl State {
         for i in 0..self.runs.len() {
             self.learn_rig(i);
         }
-        let live = self.runs.iter().find(|r| r.live).and_then(|r| r.rig.clone());
+        let live = self
+            .runs
+            .iter()
+            .find(|r| r.live)
+            .and_then(|r| r.rig.clone());
         live.or_else(|| self.runs.iter().find_map(|r| r.rig.clone()))
     }
 
@@ -363,7 +367,10 @@ impl State {
         self.say(format!(
             "publish: rig {rig} to {} (topics under {}), as {client_id}",
             self.config.broker.url.name(),
-            self.config.topics.rig(&rig, Leaf::Records).trim_end_matches("/records")
+            self.config
+                .topics
+                .rig(&rig, Leaf::Records)
+                .trim_end_matches("/records")
         ));
         let mut connected = false;
         let mut backoff = Duration::from_millis(250);
@@ -448,7 +455,7 @@ impl State {
                         backoff
                     };
                     self.sleep_draining(wait, stop);
-                    backoff = (backoff * 2).min(Duration::from_secs(5));
+                    backoff = (backoff * 2).min(Duration::from_secs(2));
                 }
             }
             self.publish_totals();
@@ -486,9 +493,7 @@ impl State {
     }
 
     fn all_done(&self) -> bool {
-        self.in_flight.is_empty()
-            && self.resends.is_empty()
-            && self.runs.iter().all(|r| r.end_sent || r.ended.is_none())
+        self.in_flight.is_empty() && self.resends.is_empty() && self.runs.iter().all(|r| r.end_sent)
     }
 
     /// Takes what the feed has. A closed feed means the live run ended:
@@ -568,9 +573,8 @@ impl State {
         }
         // A run read to its end whose records are all acknowledged is done.
         let in_flight = &self.in_flight;
-        self.runs.retain(|c| {
-            !(c.end_sent && !c.live && !in_flight.iter().any(|f| f.run == c.run))
-        });
+        self.runs
+            .retain(|c| !(c.end_sent && !c.live && !in_flight.iter().any(|f| f.run == c.run)));
     }
 
     /// Hands records to rumqttc while the window has room.
@@ -584,9 +588,27 @@ impl State {
                 .read
                 .records_after(job.run, job.after, 256)
                 .unwrap_or_default();
-            let rows: Vec<_> = rows.into_iter().filter(|(o, _)| *o <= job.through).collect();
+            let rows: Vec<_> = rows
+                .into_iter()
+                .filter(|(o, _)| *o <= job.through)
+                .collect();
             if rows.is_empty() {
+                // Past a finished run's last row: its end too, so that the
+                // lab can close the run.
+                let (run, after, through, rig) = (job.run, job.after, job.through, job.rig.clone());
                 self.resends.pop_front();
+                let live = run == self.config.run && self.feed.is_some();
+                let asked_past_end = through > after;
+                if !live && asked_past_end {
+                    let record = self.end_record(run, after);
+                    let topic = self.config.topics.rig(&rig, Leaf::Records);
+                    if client
+                        .try_publish(topic, QoS::AtLeastOnce, false, record.encode())
+                        .is_ok()
+                    {
+                        self.unnumbered.push_back(Tag::Other);
+                    }
+                }
                 continue;
             }
             let (run, rig) = (job.run, job.rig.clone());
@@ -616,7 +638,12 @@ impl State {
             let topics = &self.config.topics;
             let bytes = record.encode();
             if client
-                .try_publish(topics.rig(&rig, Leaf::Records), QoS::AtLeastOnce, false, bytes)
+                .try_publish(
+                    topics.rig(&rig, Leaf::Records),
+                    QoS::AtLeastOnce,
+                    false,
+                    bytes,
+                )
                 .is_err()
             {
                 // rumqttc's queue is full: the cursor did not move, try later.
@@ -725,36 +752,46 @@ impl State {
                 // Caught up: what comes next is not committed yet.
                 return None;
             }
-            if let Some(end) = c.ended {
-                c.end_sent = true;
-                let outages = self
-                    .read
-                    .outages(c.run)
-                    .unwrap_or_default()
-                    .into_iter()
-                    .map(|o| Outage {
-                        started_host_ms: o.started_host_ms,
-                        ended_host_ms: o.ended_host_ms,
-                        reason: o.reason,
-                    })
-                    .collect();
-                let record = Record {
-                    log_id,
-                    run: c.run,
-                    ord: c.sent + 1,
-                    prev_ord: c.sent,
-                    host_ms: end,
-                    body: Body::End(outages),
-                };
-                c.sent += 1;
-                return Some((rig, record, None));
-            }
-            // A run its writer never closed (a watch that was killed):
-            // everything it holds is out; nothing more will come.
+            // A run its writer closed, or one it never closed (a watch that
+            // was killed): everything it holds is out, and its end says so,
+            // so that a lab missing its last rows asks for them.
             c.end_sent = true;
-            i += 1;
+            let (run, prev, ended) = (c.run, c.sent, c.ended);
+            c.sent += 1;
+            let record = self.end_record_at(run, prev, ended);
+            return Some((rig, record, None));
         }
         None
+    }
+
+    /// The end record of `run`, after its last row `prev`.
+    fn end_record(&self, run: RunId, prev: i64) -> Record {
+        let ended = self.read.run_ended(run).ok().flatten();
+        self.end_record_at(run, prev, ended)
+    }
+
+    /// The end record of `run`, after `prev`, ended at `ended` (or now, for
+    /// a run its writer never closed).
+    fn end_record_at(&self, run: RunId, prev: i64, ended: Option<i64>) -> Record {
+        let outages = self
+            .read
+            .outages(run)
+            .unwrap_or_default()
+            .into_iter()
+            .map(|o| Outage {
+                started_host_ms: o.started_host_ms,
+                ended_host_ms: o.ended_host_ms,
+                reason: o.reason,
+            })
+            .collect();
+        Record {
+            log_id: self.log_id,
+            run,
+            ord: prev + 1,
+            prev_ord: prev,
+            host_ms: ended.unwrap_or_else(now_ms),
+            body: Body::End(outages),
+        }
     }
 
     fn subscribe(&mut self, client: &Client, rig: &str) {
@@ -775,18 +812,24 @@ impl State {
         let due = match self.status_sent {
             None => true,
             Some((at, last)) => {
-                now || (at.elapsed() >= Duration::from_secs(5) && last != self.last_frame_ms)
+                now || (at.elapsed() >= Duration::from_secs(2) && last != self.last_frame_ms)
             }
         };
         if !due {
             return;
         }
+        let last_ord = self
+            .runs
+            .iter()
+            .find(|c| c.run == self.config.run)
+            .map_or(-1, |c| c.sent);
         let body = json!({
             "state": "online",
             "rig": rig,
             "last_frame_host_ms": self.last_frame_ms,
             "log": self.log_id,
             "run": self.config.run,
+            "last_ord": last_ord,
             "watch_pid": std::process::id(),
             "tool_version": env!("CARGO_PKG_VERSION"),
         });
@@ -828,7 +871,9 @@ impl State {
                 if ask.log != self.log_id {
                     return;
                 }
-                let through = ask.through_ord.min(ask.after_ord.saturating_add(MAX_RESEND));
+                let through = ask
+                    .through_ord
+                    .min(ask.after_ord.saturating_add(MAX_RESEND));
                 if self.resends.len() >= 64 || through <= ask.after_ord {
                     return;
                 }
@@ -903,8 +948,16 @@ impl State {
         }
     }
 
-    fn command_result(&mut self, client: &Client, rig: &str, counter: u32, outcome: &str, words: &str) {
-        let body = json!({"counter": counter, "outcome": outcome, "message": words, "host_ms": now_ms()});
+    fn command_result(
+        &mut self,
+        client: &Client,
+        rig: &str,
+        counter: u32,
+        outcome: &str,
+        words: &str,
+    ) {
+        let body =
+            json!({"counter": counter, "outcome": outcome, "message": words, "host_ms": now_ms()});
         if client
             .try_publish(
                 self.config.topics.rig(rig, Leaf::CommandResult),

@@ -255,7 +255,9 @@ impl Record {
             ),
             Body::End(outages) => (
                 3,
-                serde_json::json!({ "outages": outages }).to_string().into_bytes(),
+                serde_json::json!({ "outages": outages })
+                    .to_string()
+                    .into_bytes(),
             ),
         };
         let mut out = Vec::with_capacity(HEADER_LEN + body.len());

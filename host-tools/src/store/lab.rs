@@ -8,7 +8,7 @@
 //! ```
 use rusqlite::{OptionalExtension as _, params};
 
-use super::{FRAMES_PAGE, LinkErrorKind, LinkErrorRow, Log, RunId, Stored, StoreError};
+use super::{FRAMES_PAGE, LinkErrorKind, LinkErrorRow, Log, RunId, StoreError, Stored};
 
 /// One published run of a watch log.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -129,8 +129,8 @@ impl Log {
         Ok(())
     }
 
-    /// The runs published to `broker` with rows the broker has not yet
-    /// acknowledged, oldest first (and, if given, `also`, whatever its
+    /// The runs published to `broker` whose rows, or whose end record, the
+    /// broker has not yet acknowledged, oldest first (and, if given, `also`, whatever its
     /// state).
     pub fn publications(
         &self,
@@ -164,7 +164,8 @@ impl Log {
             .map_err(|e| self.err("cannot read the publications", e))?;
         Ok(rows
             .into_iter()
-            .filter(|p| p.acked_ord < p.last_ord || Some(p.run) == also)
+            // Done once the run's end record (ord = last + 1) is acknowledged.
+            .filter(|p| p.acked_ord <= p.last_ord || Some(p.run) == also)
             .collect())
     }
 
