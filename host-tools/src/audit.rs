@@ -259,8 +259,14 @@ pub struct Integrity {
     pub run_closed: Option<bool>,
     /// Where the record ends, when the run was never closed.
     pub record_ends_early: Option<RecordEnd>,
-    /// A Hello arrived before the first summary.
+    /// A Hello arrived before the first summary, or the first Hello came
+    /// after it in the same device session (see `summaries_before_hello`).
     pub hello_before_first_summary: bool,
+    /// Summaries logged before the run's first Hello that belong to that
+    /// Hello's device session (the sequence goes on across it, no restart):
+    /// a log started while the controller was already running. They are
+    /// checked with that Hello's settings.
+    pub summaries_before_hello: u64,
     /// Whether the latest Hello's config digest matches the configuration
     /// the alarm checks assume; `None` without a Hello.
     pub config_digest_matches: Option<bool>,
@@ -790,11 +796,12 @@ pub fn audit_with_progress(
             }
         }
         let placeholder = placeholders.next_if_eq(&i).is_some();
-        auditor.frame(&r.frame, !placeholder);
+        auditor.offer(&r.frame, !placeholder);
         if r.host_ms.is_some() {
             auditor.last_host_ms = r.host_ms;
         }
     }
+    auditor.release_early(false);
     auditor.take_held_hello();
     if let Some(bar) = progress {
         bar.set_position(u64::try_from(input.frames.len()).unwrap_or(u64::MAX));
@@ -840,6 +847,29 @@ struct Auditor<'c> {
     last_host_ms: Option<i64>,
     /// Raw device time of the latest frame that has one.
     last_t_ms: Option<u32>,
+    /// Frames before the run's first Hello, held until it is known whether
+    /// that Hello's session is theirs.
+    early: Early,
+}
+
+/// The most frames held before a run's first Hello: a controller answers a
+/// Hello request within a second or two, so a log that started while it ran
+/// has a handful; past this many, they are checked as they are.
+const EARLY_CAP: usize = 4096;
+
+/// Frames before the first Hello of a run that starts with summaries.
+#[derive(Debug, Default)]
+struct Early {
+    /// Holding is over (a Hello came first, or the held frames went on).
+    done: bool,
+    /// The frames, in arrival order.
+    held: Vec<(Frame, bool)>,
+    /// Where the first Hello is in `held`.
+    hello_at: Option<usize>,
+    /// The last held summary's sequence number before the Hello.
+    last_seq: Option<u16>,
+    /// Its device time, ms.
+    last_t_ms: u32,
 }
 
 impl<'c> Auditor<'c> {
@@ -878,6 +908,86 @@ impl<'c> Auditor<'c> {
             min_step_ms: None,
             last_host_ms: None,
             last_t_ms: None,
+            early: Early::default(),
+        }
+    }
+
+    /// One frame of the run, in arrival order. A run whose first Hello
+    /// comes after summaries (its log began while the controller was
+    /// running) is held until the summary after that Hello shows whether
+    /// the sequence went on (the same session: the Hello's settings hold
+    /// for the summaries before it too) or started over (a restart: the
+    /// early summaries' settings are unknown).
+    fn offer(&mut self, frame: &Frame, trusted: bool) {
+        if self.early.done {
+            return self.frame(frame, trusted);
+        }
+        let e = &mut self.early;
+        match frame {
+            Frame::Hello(_) if e.held.is_empty() => {
+                e.done = true;
+                return self.frame(frame, trusted);
+            }
+            Frame::Hello(_) if e.hello_at.is_none() => e.hello_at = Some(e.held.len()),
+            Frame::Summary(s) => match (e.hello_at, e.last_seq) {
+                (Some(_), Some(last)) => {
+                    // The same session: the sequence and the device clock
+                    // both went on across the Hello.
+                    let on = (1..0x8000).contains(&s.seq.wrapping_sub(last))
+                        && s.t_ms.wrapping_sub(e.last_t_ms) < 0x8000_0000;
+                    e.held.push((frame.clone(), trusted));
+                    return self.release_early(on);
+                }
+                (None, Some(last)) if s.seq.wrapping_sub(last) >= 0x8000 => {
+                    // Went back with no Hello: a restart, held no longer.
+                    e.held.push((frame.clone(), trusted));
+                    return self.release_early(false);
+                }
+                (None, _) => {
+                    e.last_seq = Some(s.seq);
+                    e.last_t_ms = s.t_ms;
+                }
+                (Some(_), None) => {}
+            },
+            Frame::Event(_) | Frame::Reply(_) | Frame::Hello(_) => {}
+        }
+        if e.held.is_empty() && !matches!(frame, Frame::Summary(_)) {
+            // Nothing held yet: only a summary before a Hello starts holding.
+            return self.frame(frame, trusted);
+        }
+        e.held.push((frame.clone(), trusted));
+        if e.held.len() > EARLY_CAP {
+            self.release_early(false);
+        }
+    }
+
+    /// Checks the held frames: with `same_session`, the Hello first (its
+    /// settings hold for all of them), else in arrival order.
+    fn release_early(&mut self, same_session: bool) {
+        self.early.done = true;
+        let held = std::mem::take(&mut self.early.held);
+        let hello_at = self.early.hello_at.take();
+        match hello_at.filter(|_| same_session) {
+            Some(at) => {
+                self.integrity.summaries_before_hello = held
+                    .iter()
+                    .take(at)
+                    .filter(|(f, _)| matches!(f, Frame::Summary(_)))
+                    .count() as u64;
+                if let Some((hello, trusted)) = held.get(at) {
+                    self.frame(hello, *trusted);
+                }
+                for (i, (f, trusted)) in held.iter().enumerate() {
+                    if i != at {
+                        self.frame(f, *trusted);
+                    }
+                }
+            }
+            None => {
+                for (f, trusted) in &held {
+                    self.frame(f, *trusted);
+                }
+            }
         }
     }
 
@@ -1583,6 +1693,14 @@ impl Report {
         );
         for p in &g.problems {
             let _ = writeln!(o, "  - {p}");
+        }
+        if g.summaries_before_hello > 0 {
+            let _ = writeln!(
+                o,
+                "  {} summaries before the first Hello (the log began while the controller ran): \
+                 checked with that Hello's settings, the same session",
+                g.summaries_before_hello
+            );
         }
         match g.config_digest_matches {
             Some(true) => {

@@ -33,7 +33,7 @@ enum Command {
     Chart(cmd::chart::Args),
     /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited and charted.
     Demo(cmd::demo::Args),
-    /// Acknowledge an alarm on the controller, through the running `watch`.
+    /// Acknowledge an alarm on the controller, through the running `watch`, or from the lab through the MQTT broker.
     Ack(cmd::operate::AckArgs),
     /// Send a new configuration (rig.toml) to the controller, through the running `watch`.
     Configure(cmd::operate::ConfigureArgs),

@@ -242,3 +242,54 @@ fn crafted_values_never_panic_and_never_pass() {
         eprintln!("{case}: exit {code:?} {}", stderr.trim());
     }
 }
+
+/// Moves the run's first Hello to just after its fifth summary: a log that
+/// began while the controller was already running, and got its Hello when
+/// it asked. Every row's ord is spread out first to make room.
+fn hello_after_five_summaries(db: &Path) {
+    sql(
+        db,
+        // Through negative values: no two rows share an ord on the way.
+        "UPDATE summaries SET ord = -ord * 10; UPDATE summaries SET ord = -ord;
+         UPDATE events SET ord = -ord * 10; UPDATE events SET ord = -ord;
+         UPDATE link_errors SET ord = -ord * 10; UPDATE link_errors SET ord = -ord;
+         UPDATE replies SET ord = -ord * 10; UPDATE replies SET ord = -ord;
+         UPDATE hellos SET ord = -ord * 10; UPDATE hellos SET ord = -ord;
+         UPDATE hellos SET ord = (SELECT ord + 5 FROM summaries ORDER BY ord LIMIT 1 OFFSET 4)
+           WHERE ord = (SELECT min(ord) FROM hellos);",
+    );
+}
+
+#[test]
+fn summaries_before_the_first_hello_of_the_same_session_are_checked_with_it() {
+    let dir = TempDir::new().expect("temp dir");
+    let db = logged(&dir, 60);
+    hello_after_five_summaries(&db);
+    let (code, r) = audit_json(&db);
+    assert_eq!(code, 0, "{r:#}");
+    assert_eq!(r["integrity"]["summaries_before_hello"], 5, "{r:#}");
+    assert_eq!(r["integrity"]["hello_before_first_summary"], true);
+}
+
+#[test]
+fn summaries_before_a_hello_that_starts_over_have_unknown_settings() {
+    // The same, but the five early summaries' sequence runs far ahead of
+    // the ones after the Hello: the controller restarted at that Hello, so
+    // the early ones are of a session whose settings no Hello gave.
+    let dir = TempDir::new().expect("temp dir");
+    let db = logged(&dir, 60);
+    hello_after_five_summaries(&db);
+    sql(
+        &db,
+        "UPDATE summaries SET seq = seq + 30000
+           WHERE ord < (SELECT min(ord) FROM hellos);",
+    );
+    let (code, r) = audit_json(&db);
+    assert_ne!(code, 0, "{r:#}");
+    assert_eq!(r["integrity"]["summaries_before_hello"], 0, "{r:#}");
+    assert!(
+        problems(&r).contains("no Hello before the first summary"),
+        "{}",
+        problems(&r)
+    );
+}

@@ -444,17 +444,62 @@ fn three_rigs_a_broker_restart_and_a_watch_restart_lose_nothing() {
         "heatbound/rigs/rig-1/command-result",
     );
     assert!(answer.contains("\"outcome\":\"refused\""), "{answer}");
-    // One sealed with the rig's key reaches the controller and is answered.
-    let genuine = sealed_ack(&root.join("rig-3.sqlite"), &CommandKey::DEMO);
-    let answer = publish_and_wait(
-        broker.port,
-        "heatbound/rigs/rig-3/command",
-        genuine,
-        "heatbound/rigs/rig-3/command-result",
-    );
+    // From the lab, `ack --broker` seals with the rig's key for the session
+    // the rig's retained status names; the controller applies it.
+    let out = heatbound()
+        .args([
+            "ack",
+            "--broker",
+            &url,
+            "--rig",
+            "rig-3",
+            "--timeout-s",
+            "30",
+        ])
+        .env("HEATBOUND_MQTT_USER", USER)
+        .env("HEATBOUND_MQTT_PASSWORD", PASSWORD)
+        .env_remove("HEATBOUND_KEY_FILE")
+        .output()
+        .unwrap();
+    let said = String::from_utf8_lossy(&out.stdout);
     assert!(
-        !answer.contains("refused") && !answer.contains("no_link"),
-        "a genuine command should reach the controller: {answer}"
+        out.status.success() && said.contains("acknowledge all") && said.contains(": applied"),
+        "a genuine acknowledge from the lab should be applied: {said} {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // The rig's own log holds it, relayed from the lab and applied.
+    let applied: i64 = read_only(&root.join("rig-3.sqlite"))
+        .query_row(
+            "SELECT count(*) FROM commands WHERE origin LIKE 'lab via %' AND outcome = 'applied'",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(
+        applied, 1,
+        "the lab's acknowledge is in rig-3's log, applied"
+    );
+    // A second one right after: the status has caught up with the counter.
+    std::thread::sleep(Duration::from_secs(3));
+    let again = heatbound()
+        .args([
+            "ack",
+            "--broker",
+            &url,
+            "--rig",
+            "rig-3",
+            "--timeout-s",
+            "30",
+        ])
+        .env("HEATBOUND_MQTT_USER", USER)
+        .env("HEATBOUND_MQTT_PASSWORD", PASSWORD)
+        .env_remove("HEATBOUND_KEY_FILE")
+        .output()
+        .unwrap();
+    assert!(
+        again.status.success(),
+        "{}",
+        String::from_utf8_lossy(&again.stdout)
     );
 
     // While every watch still runs (and can answer), the lab catches up
@@ -539,41 +584,22 @@ fn three_rigs_a_broker_restart_and_a_watch_restart_lose_nothing() {
             .output()
             .unwrap();
         let text = String::from_utf8_lossy(&audit.stdout);
-        if rig != "rig-2" {
-            assert!(audit.status.success(), "audit --rig {rig}:\n{text}");
-            assert!(text.contains("every one trustworthy"), "{text}");
-            continue;
+        assert!(audit.status.success(), "audit --rig {rig}:\n{text}");
+        assert!(text.contains("every one trustworthy"), "{text}");
+        if rig == "rig-2" {
+            // The restarted watch joined the stream between a summary and
+            // the Hello it asked for: the summaries before that Hello are
+            // the same controller session, checked with its settings, in
+            // the rig's own log as in the lab's.
+            assert!(text.contains("rig rig-2, run"), "{text}");
+            let own = heatbound()
+                .args(["audit", "--run", "2"])
+                .arg(root.join("rig-2.sqlite"))
+                .output()
+                .unwrap();
+            let own_text = String::from_utf8_lossy(&own.stdout);
+            assert!(own.status.success(), "rig-2's own log, run 2:\n{own_text}");
         }
-        // The restarted watch joined the stream between a summary and the
-        // Hello it asked for: its own log's run starts with a summary
-        // before any Hello, and the lab's copy says exactly the same, no
-        // more. The killed watch's run, closed by its end record, passes.
-        let own = heatbound()
-            .args(["audit", "--run", "2"])
-            .arg(root.join("rig-2.sqlite"))
-            .output()
-            .unwrap();
-        let own_text = String::from_utf8_lossy(&own.stdout);
-        let fails: Vec<&str> = text.lines().filter(|l| l.contains("FAIL")).collect();
-        let own_fails: Vec<&str> = own_text.lines().filter(|l| l.contains("FAIL")).collect();
-        assert_eq!(
-            fails, own_fails,
-            "the lab's audit of the restarted run differs:\n{text}\n{own_text}"
-        );
-        let problems: Vec<&str> = text
-            .lines()
-            .filter(|l| l.starts_with("  - ") && !l.contains("before any Hello"))
-            .collect();
-        assert!(
-            problems
-                .iter()
-                .all(|l| l.contains("no Hello before the first summary")),
-            "{text}"
-        );
-        assert!(
-            text.contains("run 1\n") || text.contains("rig rig-2, run"),
-            "{text}"
-        );
     }
     // The forged command is in rig-1's log, refused, and never sent.
     let refused: i64 = read_only(&root.join("rig-1.sqlite"))

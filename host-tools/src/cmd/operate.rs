@@ -7,13 +7,22 @@
 //!     --> controller --> Reply --> one line; exit 0 applied, 1 refused, 2 not reached
 //! ```
 //!
-//! The key stays with the `watch`: these commands never read it.
+//! The key stays with the `watch`: these commands never read it. The one
+//! exception is `ack --broker`, from the lab: there is no local `watch`, so
+//! the command is sealed here with the rig's key (`--key-file`) and carried
+//! by the broker to the rig's `watch --publish`
+//! ([`heatbound_host::mqtt::remote`]).
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use anyhow::{Result, bail};
 use heatbound::alarm::RuleId;
-use heatbound::wire::Hello;
+use heatbound::wire::{Command, Hello};
 use heatbound_host::control::{self, WireAnswer, WireAsk, WireRequest};
+use heatbound_host::keyfile;
+use heatbound_host::mqtt::broker::{Broker, BrokerArgs};
+use heatbound_host::mqtt::remote;
+use heatbound_host::mqtt::topics::Topics;
 
 const EXIT_STATUS: &str = "Exit status: 0 when the controller applied the command, 1 when it \
 refused it (the reason is printed), 2 when no watch or no controller could be reached.";
@@ -42,6 +51,19 @@ pub struct AckArgs {
     pub rule: Option<RuleId>,
     #[command(flatten)]
     pub target: Target,
+    /// From the lab: send it through this MQTT broker (mqtt://HOST:PORT or
+    /// mqtts://) to the `watch --publish` of --rig, sealed here with the
+    /// rig's key.
+    #[arg(long, value_name = "URL", requires = "rig", conflicts_with = "socket")]
+    pub broker: Option<String>,
+    /// With --broker: the rig's command key, a file of 64 hex digits
+    /// readable by you alone (default: $HEATBOUND_KEY_FILE, else the public
+    /// demo key).
+    #[arg(long, value_name = "FILE", requires = "broker")]
+    pub key_file: Option<PathBuf>,
+    /// With --broker: how to reach it.
+    #[command(flatten)]
+    pub connection: BrokerArgs,
 }
 
 /// Arguments of `heatbound configure`.
@@ -76,7 +98,54 @@ pub fn ack(args: &AckArgs) -> Result<()> {
         Some(rule) => format!("acknowledge {rule}"),
         None => "acknowledge all".to_string(),
     };
+    if let Some(url) = &args.broker {
+        return ack_through_broker(args, url, &what);
+    }
     send(&args.target, "ack", WireAsk::Ack { rule: args.rule }, &what)
+}
+
+/// `ack --broker`: seals the acknowledge for the rig's controller session
+/// (from the rig's retained status) and waits for its watch's answer.
+fn ack_through_broker(args: &AckArgs, url: &str, what: &str) -> Result<()> {
+    let t = args.target.timeout_s;
+    if !(t.is_finite() && t > 0.0 && t <= 3600.0) {
+        bail!("--timeout-s {t}: must be a number of seconds in (0, 3600]");
+    }
+    let Some(rig) = args.target.rig.as_deref() else {
+        bail!("--broker needs --rig: the rig to send the acknowledge to");
+    };
+    let broker = Broker::new(url, &args.connection)?;
+    let topics = Topics::new(&args.connection.topic_root).map_err(anyhow::Error::msg)?;
+    let (key, origin) = keyfile::resolve(args.key_file.as_deref())?;
+    eprintln!("heatbound ack: {}", origin.describe());
+    let outcome = remote::send(
+        &broker,
+        &topics,
+        rig,
+        &key,
+        Command::Acknowledge(args.rule),
+        Duration::from_secs_f64(t),
+    )?;
+    let line = format!(
+        "rig {rig}: {what} (command {} through {}): {}{}",
+        outcome.counter,
+        broker.url.name(),
+        outcome.outcome,
+        if outcome.message.is_empty() {
+            String::new()
+        } else {
+            format!(": {}", outcome.message)
+        }
+    );
+    if outcome.applied() {
+        println!("{line}");
+        Ok(())
+    } else if outcome.answered() || outcome.outcome == "refused" {
+        println!("{line}");
+        std::process::exit(1)
+    } else {
+        bail!("{line}")
+    }
 }
 
 /// Runs `heatbound configure`.

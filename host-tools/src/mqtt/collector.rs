@@ -77,6 +77,8 @@ struct Source {
     /// taken, and since when.
     tail: Option<(i64, Instant)>,
     closed: bool,
+    /// Its Hellos named another rig than its topic (said once).
+    misnamed: bool,
 }
 
 /// Seconds a source may stay behind what its watch says it published
@@ -122,6 +124,7 @@ impl Collector {
                     hole_since: None,
                     tail: None,
                     closed,
+                    misnamed: false,
                 },
             );
         }
@@ -300,6 +303,7 @@ impl Collector {
                 hole_since: None,
                 tail: None,
                 closed: false,
+                misnamed: false,
             },
         );
         Ok(())
@@ -341,6 +345,20 @@ impl Collector {
         self.log.save_lab_source(&src.lab, now)?;
         while let Ok(o) = src.observed.try_recv() {
             if let Observed::Frame { frame, host_ms } = o {
+                if let heatbound::wire::Frame::Hello(h) = &frame
+                    && h.rig_id.as_str() != key.rig
+                    && !src.misnamed
+                {
+                    // Logged as received; the engineer is told which is which.
+                    src.misnamed = true;
+                    self.overview.note(
+                        &key.rig,
+                        format!(
+                            "its controller's Hello names rig {:?}: two rigs may share the id, or the watch was given the wrong log",
+                            h.rig_id.as_str()
+                        ),
+                    );
+                }
                 self.overview.frame(&key.rig, &frame, host_ms);
             }
         }
@@ -468,5 +486,52 @@ impl Collector {
         }
         self.log.commit()?;
         Ok(self.totals())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use heatbound::config::RigConfig;
+    use heatbound::wire::{Frame, Hello, RigId};
+
+    use super::*;
+    use crate::mqtt::publisher::frame_bytes;
+
+    fn hello_record(rig: &str, ord: i64) -> Vec<u8> {
+        let hello = Hello::from_config(
+            RigId::new(rig).unwrap_or_default(),
+            (0, 1, 0),
+            100,
+            &RigConfig::default(),
+        );
+        Record {
+            log_id: 5,
+            run: 1,
+            ord,
+            prev_ord: ord - 1,
+            host_ms: now_ms(),
+            body: Body::Frame(frame_bytes(&Frame::Hello(hello))),
+        }
+        .encode()
+    }
+
+    #[test]
+    fn a_hello_naming_another_rig_is_logged_and_said_once() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let mut c = Collector::open(&dir.path().join("lab.sqlite"), Duration::from_secs(5))
+            .expect("open the lab log");
+        c.take("rig-a", &hello_record("rig-a", 0)).expect("take");
+        let note = |c: &Collector| {
+            c.overview
+                .rigs()
+                .find(|(r, _)| r.as_str() == "rig-a")
+                .and_then(|(_, v)| v.note.clone())
+        };
+        assert_eq!(note(&c), None, "its own name: nothing to say");
+        c.take("rig-a", &hello_record("rig-b", 1)).expect("take");
+        let said = note(&c).expect("a note on rig-a");
+        assert!(said.contains("\"rig-b\""), "{said}");
+        // Nothing is dropped: both Hellos are in the lab log.
+        assert_eq!(c.totals().taken, 2);
     }
 }

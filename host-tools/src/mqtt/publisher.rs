@@ -228,7 +228,20 @@ struct State {
     last_frame_ms: Option<i64>,
     status_sent: Option<(Instant, Option<i64>)>,
     subscribed: Option<String>,
+    /// The controller's session as its latest Hello and replies tell it:
+    /// what the lab needs to seal a command for it.
+    session: Option<ControllerSession>,
     t: PublishTotals,
+}
+
+/// Who the controller on the live link is, for the retained status.
+#[derive(Clone, Debug, PartialEq, Eq)]
+struct ControllerSession {
+    rig_id: String,
+    session: u32,
+    /// The highest command counter the controller is known to have seen
+    /// in this session (its Hello's, or a later reply's).
+    last_counter: u32,
 }
 
 impl State {
@@ -278,6 +291,7 @@ impl State {
             last_frame_ms: None,
             status_sent: None,
             subscribed: None,
+            session: None,
             t: PublishTotals::default(),
         })
     }
@@ -507,6 +521,23 @@ impl State {
                 Ok(logged) => {
                     if let store::Record::Frame(s) = &logged.record {
                         self.last_frame_ms = Some(s.host_ms);
+                        match &s.frame {
+                            Frame::Hello(h) => {
+                                self.session = Some(ControllerSession {
+                                    rig_id: h.rig_id.as_str().to_string(),
+                                    session: h.session,
+                                    last_counter: h.last_counter,
+                                });
+                                // A new session: tell the lab now.
+                                self.status_sent = None;
+                            }
+                            Frame::Reply(r) => {
+                                if let Some(c) = &mut self.session {
+                                    c.last_counter = c.last_counter.max(r.counter);
+                                }
+                            }
+                            _ => {}
+                        }
                     }
                     self.live.push_back(logged);
                     if self.live.len() > LIVE_CAP {
@@ -823,6 +854,13 @@ impl State {
             .iter()
             .find(|c| c.run == self.config.run)
             .map_or(-1, |c| c.sent);
+        // A command from the lab can be sealed only for a controller this
+        // watch holds a link to, in the session it reported.
+        let controller = self
+            .session
+            .as_ref()
+            .filter(|_| self.requests.is_some() && self.feed.is_some())
+            .map(|c| json!({"rig_id": c.rig_id, "session": c.session, "last_counter": c.last_counter}));
         let body = json!({
             "state": "online",
             "rig": rig,
@@ -830,6 +868,7 @@ impl State {
             "log": self.log_id,
             "run": self.config.run,
             "last_ord": last_ord,
+            "controller": controller,
             "watch_pid": std::process::id(),
             "tool_version": env!("CARGO_PKG_VERSION"),
         });
