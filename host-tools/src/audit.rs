@@ -56,7 +56,6 @@ use heatbound::config::{RigConfig, Uncertainty};
 use heatbound::monitor::{AlarmFigures, Faults, FigureSettings, Metrics};
 use heatbound::wire::{DecoderStats, Frame, Hello, Link, LinkTracker, Summary};
 use serde::Serialize;
-use std::collections::HashMap;
 
 use crate::store::{Impossible, LinkErrorKind, Log, RunId, StoreError};
 
@@ -550,10 +549,10 @@ pub fn audit_log(
 /// Frames between progress updates: keeps the bar off the per-frame path.
 const PROGRESS_EVERY_FRAMES: u64 = 4096;
 
-/// [`audit_log`], moving `progress` (if any) in frames through its two
-/// phases, named in the bar's prefix: `reading` the run's rows (its length
-/// the summaries the log holds, grown if more frames come), then
-/// `checking` them. The caller makes, shows and finishes the bar.
+/// [`audit_log`], moving `progress` (if any) in frames as the run's rows
+/// are read and checked, a page at a time (prefix `checking`; its length
+/// the summaries the log holds, grown if more frames come). Memory stays
+/// flat in the run's length. The caller makes, shows and finishes the bar.
 ///
 /// ```
 /// use heatbound::config::RigConfig;
@@ -588,7 +587,6 @@ pub fn audit_log_with_progress(
         closed: Some(info.ended_host_ms.is_some()),
         ..LogFacts::default()
     };
-    let mut frames = Vec::new();
     // Every row was received while the run was open.
     let (start, end) = (info.started_host_ms, info.ended_host_ms);
     let outside = |host_ms: i64| host_ms < start || end.is_some_and(|e| host_ms > e);
@@ -596,76 +594,8 @@ pub fn audit_log_with_progress(
         "the run's time (started {start}{})",
         end.map_or_else(String::new, |e| format!(", ended {e}"))
     );
-    if let Some(bar) = progress {
-        bar.set_prefix("reading");
-        bar.set_length(info.summaries);
-        bar.set_position(0);
-    }
-    for (read, stored) in (0u64..).zip(log.frames(id)?) {
-        if let Some(bar) = progress
-            && read.is_multiple_of(PROGRESS_EVERY_FRAMES)
-        {
-            // Hellos, events and replies come on top of the summaries.
-            if bar.length().is_some_and(|len| read > len) {
-                bar.set_length(read);
-            }
-            bar.set_position(read);
-        }
-        match stored {
-            Ok(s) => {
-                if outside(s.host_ms) {
-                    let (table, seq) = match &s.frame {
-                        Frame::Hello(_) => ("hellos", None),
-                        Frame::Summary(x) => ("summaries", Some(x.seq)),
-                        Frame::Event(x) => ("events", Some(x.seq)),
-                        Frame::Reply(_) => ("replies", None),
-                    };
-                    let at = seq.map_or_else(String::new, |s| format!(" seq {s}"));
-                    facts.tampered.push(format!(
-                        "{table} row{at}: host_ms {} is outside {window}",
-                        s.host_ms
-                    ));
-                }
-                frames.push(Received {
-                    host_ms: Some(s.host_ms),
-                    frame: s.frame,
-                });
-            }
-            Err(StoreError::ImpossibleValue(v)) => {
-                let Impossible {
-                    table,
-                    ord,
-                    seq,
-                    t_ms,
-                    column,
-                    ref value,
-                    why,
-                    ref also,
-                    ..
-                } = *v;
-                let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
-                facts.tampered.push(format!(
-                    "{table} row {ord}{at}: {column} = {value}: {why}{}",
-                    also.iter().map(|a| format!("; {a}")).collect::<String>()
-                ));
-                if let (Some(seq), Some(t_ms)) = (seq, t_ms) {
-                    facts.placeholders.push(frames.len());
-                    frames.push(Received {
-                        host_ms: None,
-                        frame: Frame::Summary(Summary {
-                            seq,
-                            t_ms,
-                            ..Summary::default()
-                        }),
-                    });
-                }
-            }
-            Err(StoreError::BadRow {
-                table, ord, reason, ..
-            }) => facts.tampered.push(format!("{table} row {ord}: {reason}")),
-            Err(e) => return Err(e.into()),
-        }
-    }
+    // Link errors and outages first: then the frames, checked as they are
+    // read a page at a time, so memory stays flat however long the run.
     let mut stats = DecoderStats::default();
     let mut overflowed: Vec<&'static str> = Vec::new();
     for row in log.link_error_rows(id)? {
@@ -708,7 +638,6 @@ pub fn audit_log_with_progress(
             "link_errors: the {kind} counts add up to more than 2^64, which no logger writes"
         ));
     }
-    stats.frames = u64::try_from(frames.len()).unwrap_or(u64::MAX);
     let outages = log.outages(id)?;
     for o in &outages {
         let ended_before = o.ended_host_ms.is_some_and(|e| e < o.started_host_ms);
@@ -729,15 +658,90 @@ pub fn audit_log_with_progress(
             message: format!("link down: {}", o.reason),
         })
         .collect();
-    Ok(audit_with_progress(
+    let mut auditor = Auditor::new(config);
+    let mut frames = 0u64;
+    if let Some(bar) = progress {
+        bar.set_prefix("checking");
+        bar.set_length(info.summaries);
+        bar.set_position(0);
+    }
+    for (read, stored) in (0u64..).zip(log.frames(id)?) {
+        if let Some(bar) = progress
+            && read.is_multiple_of(PROGRESS_EVERY_FRAMES)
+        {
+            // Hellos, events and replies come on top of the summaries.
+            if bar.length().is_some_and(|len| read > len) {
+                bar.set_length(read);
+            }
+            bar.set_position(read);
+        }
+        match stored {
+            Ok(s) => {
+                if outside(s.host_ms) {
+                    let (table, seq) = match &s.frame {
+                        Frame::Hello(_) => ("hellos", None),
+                        Frame::Summary(x) => ("summaries", Some(x.seq)),
+                        Frame::Event(x) => ("events", Some(x.seq)),
+                        Frame::Reply(_) => ("replies", None),
+                    };
+                    let at = seq.map_or_else(String::new, |s| format!(" seq {s}"));
+                    facts.tampered.push(format!(
+                        "{table} row{at}: host_ms {} is outside {window}",
+                        s.host_ms
+                    ));
+                }
+                frames = frames.saturating_add(1);
+                auditor.offer(&s.frame, true);
+                auditor.last_host_ms = Some(s.host_ms);
+            }
+            Err(StoreError::ImpossibleValue(v)) => {
+                let Impossible {
+                    table,
+                    ord,
+                    seq,
+                    t_ms,
+                    column,
+                    ref value,
+                    why,
+                    ref also,
+                    ..
+                } = *v;
+                let at = seq.map_or_else(String::new, |s| format!(" (seq {s})"));
+                facts.tampered.push(format!(
+                    "{table} row {ord}{at}: {column} = {value}: {why}{}",
+                    also.iter().map(|a| format!("; {a}")).collect::<String>()
+                ));
+                if let (Some(seq), Some(t_ms)) = (seq, t_ms) {
+                    // A stand-in: only its sequence number and time count.
+                    frames = frames.saturating_add(1);
+                    let stand_in = Frame::Summary(Summary {
+                        seq,
+                        t_ms,
+                        ..Summary::default()
+                    });
+                    auditor.offer(&stand_in, false);
+                }
+            }
+            Err(StoreError::BadRow {
+                table, ord, reason, ..
+            }) => facts.tampered.push(format!("{table} row {ord}: {reason}")),
+            Err(e) => return Err(e.into()),
+        }
+    }
+    auditor.release_early(false);
+    auditor.take_held_hello();
+    if let Some(bar) = progress {
+        bar.set_length(frames);
+        bar.set_position(frames);
+    }
+    stats.frames = frames;
+    Ok(auditor.finish(
         &Input {
-            frames: &frames,
+            frames: &[],
             decoder: stats,
             link_errors: &link_errors,
         },
         &facts,
-        config,
-        progress,
     ))
 }
 
@@ -809,6 +813,62 @@ pub fn audit_with_progress(
     auditor.finish(input, facts)
 }
 
+/// A fingerprint of each summary of the current device session, by
+/// sequence number: enough to tell a replayed summary (the same one again)
+/// from a new one, in 1 MiB however long the session, where the summaries
+/// themselves would take ten times that.
+struct SeenInSession {
+    /// Indexed by `seq`; 0 is "none" (a fingerprint is never 0).
+    prints: Vec<u64>,
+    len: usize,
+}
+
+impl SeenInSession {
+    fn new() -> Self {
+        Self {
+            prints: vec![0; usize::from(u16::MAX) + 1],
+            len: 0,
+        }
+    }
+
+    /// The summary's fields, exactly, hashed; never 0.
+    fn print(s: &Summary) -> u64 {
+        use std::hash::{Hash as _, Hasher as _};
+        let mut buf = [0u8; heatbound::wire::MAX_FRAME_LEN];
+        let n = heatbound::wire::encode(&Frame::Summary(*s), &mut buf).unwrap_or(0);
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        buf.get(..n).unwrap_or_default().hash(&mut h);
+        h.finish().max(1)
+    }
+
+    fn insert(&mut self, s: &Summary) {
+        if let Some(slot) = self.prints.get_mut(usize::from(s.seq)) {
+            if *slot == 0 {
+                self.len += 1;
+            }
+            *slot = Self::print(s);
+        }
+    }
+
+    /// Whether this very summary was seen under its sequence number.
+    fn holds(&self, s: &Summary) -> bool {
+        self.prints
+            .get(usize::from(s.seq))
+            .is_some_and(|&p| p != 0 && p == Self::print(s))
+    }
+
+    fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    fn clear(&mut self) {
+        if self.len > 0 {
+            self.prints.fill(0);
+            self.len = 0;
+        }
+    }
+}
+
 struct Auditor<'c> {
     base: &'c RigConfig,
     ctx: Context,
@@ -831,7 +891,7 @@ struct Auditor<'c> {
     violation_since: Option<i64>,
     /// The summary of each sequence number seen in the current device
     /// session (since the last restart), to tell a replay from a restart.
-    session: HashMap<u16, Summary>,
+    session: SeenInSession,
     /// The first summary of the current device session.
     session_first: Option<Summary>,
     /// Sequence number of the latest summary taken (not replayed).
@@ -900,7 +960,7 @@ impl<'c> Auditor<'c> {
             prev_t: None,
             period_ms: 1000,
             violation_since: None,
-            session: HashMap::new(),
+            session: SeenInSession::new(),
             session_first: None,
             last_seq: None,
             in_replay: false,
@@ -1006,7 +1066,7 @@ impl<'c> Auditor<'c> {
         // A device that started over sends its first summary again after
         // its Hello: a restart, even when the contents repeat exactly.
         let started_over = self.after_hello && !self.in_replay && self.session_first == Some(*s);
-        back && !started_over && self.session.get(&s.seq) == Some(s)
+        back && !started_over && self.session.holds(s)
     }
 
     /// One frame; `trusted` is false for a placeholder of a tampered row
@@ -1081,7 +1141,7 @@ impl<'c> Auditor<'c> {
                 if self.session.is_empty() {
                     self.session_first = Some(*s);
                 }
-                self.session.insert(s.seq, *s);
+                self.session.insert(s);
                 self.last_seq = Some(s.seq);
                 self.last_t_ms = Some(s.t_ms);
                 self.summary(s, link, trusted);
