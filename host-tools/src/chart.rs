@@ -97,8 +97,9 @@ const SECOND_LAW_BITS: u8 =
 /// leaves room for a log that holds them a little late.
 const EVENT_BACK_MS: i32 = 60_000;
 
-/// The vendored font (`host-tools/assets/DejaVuSans.ttf`, licence beside it).
-static FONT_TTF: &[u8] = include_bytes!("../assets/DejaVuSans.ttf");
+/// The vendored font (`host-tools/assets/DejaVuSans.ttf`, licence beside it);
+/// the report embeds it too, so its page and its chart share one font.
+pub(crate) static FONT_TTF: &[u8] = include_bytes!("../assets/DejaVuSans.ttf");
 
 /// What went wrong drawing a chart.
 #[derive(Debug, thiserror::Error)]
@@ -151,6 +152,14 @@ pub enum ChartError {
     /// The output path is the log itself.
     #[error("{path}: --out: that is the log itself; choose another name")]
     OverwritesLog {
+        /// The output path.
+        path: PathBuf,
+    },
+    /// The output path holds a file that `chart` did not draw.
+    #[error(
+        "{path}: --out: the file exists and is not a chart heatbound drew; choose another name, or move it away first"
+    )]
+    NotOurs {
         /// The output path.
         path: PathBuf,
     },
@@ -369,6 +378,94 @@ pub fn write_chart_with(
             path: out.to_path_buf(),
         });
     }
+    check_target(out)?;
+    let (data, run, t_s) = load(log, options)?;
+    register_font()?;
+    // Written beside the target and renamed over it, so a reader (or a
+    // browser refreshing the picture) never sees half a file.
+    let partial = partial_path(out, format);
+    let result = render(&data, format, &partial, out).and_then(|()| {
+        std::fs::rename(&partial, out).map_err(|source| ChartError::Write {
+            path: out.to_path_buf(),
+            source,
+        })
+    });
+    if result.is_err() {
+        let _ = std::fs::remove_file(&partial);
+    }
+    result?;
+    Ok(Drawn {
+        out: out.to_path_buf(),
+        run,
+        summaries: data.summaries,
+        t_s,
+        breaks: data.timeline.breaks,
+    })
+}
+
+/// A chart drawn as SVG text, for a page that embeds it (`heatbound report`).
+#[derive(Clone, Debug, PartialEq)]
+pub struct SvgChart {
+    /// The SVG document, [`SIZE_PX`] with a `viewBox`; its text is text,
+    /// in the font family `sans-serif`.
+    pub svg: String,
+    /// The run drawn.
+    pub run: RunId,
+    /// Summaries read.
+    pub summaries: u64,
+    /// Time of the first and last summary on the device clock's axis, s.
+    pub t_s: (f64, f64),
+    /// What broke the record.
+    pub breaks: Breaks,
+}
+
+/// Draws the run `options.run` names (default: the latest with summaries)
+/// of the log at `log` as SVG text, exactly as [`write_chart_with`] draws
+/// an `.svg` file, without writing anything.
+///
+/// ```
+/// use heatbound::wire::{Frame, Summary};
+/// use heatbound_host::chart::{ChartOptions, svg_chart};
+/// use heatbound_host::store::Log;
+/// let dir = tempfile::tempdir().unwrap();
+/// let path = dir.path().join("log.sqlite");
+/// let mut log = Log::open(&path).unwrap();
+/// let run = log.begin_run("file:capture.bin", 1_700_000_000_000).unwrap();
+/// for seq in 0..3u16 {
+///     let s = Summary { seq, t_ms: 1000 * (u32::from(seq) + 1), duration_s: 1.0,
+///                       heat_in_j: 1000.0, work_j: 300.0, ..Summary::default() };
+///     log.insert_frame(run, 1_700_000_000_000 + i64::from(seq), &Frame::Summary(s)).unwrap();
+/// }
+/// log.end_run(run, 1_700_000_004_000).unwrap();
+/// drop(log);
+/// let chart = svg_chart(&path, &ChartOptions::default()).unwrap();
+/// assert!(chart.svg.starts_with("<svg") && chart.summaries == 3);
+/// ```
+pub fn svg_chart(log: &Path, options: &ChartOptions) -> Result<SvgChart, ChartError> {
+    let (data, run, t_s) = load(log, options)?;
+    register_font()?;
+    let mut text = String::new();
+    {
+        let root = SVGBackend::with_string(&mut text, SIZE_PX).into_drawing_area();
+        let draw_err = |e: &dyn std::fmt::Display| ChartError::Draw {
+            path: log.to_path_buf(),
+            reason: e.to_string(),
+        };
+        draw(&root, &data, Ink { glyphs: None }).map_err(|e| draw_err(&e))?;
+        root.present().map_err(|e| draw_err(&e))?;
+    }
+    Ok(SvgChart {
+        svg: text,
+        run,
+        summaries: data.summaries,
+        t_s,
+        breaks: data.timeline.breaks,
+    })
+}
+
+/// Reads the run `options` names from the log at `log`: the chart's data,
+/// the run, and its span on the device clock's axis.
+fn load(log: &Path, options: &ChartOptions) -> Result<(ChartData, RunId, (f64, f64)), ChartError> {
     // The OS's own words for a missing or unreadable file, before SQLite's.
     let open_err = |source| ChartError::Open {
         path: log.to_path_buf(),
@@ -446,28 +543,7 @@ pub fn write_chart_with(
             run: info.id,
         });
     };
-
-    register_font()?;
-    // Written beside the target and renamed over it, so a reader (or a
-    // browser refreshing the picture) never sees half a file.
-    let partial = partial_path(out, format);
-    let result = render(&data, format, &partial, out).and_then(|()| {
-        std::fs::rename(&partial, out).map_err(|source| ChartError::Write {
-            path: out.to_path_buf(),
-            source,
-        })
-    });
-    if result.is_err() {
-        let _ = std::fs::remove_file(&partial);
-    }
-    result?;
-    Ok(Drawn {
-        out: out.to_path_buf(),
-        run: info.id,
-        summaries: data.summaries,
-        t_s,
-        breaks: data.timeline.breaks,
-    })
+    Ok((data, info.id, t_s))
 }
 
 /// A hidden name beside `out` with the same extension (the bitmap encoder
@@ -504,6 +580,11 @@ fn render(data: &ChartData, format: Format, path: &Path, out: &Path) -> Result<(
             };
             draw(&root, data, ink).map_err(|e| draw_err(e.to_string()))?;
             root.present().map_err(|e| draw_err(e.to_string()))?;
+            drop(root);
+            let png = std::fs::read(path).map_err(write_err)?;
+            let marked = marked_png(&png)
+                .ok_or_else(|| draw_err("the encoder wrote no PNG header".into()))?;
+            std::fs::write(path, marked).map_err(write_err)?;
         }
         Format::Svg => {
             let mut text = String::new();
@@ -512,10 +593,87 @@ fn render(data: &ChartData, format: Format, path: &Path, out: &Path) -> Result<(
                 draw(&root, data, Ink { glyphs: None }).map_err(|e| draw_err(e.to_string()))?;
                 root.present().map_err(|e| draw_err(e.to_string()))?;
             }
-            std::fs::write(path, text).map_err(write_err)?;
+            std::fs::write(path, format!("<!-- {MARK} -->\n{text}")).map_err(write_err)?;
         }
     }
     Ok(())
+}
+
+/// What marks a picture as drawn here: the text of a PNG `tEXt` chunk
+/// (keyword `Software`) right after the header, and an SVG's first line.
+const MARK: &str = "heatbound chart";
+
+/// The PNG signature (ISO/IEC 15948 §5.2).
+const PNG_SIGNATURE: [u8; 8] = [0x89, b'P', b'N', b'G', 0x0d, 0x0a, 0x1a, 0x0a];
+
+/// Where the chunk after the header starts: signature, then the IHDR chunk
+/// (length, type, 13 bytes of data, CRC).
+const AFTER_IHDR: usize = 8 + 4 + 4 + 13 + 4;
+
+/// The `tEXt` chunk's data: keyword, a NUL, the text (ISO/IEC 15948 §11.3.4.3).
+fn mark_text() -> Vec<u8> {
+    let mut data = b"Software\0".to_vec();
+    data.extend_from_slice(MARK.as_bytes());
+    data
+}
+
+/// Refuses to replace a file `chart` did not draw: only a missing file, an
+/// empty one, or a picture that carries [`MARK`] may be written over.
+fn check_target(out: &Path) -> Result<(), ChartError> {
+    use std::io::Read as _;
+    let not_ours = || ChartError::NotOurs {
+        path: out.to_path_buf(),
+    };
+    let mut file = match File::open(out) {
+        Ok(f) => f,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(()),
+        Err(source) => {
+            return Err(ChartError::Write {
+                path: out.to_path_buf(),
+                source,
+            });
+        }
+    };
+    if file.metadata().is_ok_and(|m| m.is_dir()) {
+        return Err(not_ours());
+    }
+    let mut head = Vec::with_capacity(128);
+    if file.by_ref().take(128).read_to_end(&mut head).is_err() {
+        return Err(not_ours());
+    }
+    let mark = mark_text();
+    let png_ours = head.starts_with(&PNG_SIGNATURE)
+        && head.get(AFTER_IHDR + 4..AFTER_IHDR + 8) == Some(b"tEXt".as_slice())
+        && head
+            .get(AFTER_IHDR + 8..)
+            .is_some_and(|d| d.starts_with(&mark));
+    let svg_ours = head.starts_with(format!("<!-- {MARK}").as_bytes());
+    if head.is_empty() || png_ours || svg_ours {
+        Ok(())
+    } else {
+        Err(not_ours())
+    }
+}
+
+/// The PNG `png` with the [`MARK`] chunk put right after its header;
+/// `None` if it does not start with a PNG header.
+fn marked_png(png: &[u8]) -> Option<Vec<u8>> {
+    if !png.starts_with(&PNG_SIGNATURE) || png.get(12..16) != Some(b"IHDR".as_slice()) {
+        return None;
+    }
+    let data = mark_text();
+    let mut chunk = Vec::with_capacity(data.len() + 12);
+    chunk.extend_from_slice(&u32::try_from(data.len()).ok()?.to_be_bytes());
+    chunk.extend_from_slice(b"tEXt");
+    chunk.extend_from_slice(&data);
+    // The CRC covers the type and the data (ISO/IEC 15948 §5.3).
+    let crc = crc32fast::hash(chunk.get(4..)?);
+    chunk.extend_from_slice(&crc.to_be_bytes());
+    let mut out = Vec::with_capacity(png.len() + chunk.len());
+    out.extend_from_slice(png.get(..AFTER_IHDR)?);
+    out.extend_from_slice(&chunk);
+    out.extend_from_slice(png.get(AFTER_IHDR..)?);
+    Some(out)
 }
 
 /// Whether `a` and `b` name the same file (the same path, or both exist and

@@ -5,6 +5,7 @@
 //!
 //! - [`cycle_file`]: an ideal-gas reference cycle from TOML, evaluated, as a table or JSON;
 //! - [`rigfile`]: `rig.toml` read, validated and its errors placed at line and column;
+//! - [`csv_layout`]: the `[csv]` table of `rig.toml`: a logger's CSV layout and units;
 //! - [`replay`]: a recorded run (CSV) through the monitor and alarms, and its report;
 //! - [`sil`]: software in the loop: rig -> Monitor -> AlarmSet -> frames (`simulate`, `demo`);
 //! - [`link`]: the serial, TCP or file source of the bytes, its outages and reconnects;
@@ -22,6 +23,8 @@
 //! - [`capture`]: a raw capture or a log run read from disk as the audit's input;
 //! - [`audit`]: the audit engine, pure: integrity, recomputation, second law, alarm consistency;
 //! - [`chart`]: the chart renderer, a run of the log as a PNG or SVG picture;
+//! - [`report`]: one run (a log, or a replayed CSV) as a self-contained HTML test report;
+//! - [`export`]: a run of the log as CSV, one row per summary (`export`);
 //! - [`console`]: the live console of `watch` and `demo` (ratatui);
 //! - [`term`]: what every command prints beside its output (the safety note).
 //!
@@ -33,9 +36,11 @@ pub mod capture;
 pub mod chart;
 pub mod console;
 pub mod control;
+pub mod csv_layout;
 pub mod cycle_file;
 pub mod diagnosis_report;
 pub mod downlink;
+pub mod export;
 pub mod fanout;
 pub mod frame_json;
 pub mod ingest;
@@ -45,6 +50,7 @@ pub mod live;
 pub mod mqtt;
 pub mod operator;
 pub mod replay;
+pub mod report;
 pub mod rigfile;
 pub mod showcase;
 pub mod sil;

@@ -31,7 +31,11 @@ enum Command {
     Audit(cmd::audit::Args),
     /// Draw one run of a log as a picture (PNG or SVG): η (or COP) and its Carnot bound, σ̇, temperatures, alarms.
     Chart(cmd::chart::Args),
-    /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited and charted.
+    /// Write one run of a log as CSV: a row per summary, wall-clock and rig time, alarms and faults as named columns.
+    Export(cmd::export::Args),
+    /// Write one run (a log, or a CSV replayed) as a self-contained HTML test report, printable to PDF.
+    Report(cmd::report::Args),
+    /// Run the whole chain with no hardware: a simulated rig streams over loopback TCP into the log, then the log is audited, charted and reported.
     Demo(cmd::demo::Args),
     /// Acknowledge an alarm on the controller, through the running `watch`, or from the lab through the MQTT broker.
     Ack(cmd::operate::AckArgs),
@@ -92,6 +96,8 @@ fn main() -> ExitCode {
         Command::Lab(args) => cmd::lab::run(&args),
         Command::Audit(args) => cmd::audit::run(&args),
         Command::Chart(args) => cmd::chart::run(&args),
+        Command::Export(args) => cmd::export::run(&args),
+        Command::Report(args) => cmd::report::run(&args),
         Command::Demo(args) => cmd::demo::run(&args),
         Command::Ack(args) => cmd::operate::ack(&args),
         Command::Configure(args) => cmd::operate::configure(&args),

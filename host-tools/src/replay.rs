@@ -1,24 +1,31 @@
 //! The replay engine: a recorded run (CSV) streamed through the host's
 //! monitor and the alarms, and its report (the run totals, the final window
 //! and the alarm timeline) as text or JSON. It is the offline branch of the
-//! data flow; `heatbound analyze` calls [`replay_file`].
+//! data flow; `heatbound analyze` calls [`replay_file_with`].
 //!
 //! Data flow (DESIGN.md §2, offline branch):
 //!
 //! ```text
-//! FILE.csv --(csv, one reused ByteRecord)--> Columns (header, checked once)
-//!          --> Sample<f64> per row --> Monitor<4096, f64>::push --> AlarmSet::update
-//!          --> Replay (counts, events, final metrics) --> table or JSON
+//! FILE.csv --(preamble skipped, blank runs as tabs: [csv] only)
+//!          --(csv, one reused ByteRecord)--> Columns (header, checked once)
+//!          --> cells to s, K, W --> Sample<f64> per row --> Monitor<4096, f64>::push
+//!          --> AlarmSet::update --> Replay (counts, events, final metrics) --> table or JSON
 //! rig.toml --(toml)--> RigFile --validate--> RigConfig
+//!          \--[csv]--> CsvLayout (crate::csv_layout)
 //! ```
+//!
+//! Without a `[csv]` table the file is heatbound's own layout (`time_s`,
+//! `hot_c`, …); with one, any logger's, as the table maps it.
 //!
 //! The replay streams: rows are never collected, so memory does not grow
 //! with the file's length; only alarm events (few) are kept. Errors name the
-//! file, the line (the header is line 1) and the column on one line.
+//! file, the line (the file's own: the header is line 1, or the first after
+//! a preamble) and the column on one line.
 use std::fmt::Write as _;
 use std::fs::File;
 use std::io::Read;
 use std::path::Path;
+use std::rc::Rc;
 
 use heatbound::alarm::{AlarmSet, Event, EventKind, TimeToLimit, time_to_limit};
 use heatbound::config::{Mode, RigConfig};
@@ -26,8 +33,15 @@ use heatbound::diagnosis::Tracker;
 use heatbound::monitor::{Metrics, Monitor, MonitorError, Sample};
 use serde::Serialize;
 
+use crate::csv_layout::{CsvLayout, Delimiter, TimeCellError};
 use crate::diagnosis_report::DiagnosisJson;
 use crate::rigfile::one_line;
+
+mod columns;
+mod input;
+
+pub use columns::ReadColumn;
+use columns::{Columns, Numbers};
 
 /// Capacity of the host monitor's window, in samples. `window_samples` in
 /// `rig.toml` may not exceed it.
@@ -57,33 +71,57 @@ pub enum CsvError {
     #[error("configuration: {0}")]
     Config(#[from] MonitorError),
     /// The file has no header line.
-    #[error("line 1: the file is empty: expected a header naming the columns")]
-    NoHeader,
+    #[error("line {line}: the file is empty: expected a header naming the columns")]
+    NoHeader {
+        /// Where the header should be (after the lines `[csv]` skips).
+        line: u64,
+    },
+    /// The file ends before the lines `[csv]` skips are over.
+    #[error(
+        "line {line}: the file ends within the {skip} lines before the header that csv.skip_lines names"
+    )]
+    ShortPreamble {
+        /// The line the file ends on.
+        line: u64,
+        /// `csv.skip_lines`.
+        skip: u32,
+    },
     /// A required column is not in the header.
-    #[error("line 1, column {column}: missing required column (the header has: {found})")]
+    #[error(
+        "line {line}, column {column}: missing required column (the header has: {found}){hint}"
+    )]
     MissingColumn {
-        /// The missing column, e.g. `heat_in_w` or `hot_c or hot_k`.
-        column: &'static str,
+        /// The header's line.
+        line: u64,
+        /// The missing column, e.g. `heat_in_w`, `hot_c or hot_k` or
+        /// `"P_Heizer" (csv.heat_in.column)`.
+        column: String,
         /// The header as found.
         found: String,
+        /// What may be wrong besides, with a leading separator, or empty.
+        hint: String,
     },
     /// Two header columns describe the same channel.
-    #[error("line 1, column {column}: {why}")]
+    #[error("line {line}, column {column}: {why}")]
     Contradictory {
+        /// The header's line.
+        line: u64,
         /// The column.
         column: String,
         /// Why it contradicts another.
         why: String,
     },
     /// A field is not a number.
-    #[error("line {line}, column {column}: cannot parse \"{text}\" as a number")]
+    #[error("line {line}, column {column}: cannot parse \"{text}\" as a number{hint}")]
     Number {
         /// Line in the file.
         line: u64,
         /// Column name.
-        column: &'static str,
+        column: String,
         /// The field as written.
         text: String,
+        /// A likely cause, with a leading separator, or empty.
+        hint: &'static str,
     },
     /// A row has fewer fields than the header needs.
     #[error(
@@ -93,183 +131,51 @@ pub enum CsvError {
         /// Line in the file.
         line: u64,
         /// Column name.
-        column: &'static str,
+        column: String,
         /// Fields in the row.
         fields: usize,
         /// 1-based position of the column.
         position: usize,
     },
-    /// `time_s` is empty or not finite.
-    #[error("line {line}, column time_s: no time (\"{text}\"): the row cannot be placed in time")]
+    /// The time is empty or not finite.
+    #[error("line {line}, column {column}: no time (\"{text}\"): the row cannot be placed in time")]
     NoTime {
         /// Line in the file.
         line: u64,
+        /// The time column's name.
+        column: String,
         /// The field as written.
         text: String,
     },
-    /// `time_s` does not increase.
+    /// A timestamp that cannot be read (`[csv]` time units `iso8601` and
+    /// `excel_days`).
+    #[error("line {line}, column {column}: cannot read \"{text}\" as a time: {why}")]
+    Time {
+        /// Line in the file.
+        line: u64,
+        /// The time column's name.
+        column: String,
+        /// The field as written.
+        text: String,
+        /// Why not.
+        why: TimeCellError,
+    },
+    /// The time does not increase.
     #[error(
-        "line {line}, column time_s: time {time_s} s does not increase (previous row: {previous_s} s)"
+        "line {line}, column {column}: time {time} does not increase (previous row: {previous}){hint}"
     )]
     TimeNotIncreasing {
         /// Line in the file.
         line: u64,
-        /// This row's time.
-        time_s: f64,
-        /// The previous row's time.
-        previous_s: f64,
+        /// The time column's name.
+        column: String,
+        /// This row's time: seconds (`12.5 s`), or UTC for a time of day.
+        time: String,
+        /// The previous row's time, likewise.
+        previous: String,
+        /// A likely cause, with a leading separator, or empty.
+        hint: &'static str,
     },
-}
-
-/// A temperature column and its scale.
-#[derive(Clone, Copy, Debug)]
-struct Temperature {
-    index: usize,
-    name: &'static str,
-    /// Added to the reading to give kelvin: 273.15 for °C, 0 for K.
-    offset_k: f64,
-}
-
-/// The header, checked: where each channel is.
-#[derive(Clone, Debug)]
-struct Columns {
-    time: usize,
-    hot: Temperature,
-    cold: Temperature,
-    heat_in: usize,
-    work: usize,
-    heat_out: Option<usize>,
-    hot2: Option<Temperature>,
-    unused: Vec<UnusedColumn>,
-}
-
-impl Columns {
-    fn parse(header: &csv::ByteRecord) -> Result<Self, CsvError> {
-        let names: Vec<String> = header
-            .iter()
-            .map(|f| String::from_utf8_lossy(f).trim().to_string())
-            .collect();
-        let find = |name: &str| -> Result<Option<usize>, CsvError> {
-            let mut hits = names
-                .iter()
-                .enumerate()
-                .filter(|(_, n)| n.as_str() == name)
-                .map(|(i, _)| i);
-            let first = hits.next();
-            if hits.next().is_some() {
-                return Err(CsvError::Contradictory {
-                    column: name.to_string(),
-                    why: "the column appears twice".to_string(),
-                });
-            }
-            Ok(first)
-        };
-        // The header as quoted back: each name and the whole list bounded,
-        // control bytes escaped (a damaged file may have a huge first line).
-        let found = || {
-            let list: Vec<String> = names
-                .iter()
-                .take(MAX_LISTED_COLUMNS)
-                .map(|n| crate::term::excerpt(n, 40))
-                .collect();
-            let more = names.len().saturating_sub(MAX_LISTED_COLUMNS);
-            let mut text = list.join(", ");
-            if more > 0 {
-                text.push_str(&format!(" and {more} more"));
-            }
-            text
-        };
-        let required = |name: &'static str| -> Result<usize, CsvError> {
-            find(name)?.ok_or_else(|| CsvError::MissingColumn {
-                column: name,
-                found: found(),
-            })
-        };
-        let temperature = |c: &'static str,
-                           k: &'static str,
-                           either: &'static str|
-         -> Result<Temperature, CsvError> {
-            match (find(c)?, find(k)?) {
-                (Some(_), Some(_)) => Err(CsvError::Contradictory {
-                    column: k.to_string(),
-                    why: format!("both {c} and {k} are given: give one"),
-                }),
-                (Some(index), None) => Ok(Temperature {
-                    index,
-                    name: c,
-                    offset_k: heatbound::ZERO_CELSIUS_K,
-                }),
-                (None, Some(index)) => Ok(Temperature {
-                    index,
-                    name: k,
-                    offset_k: 0.0,
-                }),
-                (None, None) => Err(CsvError::MissingColumn {
-                    column: either,
-                    found: found(),
-                }),
-            }
-        };
-        Ok(Self {
-            time: required("time_s")?,
-            hot: temperature("hot_c", "hot_k", "hot_c or hot_k")?,
-            cold: temperature("cold_c", "cold_k", "cold_c or cold_k")?,
-            heat_in: required("heat_in_w")?,
-            work: required("work_w")?,
-            heat_out: find("heat_out_w")?,
-            hot2: match (find("hot2_c")?, find("hot2_k")?) {
-                (None, None) => None,
-                _ => Some(temperature("hot2_c", "hot2_k", "hot2_c or hot2_k")?),
-            },
-            unused: unused_columns(&names),
-        })
-    }
-}
-
-/// Every column name the replay reads.
-const KNOWN_COLUMNS: [&str; 10] = [
-    "time_s",
-    "hot_c",
-    "hot_k",
-    "hot2_c",
-    "hot2_k",
-    "cold_c",
-    "cold_k",
-    "heat_in_w",
-    "work_w",
-    "heat_out_w",
-];
-
-/// Header names quoted back in an error, at most.
-const MAX_LISTED_COLUMNS: usize = 24;
-
-/// The header's columns that nothing reads, each with the reason; a name
-/// that differs from a known one only in case or blanks says which it
-/// resembles (`heat_out_W` is not `heat_out_w`, and would silently turn
-/// heat out from measured to inferred).
-fn unused_columns(names: &[String]) -> Vec<UnusedColumn> {
-    names
-        .iter()
-        .filter(|n| !KNOWN_COLUMNS.contains(&n.as_str()))
-        .take(MAX_LISTED_COLUMNS)
-        .map(|n| {
-            let folded: String = n
-                .to_lowercase()
-                .chars()
-                .filter(|c| !c.is_whitespace())
-                .collect();
-            let why = match KNOWN_COLUMNS.iter().find(|k| **k == folded) {
-                Some(k) => {
-                    format!("not read: did you mean {k}? (column names are exact, lower case)")
-                }
-                None => "not a column heatbound reads".to_string(),
-            };
-            UnusedColumn {
-                name: crate::term::excerpt(n, 40),
-                why,
-            }
-        })
-        .collect()
 }
 
 /// A header column the replay did not use, and why.
@@ -284,25 +190,6 @@ pub struct UnusedColumn {
 /// Line numbers of invalid rows kept for the report, at most.
 const INVALID_LINES_KEPT: usize = 5;
 
-/// A field, trimmed of ASCII blanks, or the short-row error.
-#[inline]
-fn field<'r>(
-    record: &'r csv::ByteRecord,
-    index: usize,
-    column: &'static str,
-    line: u64,
-) -> Result<&'r [u8], CsvError> {
-    match record.get(index) {
-        Some(f) => Ok(f.trim_ascii()),
-        None => Err(CsvError::ShortRow {
-            line,
-            column,
-            fields: record.len(),
-            position: index + 1,
-        }),
-    }
-}
-
 /// Exact powers of ten: every one up to 1e22 is representable in f64.
 const POW10: [f64; 23] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
@@ -311,11 +198,23 @@ const POW10: [f64; 23] = [
 
 /// Plain decimals (`-12.345`, no exponent) with at most 15 significant
 /// digits and 22 decimals, the shape every logger writes, parsed without the
-/// general float parser. Clinger's fast path: the digits as an integer below
-/// 2^53 and the power of ten are both exact, so one IEEE division gives the
-/// correctly rounded value, the same as `str::parse`. Anything else is `None`.
+/// general float parser; `point` is the decimal mark (`.`, or `,` with
+/// `[csv] decimal = ","`). Clinger's fast path: the digits as an integer
+/// below 2^53 and the power of ten are both exact, so one IEEE division
+/// gives the correctly rounded value, the same as `str::parse`. Anything
+/// else is `None`.
 #[inline]
-fn fast_decimal(bytes: &[u8]) -> Option<f64> {
+fn fast_decimal(bytes: &[u8], point: u8) -> Option<f64> {
+    // One copy per mark, each with its mark a constant.
+    if point == b'.' {
+        fast_decimal_with::<b'.'>(bytes)
+    } else {
+        fast_decimal_with::<b','>(bytes)
+    }
+}
+
+#[inline(always)]
+fn fast_decimal_with<const POINT: u8>(bytes: &[u8]) -> Option<f64> {
     let (negative, digits) = match bytes.split_first() {
         Some((b'-', rest)) => (true, rest),
         Some((b'+', rest)) => (false, rest),
@@ -335,7 +234,7 @@ fn fast_decimal(bytes: &[u8]) -> Option<f64> {
                     return None;
                 }
             }
-            b'.' if !seen_point => seen_point = true,
+            _ if b == POINT && !seen_point => seen_point = true,
             _ => return None,
         }
     }
@@ -346,26 +245,63 @@ fn fast_decimal(bytes: &[u8]) -> Option<f64> {
     Some(if negative { -magnitude } else { magnitude })
 }
 
-/// A reading: empty or `NaN` (any case) is an invalid sample, NaN; anything
-/// else must parse as a number.
+/// A reading: empty or `NaN` (any case) is an invalid sample, NaN, and so
+/// are `-` and `n/a` with a `[csv]` table; anything else must parse as a
+/// number, with the table's decimal mark.
 #[inline]
-fn reading(bytes: &[u8], column: &'static str, line: u64) -> Result<f64, CsvError> {
+fn reading(bytes: &[u8], numbers: Numbers, column: &str, line: u64) -> Result<f64, CsvError> {
     if bytes.is_empty() {
         return Ok(f64::NAN);
     }
-    if let Some(x) = fast_decimal(bytes) {
+    if let Some(x) = fast_decimal(bytes, numbers.point) {
         return Ok(x);
+    }
+    general_reading(bytes, numbers, column, line)
+}
+
+/// The longest number a decimal-comma cell may hold (longer is no reading).
+const MAX_NUMBER_BYTES: usize = 64;
+
+/// [`reading`] off the fast path: words, exponents, long mantissas.
+fn general_reading(
+    bytes: &[u8],
+    numbers: Numbers,
+    column: &str,
+    line: u64,
+) -> Result<f64, CsvError> {
+    if numbers.words && (bytes == b"-" || bytes.eq_ignore_ascii_case(b"n/a")) {
+        return Ok(f64::NAN);
     }
     // `str::parse::<f64>` accepts "nan" in any case, exponents, and
     // "inf"/"infinity", which the monitor then counts as invalid (not finite).
-    std::str::from_utf8(bytes)
-        .ok()
-        .and_then(|s| s.parse::<f64>().ok())
-        .ok_or_else(|| CsvError::Number {
-            line,
-            column,
-            text: crate::term::excerpt(&String::from_utf8_lossy(bytes), 40),
-        })
+    let parse = |b: &[u8]| std::str::from_utf8(b).ok()?.parse::<f64>().ok();
+    let parsed = if numbers.point == b'.' {
+        parse(bytes)
+    } else if bytes.contains(&b'.') || bytes.len() > MAX_NUMBER_BYTES {
+        None
+    } else {
+        let mut copy = [0u8; MAX_NUMBER_BYTES];
+        let copy = &mut copy[..bytes.len()];
+        copy.copy_from_slice(bytes);
+        for b in copy.iter_mut() {
+            if *b == numbers.point {
+                *b = b'.';
+            }
+        }
+        parse(copy)
+    };
+    parsed.ok_or_else(|| CsvError::Number {
+        line,
+        column: column.to_string(),
+        text: crate::term::excerpt(&String::from_utf8_lossy(bytes), 40),
+        hint: match numbers.point {
+            b'.' if bytes.contains(&b',') => "; a decimal comma? (csv.decimal = \",\" in rig.toml)",
+            b',' if bytes.contains(&b'.') => {
+                "; the decimal mark is a comma here (csv.decimal = \",\")"
+            }
+            _ => "",
+        },
+    })
 }
 
 // ---------------------------------------------------------------------------
@@ -374,7 +310,9 @@ fn reading(bytes: &[u8], column: &'static str, line: u64) -> Result<f64, CsvErro
 /// An alarm event with the time of the row that caused it.
 #[derive(Clone, Debug)]
 pub struct TimedEvent {
-    /// `time_s` of the row, exactly as in the file.
+    /// The row's time, seconds: `time_s` exactly as in the file; with a
+    /// `[csv]` table, the time column in seconds (Unix seconds for
+    /// `iso8601` and `excel_days`).
     pub t_s: f64,
     /// The event (its `t_ms` is relative to the first row).
     pub event: Event,
@@ -398,7 +336,13 @@ pub struct Replay {
     pub invalid_lines: Vec<u64>,
     /// Header columns nothing read, and why.
     pub unused_columns: Vec<UnusedColumn>,
-    /// Last `time_s` − first `time_s`, seconds.
+    /// With a `[csv]` table: which column each channel was read from, in
+    /// which unit (empty without one).
+    pub read_columns: Vec<ReadColumn>,
+    /// Whether the times are Unix seconds (`[csv]` time `iso8601` or
+    /// `excel_days`) rather than seconds of the logger's own clock.
+    pub unix_time: bool,
+    /// Last time − first time, seconds.
     pub duration_s: f64,
     /// Integration restarts after gaps.
     pub restarts: u64,
@@ -447,7 +391,7 @@ pub struct ReplayError {
 
 /// Replays `path` with `config`; errors carry the file name.
 pub fn replay_file(path: &Path, config: &RigConfig) -> Result<Replay, ReplayError> {
-    replay_file_with_progress(path, config, None)
+    replay_file_with(path, config, None, None)
 }
 
 /// [`replay_file`], moving `progress` (if any) to the bytes of the file
@@ -470,6 +414,39 @@ pub fn replay_file_with_progress(
     config: &RigConfig,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Replay, ReplayError> {
+    replay_file_with(path, config, None, progress)
+}
+
+/// [`replay_file_with_progress`] for a file laid out as `layout` says (the
+/// `[csv]` table of `rig.toml`); `None` is the default layout.
+///
+/// ```
+/// use heatbound_host::replay::replay_file_with;
+/// use heatbound_host::rigfile::rig_from_text;
+/// let dir = tempfile::tempdir().unwrap();
+/// let csv = dir.path().join("logger.csv");
+/// std::fs::write(&csv, "Logger 7\nZeit;T1;T2;P;W\n0;500,0;25,0;0,4;40\n1;500,0;25,0;0,4;40\n").unwrap();
+/// let rig = rig_from_text(r#"
+///     [csv]
+///     delimiter = ";"
+///     decimal = ","
+///     skip_lines = 1
+///     time = { column = "Zeit", unit = "s" }
+///     hot = { column = "T1", unit = "degC" }
+///     cold = { column = "T2", unit = "degC" }
+///     heat_in = { column = "P", unit = "kW" }
+///     work = { column = "W", unit = "W" }
+/// "#, "rig.toml").unwrap();
+/// let replay = replay_file_with(&csv, &rig.config, rig.csv.as_ref(), None).unwrap();
+/// assert_eq!(replay.samples, 2);
+/// assert_eq!(replay.totals.heat_in_j, 400.0);
+/// ```
+pub fn replay_file_with(
+    path: &Path,
+    config: &RigConfig,
+    layout: Option<&CsvLayout>,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Replay, ReplayError> {
     let name = path.display().to_string();
     let file = File::open(path).map_err(|e| ReplayError {
         file: name.clone(),
@@ -480,7 +457,7 @@ pub fn replay_file_with_progress(
     {
         bar.set_length(meta.len());
     }
-    replay(file, config, progress).map_err(|problem| ReplayError {
+    replay_with(file, config, layout, progress).map_err(|problem| ReplayError {
         file: name,
         problem,
     })
@@ -500,11 +477,21 @@ pub fn replay<R: Read + Send>(
     config: &RigConfig,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Replay, CsvError> {
+    replay_with(input, config, None, progress)
+}
+
+/// [`replay`] of input laid out as `layout` says (`None`: the default layout).
+pub fn replay_with<R: Read + Send>(
+    input: R,
+    config: &RigConfig,
+    layout: Option<&CsvLayout>,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Replay, CsvError> {
     std::thread::scope(|scope| {
         let worker = std::thread::Builder::new()
             .name("replay".into())
             .stack_size(REPLAY_STACK_BYTES)
-            .spawn_scoped(scope, || replay_here(input, config, progress))
+            .spawn_scoped(scope, || replay_here(input, config, layout, progress))
             .map_err(CsvError::Read)?;
         worker.join().unwrap_or_else(|_| {
             Err(CsvError::Read(std::io::Error::other(
@@ -514,21 +501,104 @@ pub fn replay<R: Read + Send>(
     })
 }
 
-fn replay_here<R: Read>(
+/// A time as an error message shows it: seconds, or UTC for a time of day.
+fn shown_time(t_s: f64, unix: bool) -> String {
+    if unix {
+        unix_time_text(t_s)
+    } else {
+        format!("{t_s} s")
+    }
+}
+
+/// Unix seconds as ISO 8601 UTC, to the millisecond.
+fn unix_time_text(t_s: f64) -> String {
+    #[allow(clippy::cast_possible_truncation)]
+    let ms = (t_s * 1000.0).round() as i64;
+    jiff::Timestamp::from_millisecond(ms).map_or_else(
+        |_| format!("{t_s} s"),
+        |t| t.strftime("%Y-%m-%dT%H:%M:%S%.3fZ").to_string(),
+    )
+}
+
+fn replay_here<'a, R: Read + 'a>(
     input: R,
     config: &RigConfig,
+    layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Replay, CsvError> {
-    let mut reader = csv::ReaderBuilder::new()
+    let mut builder = csv::ReaderBuilder::new();
+    builder
         .has_headers(true)
         .flexible(true)
-        .buffer_capacity(1 << 16)
-        .from_reader(input);
-    let header = reader.byte_headers().map_err(|e| csv_error(&e, 1))?;
-    if header.is_empty() || (header.len() == 1 && header[0].trim_ascii().is_empty()) {
-        return Err(CsvError::NoHeader);
+        .delimiter(layout.map_or(b',', |l| l.delimiter.byte()))
+        .buffer_capacity(1 << 16);
+    let skip = layout.map_or(0, |l| l.skip_lines);
+    let blanks = layout.is_some_and(|l| l.delimiter == Delimiter::Blanks);
+    if skip == 0 && !blanks {
+        // The file as it is, straight into the CSV reader.
+        let reader = builder.from_reader(input);
+        return replay_rows(reader, |r| r.position().byte(), 0, config, layout, progress);
     }
-    let cols = Columns::parse(header)?;
+    // The bytes the CSV reader sees: after the preamble, blank runs as tabs.
+    let mut input: Box<dyn Read + 'a> = Box::new(input);
+    let (mut skipped_lines, mut skipped_bytes) = (0u32, 0u64);
+    if skip > 0 {
+        let mut buffered = std::io::BufReader::new(input);
+        (skipped_lines, skipped_bytes) =
+            input::skip_lines(&mut buffered, skip).map_err(CsvError::Read)?;
+        if skipped_lines < skip {
+            return Err(CsvError::ShortPreamble {
+                line: u64::from(skipped_lines) + 1,
+                skip,
+            });
+        }
+        input = Box::new(buffered);
+    }
+    let blanks_read = blanks.then(Rc::<std::cell::Cell<u64>>::default);
+    if let Some(counter) = &blanks_read {
+        input = Box::new(input::Blanks::new(input, Rc::clone(counter)));
+    }
+    let bytes_read = |reader: &csv::Reader<Box<dyn Read + 'a>>| {
+        skipped_bytes
+            + blanks_read
+                .as_ref()
+                .map_or_else(|| reader.position().byte(), |c| c.get())
+    };
+    replay_rows(
+        builder.from_reader(input),
+        bytes_read,
+        u64::from(skipped_lines),
+        config,
+        layout,
+        progress,
+    )
+}
+
+/// The replay proper, from the header on: `line_offset` lines were read
+/// before the reader's first, and `bytes_read` says how far into the file
+/// the reader is, for progress.
+fn replay_rows<R: Read>(
+    mut reader: csv::Reader<R>,
+    bytes_read: impl Fn(&csv::Reader<R>) -> u64,
+    line_offset: u64,
+    config: &RigConfig,
+    layout: Option<&CsvLayout>,
+    progress: Option<&indicatif::ProgressBar>,
+) -> Result<Replay, CsvError> {
+    let header_line = line_offset + 1;
+    let header = reader
+        .byte_headers()
+        .map_err(|e| csv_error(&e, header_line, line_offset))?;
+    if header.is_empty() || (header.len() == 1 && header[0].trim_ascii().is_empty()) {
+        return Err(CsvError::NoHeader { line: header_line });
+    }
+    let cols = Columns::parse(header, layout, header_line)?;
+    let unix_time = cols.time.unit.is_absolute();
+    let fold_hint = if cols.time.unit.zoned() {
+        "; local time without an offset: did the clocks go back an hour? (write zone offsets, or name a zone without daylight saving time)"
+    } else {
+        ""
+    };
 
     // ~450 KiB with a 4096-sample window: on the heap, not the stack.
     let mut monitor: Box<Monitor<WINDOW_CAPACITY, f64>> = Box::new(Monitor::new(config)?);
@@ -545,58 +615,37 @@ fn replay_here<R: Read>(
     loop {
         let more = reader
             .read_byte_record(&mut record)
-            .map_err(|e| csv_error(&e, 0))?;
+            .map_err(|e| csv_error(&e, 0, line_offset))?;
         if !more {
             break;
         }
-        let line = record.position().map_or(0, |p| p.line());
+        let line = record.position().map_or(0, |p| p.line()) + line_offset;
         // A blank line is not a row (the csv reader already skips most).
         if record.len() == 1 && record[0].trim_ascii().is_empty() {
             continue;
         }
-        let time_text = field(&record, cols.time, "time_s", line)?;
-        let t_s = reading(time_text, "time_s", line)?;
-        if !t_s.is_finite() {
-            return Err(CsvError::NoTime {
-                line,
-                text: crate::term::excerpt(&String::from_utf8_lossy(time_text), 40),
-            });
-        }
+        let t_s = cols.time(&record, line)?;
         let first = match first_s {
             None => *first_s.insert(t_s),
             Some(first) => {
                 if t_s <= last_s {
                     return Err(CsvError::TimeNotIncreasing {
                         line,
-                        time_s: t_s,
-                        previous_s: last_s,
+                        column: cols.time.cell.name.clone(),
+                        time: shown_time(t_s, unix_time),
+                        previous: shown_time(last_s, unix_time),
+                        hint: fold_hint,
                     });
                 }
                 first
             }
         };
-        let hot = reading(
-            field(&record, cols.hot.index, cols.hot.name, line)?,
-            cols.hot.name,
-            line,
-        )?;
-        let cold = reading(
-            field(&record, cols.cold.index, cols.cold.name, line)?,
-            cols.cold.name,
-            line,
-        )?;
-        let heat_in_w = reading(
-            field(&record, cols.heat_in, "heat_in_w", line)?,
-            "heat_in_w",
-            line,
-        )?;
-        let work_w = reading(field(&record, cols.work, "work_w", line)?, "work_w", line)?;
-        let heat_out_w = match cols.heat_out {
-            Some(i) => Some(reading(
-                field(&record, i, "heat_out_w", line)?,
-                "heat_out_w",
-                line,
-            )?),
+        let t_hot_k = cols.temperature(&cols.hot, &record, line)?;
+        let t_cold_k = cols.temperature(&cols.cold, &record, line)?;
+        let heat_in_w = cols.power(&cols.heat_in, &record, line)?;
+        let work_w = cols.power(&cols.work, &record, line)?;
+        let heat_out_w = match &cols.heat_out {
+            Some(c) => Some(cols.power(c, &record, line)?),
             None => None,
         };
         last_s = t_s;
@@ -604,15 +653,13 @@ fn replay_here<R: Read>(
 
         let sample = Sample {
             t_ms: offset_ms(t_s, first),
-            t_hot_k: hot + cols.hot.offset_k,
-            t_cold_k: cold + cols.cold.offset_k,
+            t_hot_k,
+            t_cold_k,
             heat_in_w,
             work_w,
             heat_out_w,
-            t_hot2_k: match cols.hot2 {
-                Some(c) => Some(
-                    reading(field(&record, c.index, c.name, line)?, c.name, line)? + c.offset_k,
-                ),
+            t_hot2_k: match &cols.hot2 {
+                Some(c) => Some(cols.temperature(c, &record, line)?),
                 None => None,
             },
         };
@@ -641,12 +688,12 @@ fn replay_here<R: Read>(
         if let Some(bar) = progress
             && rows.is_multiple_of(PROGRESS_EVERY_ROWS)
         {
-            bar.set_position(reader.position().byte());
+            bar.set_position(bytes_read(&reader));
         }
     }
 
     if let Some(bar) = progress {
-        bar.set_position(reader.position().byte());
+        bar.set_position(bytes_read(&reader));
     }
     Ok(Replay {
         mode: config.mode,
@@ -655,6 +702,8 @@ fn replay_here<R: Read>(
         invalid_samples: monitor.invalid_samples(),
         invalid_lines,
         unused_columns: cols.unused.clone(),
+        read_columns: cols.read.clone(),
+        unix_time,
         duration_s: first_s.map_or(0.0, |first| last_s - first),
         restarts: monitor.restarts(),
         heat_out_measured: monitor.heat_out_measured(),
@@ -674,9 +723,12 @@ fn replay_here<R: Read>(
     })
 }
 
-/// A csv-crate error on one line (its own position when it has one).
-fn csv_error(err: &csv::Error, default_line: u64) -> CsvError {
-    let line = err.position().map_or(default_line, |p| p.line());
+/// A csv-crate error on one line (its own position when it has one, after
+/// the `line_offset` lines of a skipped preamble).
+fn csv_error(err: &csv::Error, default_line: u64, line_offset: u64) -> CsvError {
+    let line = err
+        .position()
+        .map_or(default_line, |p| p.line() + line_offset);
     let message = match err.kind() {
         csv::ErrorKind::Io(e) => format!("cannot read the file: {e}"),
         csv::ErrorKind::Utf8 { err, .. } => format!("field {} is not valid UTF-8", err.field() + 1),
@@ -788,6 +840,9 @@ struct ReportJson {
     steady_at_end: bool,
     invalid_lines: Vec<u64>,
     unused_columns: Vec<UnusedColumn>,
+    /// With a `[csv]` table only: where each channel was read.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    columns: Vec<ReadColumn>,
     hot2_measured: Option<bool>,
     diagnosis: DiagnosisJson,
     time_to_limit_s: TimeToLimitJson,
@@ -836,6 +891,7 @@ impl Replay {
             invalid_samples: self.invalid_samples,
             invalid_lines: self.invalid_lines.clone(),
             unused_columns: self.unused_columns.clone(),
+            columns: self.read_columns.clone(),
             duration_s: self.duration_s,
             totals: TotalsJson {
                 figures: FiguresJson::new(t),
@@ -960,6 +1016,13 @@ impl Replay {
                 invalid_where(&self.invalid_lines, self.invalid_samples)
             ),
         );
+        for c in &self.read_columns {
+            row(
+                &mut out,
+                &format!("{} read from", c.channel),
+                format!("{} ({})", c.column, c.unit),
+            );
+        }
         for c in &self.unused_columns {
             row(
                 &mut out,
@@ -1093,20 +1156,33 @@ impl Replay {
         if self.events.is_empty() {
             let _ = writeln!(out, "  no alarms");
         } else {
+            // A time of day (Unix seconds) reads as UTC, to the millisecond.
+            let width = if self.unix_time { 24 } else { 12 };
             let _ = writeln!(
                 out,
-                "  {:>12}  {:<28} {:<13} severity",
-                "time_s", "rule", "event"
+                "  {:>width$}  {:<28} {:<13} severity",
+                if self.unix_time {
+                    "time (UTC)"
+                } else {
+                    "time_s"
+                },
+                "rule",
+                "event"
             );
             for e in &self.events {
                 let (rule, kind) = (e.event.rule.as_str(), e.event.kind.as_str());
+                let time = if self.unix_time {
+                    unix_time_text(e.t_s)
+                } else {
+                    format!("{:.3}", e.t_s)
+                };
                 let _ = writeln!(
                     out,
-                    "  {:>12.3}  {rule:<28} {kind:<13} {}",
-                    e.t_s, e.event.severity
+                    "  {time:>width$}  {rule:<28} {kind:<13} {}",
+                    e.event.severity
                 );
                 if let Some(d) = &e.diagnosis {
-                    let _ = writeln!(out, "  {:>12}  diagnosis then: {}", "", d.reason);
+                    let _ = writeln!(out, "  {:>width$}  diagnosis then: {}", "", d.reason);
                 }
             }
         }
@@ -1173,22 +1249,54 @@ mod tests {
         ];
         for text in cases {
             let expected: f64 = text.parse().unwrap();
-            match fast_decimal(text.as_bytes()) {
+            match fast_decimal(text.as_bytes(), b'.') {
                 Some(x) => assert_eq!(x.to_bits(), expected.to_bits(), "{text}"),
                 None => assert!(text.len() > 16, "{text} should take the fast path"),
             }
             assert_eq!(
-                reading(text.as_bytes(), "x", 2).unwrap().to_bits(),
+                reading(text.as_bytes(), POINT, "x", 2).unwrap().to_bits(),
                 expected.to_bits(),
                 "{text}"
             );
+            // The same number with a decimal comma, on both paths.
+            let comma = text.replace('.', ",");
+            if let Some(x) = fast_decimal(comma.as_bytes(), b',') {
+                assert_eq!(x.to_bits(), expected.to_bits(), "{comma}");
+            }
+            assert_eq!(
+                reading(comma.as_bytes(), COMMA, "x", 2).unwrap().to_bits(),
+                expected.to_bits(),
+                "{comma}"
+            );
         }
-        for text in ["", "-", ".", "1.2.3", "1e3", "nan", "12.x", "1 2"] {
-            assert_eq!(fast_decimal(text.as_bytes()), None, "{text}");
+        for text in ["", "-", ".", "1.2.3", "1e3", "nan", "12.x", "1 2", "1,5"] {
+            assert_eq!(fast_decimal(text.as_bytes(), b'.'), None, "{text}");
         }
-        assert!(reading(b"NaN", "x", 2).unwrap().is_nan());
-        assert!(reading(b"", "x", 2).unwrap().is_nan());
-        assert_eq!(reading(b"1e3", "x", 2).unwrap(), 1000.0);
-        assert!(reading(b"12.x", "x", 2).is_err());
+        assert_eq!(fast_decimal(b"1.5", b','), None);
+        assert!(reading(b"NaN", POINT, "x", 2).unwrap().is_nan());
+        assert!(reading(b"", POINT, "x", 2).unwrap().is_nan());
+        assert_eq!(reading(b"1e3", POINT, "x", 2).unwrap(), 1000.0);
+        assert_eq!(reading(b"1,5e3", COMMA, "x", 2).unwrap(), 1500.0);
+        assert!(reading(b"12.x", POINT, "x", 2).is_err());
+        // Words are invalid samples only with a [csv] table.
+        for word in ["-", "n/a", "N/A", "NaN"] {
+            assert!(reading(word.as_bytes(), COMMA, "x", 2).unwrap().is_nan());
+        }
+        assert!(reading(b"-", POINT, "x", 2).is_err());
+        assert!(reading(b"n/a", POINT, "x", 2).is_err());
+        // A decimal point where a comma is the mark is no number.
+        let err = reading(b"1.5", COMMA, "x", 2).unwrap_err().to_string();
+        assert!(err.contains("decimal mark is a comma"), "{err}");
+        let err = reading(b"1,5", POINT, "x", 2).unwrap_err().to_string();
+        assert!(err.contains("csv.decimal"), "{err}");
     }
+
+    const POINT: Numbers = Numbers {
+        point: b'.',
+        words: false,
+    };
+    const COMMA: Numbers = Numbers {
+        point: b',',
+        words: true,
+    };
 }

@@ -5,14 +5,23 @@
 //!
 //! ```text
 //! rig.toml --(toml)--> RigFile --validate--> RigConfig --> replay, audit, sil
+//!          \--[csv]--> CsvFile --validate--> CsvLayout --> replay (analyze)
 //! ```
+//!
+//! The `[csv]` table is the host's alone (the layout of a logger's files,
+//! [`crate::csv_layout`]): it is taken out of the document before the rest
+//! becomes a core [`RigFile`], and checked on its own, so every command
+//! accepts a `rig.toml` that has one and only `analyze` reads it.
 use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
 use heatbound::config::{ConfigError, RigConfig, RigFile};
 use heatbound::monitor::MonitorError;
+use serde::Deserialize as _;
+use toml::de::{DeTable, DeValue, Deserializer};
 
+use crate::csv_layout::{CsvConfigError, CsvFile, CsvLayout};
 use crate::replay::WINDOW_CAPACITY;
 
 /// A configuration that cannot be used: which file (or the built-in
@@ -55,6 +64,15 @@ pub enum Problem {
     /// The configuration does not fit the host monitor.
     #[error("{0}")]
     Monitor(String),
+    /// The `[csv]` table is not usable.
+    #[error("{at}{source}")]
+    Csv {
+        /// Where, or empty.
+        at: String,
+        /// What is wrong, naming the key.
+        #[source]
+        source: CsvConfigError,
+    },
     /// The built-in configuration does not validate.
     #[error(transparent)]
     BuiltIn(ConfigError),
@@ -96,6 +114,16 @@ fn locate_key(text: &str, dotted: &str) -> Option<usize> {
     Some(value.span().start)
 }
 
+/// A `rig.toml` read whole: the rig's configuration, and the layout of its
+/// logger's CSV files when the file has a `[csv]` table.
+#[derive(Clone, Debug)]
+pub struct RigToml {
+    /// The validated configuration.
+    pub config: RigConfig,
+    /// The `[csv]` table, validated; `None` without one.
+    pub csv: Option<CsvLayout>,
+}
+
 /// Reads and validates `rig.toml`, or the defaults without one.
 ///
 /// ```
@@ -103,6 +131,17 @@ fn locate_key(text: &str, dotted: &str) -> Option<usize> {
 /// assert!(config.window_samples > 0);
 /// ```
 pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
+    load_rig(path).map(|rig| rig.config)
+}
+
+/// Reads and validates `rig.toml` with its `[csv]` table, or the defaults
+/// (and no table) without one.
+///
+/// ```
+/// let rig = heatbound_host::rigfile::load_rig(None).unwrap();
+/// assert!(rig.csv.is_none());
+/// ```
+pub fn load_rig(path: Option<&Path>) -> Result<RigToml, RigFileError> {
     let Some(path) = path else {
         let built_in = |problem| RigFileError {
             file: "built-in configuration".to_owned(),
@@ -112,7 +151,7 @@ pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
             .validate()
             .map_err(|e| built_in(Problem::BuiltIn(e)))?;
         check_capacity(&config).map_err(|e| built_in(Problem::BuiltInMonitor(e)))?;
-        return Ok(config);
+        return Ok(RigToml { config, csv: None });
     };
     let name = path.display().to_string();
     let mut text = String::new();
@@ -122,7 +161,7 @@ pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
             problem: Problem::Read(e),
         });
     }
-    config_from_text(&text, &name)
+    rig_from_text(&text, &name)
 }
 
 /// Checks the text of a `rig.toml`; `name` is how errors refer to the file.
@@ -132,11 +171,60 @@ pub fn load_config(path: Option<&Path>) -> Result<RigConfig, RigFileError> {
 /// assert!(config.window_samples > 0);
 /// ```
 pub fn config_from_text(text: &str, name: &str) -> Result<RigConfig, RigFileError> {
-    let load = || -> Result<RigConfig, Problem> {
-        let file: RigFile = toml::from_str(text).map_err(|e| Problem::Toml {
+    rig_from_text(text, name).map(|rig| rig.config)
+}
+
+/// Checks the text of a `rig.toml` with its `[csv]` table; `name` is how
+/// errors refer to the file.
+///
+/// ```
+/// let text = "mode = \"engine\"\n[csv]\ndelimiter = \";\"\n";
+/// let rig = heatbound_host::rigfile::rig_from_text(text, "rig.toml").unwrap();
+/// assert!(rig.csv.is_some());
+/// let err = heatbound_host::rigfile::rig_from_text("[csv]\ndecimal = \"x\"\n", "rig.toml")
+///     .unwrap_err();
+/// assert!(heatbound_host::term::error_line(&err).contains("line 2, column 11: `csv.decimal`"));
+/// ```
+pub fn rig_from_text(text: &str, name: &str) -> Result<RigToml, RigFileError> {
+    let load = || -> Result<RigToml, Problem> {
+        let toml_problem = |e: toml::de::Error| Problem::Toml {
             at: e.span().map(|s| place(text, s.start)).unwrap_or_default(),
             message: one_line(e.message()),
-        })?;
+        };
+        let mut root = DeTable::parse(text).map_err(toml_problem)?;
+        let csv = root.get_mut().remove("csv");
+        let file = RigFile::deserialize(Deserializer::from(root)).map_err(toml_problem)?;
+        let csv = match csv {
+            None => None,
+            Some(value) => {
+                let span = value.span();
+                let DeValue::Table(table) = value.into_inner() else {
+                    return Err(Problem::Toml {
+                        at: place(text, span.start),
+                        message: "`csv` must be a table: [csv] followed by its keys".to_owned(),
+                    });
+                };
+                let raw = CsvFile::deserialize(Deserializer::from(toml::Spanned::new(span, table)))
+                    .map_err(toml_problem)?;
+                // A missing key is placed at the table that lacks it.
+                let near = |key: &str| {
+                    let mut key = key;
+                    loop {
+                        if let Some(offset) = locate_key(text, key) {
+                            return place(text, offset);
+                        }
+                        match key.rsplit_once('.') {
+                            Some((parent, _)) => key = parent,
+                            None => return String::new(),
+                        }
+                    }
+                };
+                Some(CsvLayout::validate(&raw).map_err(|source| Problem::Csv {
+                    at: near(source.key()),
+                    source,
+                })?)
+            }
+        };
         let config = file.validate().map_err(|source| {
             let at = match source {
                 ConfigError::OutOfRange { key, .. } => {
@@ -155,7 +243,7 @@ pub fn config_from_text(text: &str, name: &str) -> Result<RigConfig, RigFileErro
                 .unwrap_or_default();
             Problem::Monitor(format!("{at}{e}"))
         })?;
-        Ok(config)
+        Ok(RigToml { config, csv })
     };
     load().map_err(|problem| RigFileError {
         file: name.to_owned(),

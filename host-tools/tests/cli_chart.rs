@@ -196,7 +196,12 @@ fn an_svg_names_its_axes_series_and_alarm_events() {
         "{stdout}"
     );
     let text = std::fs::read_to_string(&svg).expect("the SVG, as text");
-    assert!(text.starts_with("<svg"), "{}", &text[..text.len().min(200)]);
+    // A comment that marks it as drawn here, then the picture.
+    assert!(
+        text.starts_with("<!-- heatbound chart -->\n<svg"),
+        "{}",
+        &text[..text.len().min(200)]
+    );
     assert!(text.contains(r#"width="1400""#) && text.contains(r#"height="1000""#));
     for label in [
         // The four panels' axes (titles wrapped to the panel's height) and
@@ -425,5 +430,77 @@ fn unreadable_input_and_a_bad_extension_are_one_line_errors() {
         &chart(&[dir.path().as_os_str()]),
         &format!("{}: cannot open: is a directory", dir.path().display()),
     );
+    assert_no_partial_files(dir.path());
+}
+
+#[test]
+fn a_chart_replaces_only_a_picture_it_drew() {
+    let dir = TempDir::new().expect("temp dir");
+    let db = simulated_log(&dir, "steady", 60);
+    let png = dir.path().join("mine.png");
+    let (code, _, stderr) = chart(&[db.as_os_str(), "--out".as_ref(), png.as_os_str()]);
+    assert_eq!(code, Some(0), "{stderr}");
+    // Every chunk's CRC checks out with Python's zlib (an independent
+    // CRC-32), and the mark is a tEXt chunk right after IHDR (W3C PNG
+    // §5.3 chunk layout, §11.3.4.3 tEXt).
+    let check = std::process::Command::new("python3")
+        .arg("-c")
+        .arg(
+            "import struct, sys, zlib\n\
+             b = open(sys.argv[1], 'rb').read()\n\
+             assert b[:8] == b'\\x89PNG\\r\\n\\x1a\\n'\n\
+             i, kinds = 8, []\n\
+             while i < len(b):\n\
+             \x20   n, = struct.unpack('>I', b[i:i+4]); t = b[i+4:i+8]; d = b[i+8:i+8+n]\n\
+             \x20   crc, = struct.unpack('>I', b[i+8+n:i+12+n])\n\
+             \x20   assert zlib.crc32(t + d) == crc, t\n\
+             \x20   kinds.append((t, d)); i += 12 + n\n\
+             assert kinds[1] == (b'tEXt', b'Software\\x00heatbound chart'), kinds[1]\n\
+             assert kinds[-1][0] == b'IEND'\n\
+             print('ok')",
+        )
+        .arg(&png)
+        .output()
+        .expect("python3");
+    assert_eq!(
+        String::from_utf8_lossy(&check.stdout).trim(),
+        "ok",
+        "{}",
+        String::from_utf8_lossy(&check.stderr)
+    );
+    // Its own picture, PNG or SVG, is drawn over again; so is an empty file.
+    let (code, _, stderr) = chart(&[db.as_os_str(), "--out".as_ref(), png.as_os_str()]);
+    assert_eq!(code, Some(0), "{stderr}");
+    let svg = dir.path().join("mine.svg");
+    for _ in 0..2 {
+        let (code, _, stderr) = chart(&[db.as_os_str(), "--out".as_ref(), svg.as_os_str()]);
+        assert_eq!(code, Some(0), "{stderr}");
+    }
+    let empty = dir.path().join("empty.png");
+    std::fs::write(&empty, b"").expect("write");
+    let (code, _, stderr) = chart(&[db.as_os_str(), "--out".as_ref(), empty.as_os_str()]);
+    assert_eq!(code, Some(0), "{stderr}");
+    // Someone else's picture, or a copy of ours with its mark removed, is
+    // left as it was.
+    let mut stripped = std::fs::read(&png).expect("read");
+    stripped.drain(33..33 + 12 + 24);
+    for (name, bytes) in [
+        ("photo.png", b"\x89PNG\r\n\x1a\nsomeone's photo".to_vec()),
+        (
+            "drawing.svg",
+            b"<svg xmlns=\"http://www.w3.org/2000/svg\"/>".to_vec(),
+        ),
+        ("stripped.png", stripped),
+    ] {
+        let path = dir.path().join(name);
+        std::fs::write(&path, &bytes).expect("write");
+        let result = chart(&[db.as_os_str(), "--out".as_ref(), path.as_os_str()]);
+        assert_one_line_error(&result, "is not a chart heatbound drew");
+        assert_eq!(
+            std::fs::read(&path).expect("read"),
+            bytes,
+            "{name} unchanged"
+        );
+    }
     assert_no_partial_files(dir.path());
 }

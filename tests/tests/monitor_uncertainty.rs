@@ -156,6 +156,47 @@ fn expected(case: &Value, key: &str) -> (f64, f64) {
     (num(&e["value"]), num(&e["u"]))
 }
 
+/// The case's mode, and a monitor with its samples pushed (the window
+/// holds them all, so window and totals are the whole run).
+fn replayed(case: &Value) -> (Mode, Box<Monitor<256, f64>>) {
+    let name = case["name"].as_str().unwrap();
+    let mode = match case["mode"].as_str().unwrap() {
+        "engine" => Mode::Engine,
+        "heat_pump" => Mode::HeatPump,
+        "cooler" => Mode::Cooler,
+        other => panic!("{name}: unknown mode {other}"),
+    };
+    let u = &case["uncertainty"];
+    let samples = case["samples"].as_array().unwrap();
+    let cfg = config(RigFile {
+        mode: Some(mode),
+        ambient_k: case["ambient_k"].as_f64(),
+        window_samples: Some(samples.len() as u32),
+        uncertainty: Some(UncertaintyFile {
+            hot_k: Some(num(&u["hot_k"])),
+            cold_k: Some(num(&u["cold_k"])),
+            heat_in_rel: Some(num(&u["heat_in_rel"])),
+            work_rel: Some(num(&u["work_rel"])),
+            heat_out_rel: Some(num(&u["heat_out_rel"])),
+            hot2_k: None,
+        }),
+        ..Default::default()
+    });
+    let mut m: Monitor<256, f64> = Monitor::new(&cfg).unwrap();
+    for s in samples {
+        m.push(&sample::<f64>(
+            s["t_ms"].as_u64().unwrap() as u32,
+            num(&s["t_hot_k"]),
+            num(&s["t_cold_k"]),
+            num(&s["heat_in_w"]),
+            num(&s["work_w"]),
+            s["heat_out_w"].as_f64(),
+        ));
+    }
+    assert_eq!(m.invalid_samples(), 0, "{name}");
+    (mode, Box::new(m))
+}
+
 #[test]
 fn varying_runs_match_pypi_uncertainties_vectors() {
     let text = include_str!("../vectors/gum_cases.json");
@@ -165,40 +206,7 @@ fn varying_runs_match_pypi_uncertainties_vectors() {
     let mut worst = 0.0_f64;
     for case in cases {
         let name = case["name"].as_str().unwrap();
-        let mode = match case["mode"].as_str().unwrap() {
-            "engine" => Mode::Engine,
-            "heat_pump" => Mode::HeatPump,
-            "cooler" => Mode::Cooler,
-            other => panic!("{name}: unknown mode {other}"),
-        };
-        let u = &case["uncertainty"];
-        let samples = case["samples"].as_array().unwrap();
-        let cfg = config(RigFile {
-            mode: Some(mode),
-            ambient_k: case["ambient_k"].as_f64(),
-            window_samples: Some(samples.len() as u32),
-            uncertainty: Some(UncertaintyFile {
-                hot_k: Some(num(&u["hot_k"])),
-                cold_k: Some(num(&u["cold_k"])),
-                heat_in_rel: Some(num(&u["heat_in_rel"])),
-                work_rel: Some(num(&u["work_rel"])),
-                heat_out_rel: Some(num(&u["heat_out_rel"])),
-                hot2_k: None,
-            }),
-            ..Default::default()
-        });
-        let mut m: Monitor<256, f64> = Monitor::new(&cfg).unwrap();
-        for s in samples {
-            m.push(&sample::<f64>(
-                s["t_ms"].as_u64().unwrap() as u32,
-                num(&s["t_hot_k"]),
-                num(&s["t_cold_k"]),
-                num(&s["heat_in_w"]),
-                num(&s["work_w"]),
-                s["heat_out_w"].as_f64(),
-            ));
-        }
-        assert_eq!(m.invalid_samples(), 0, "{name}");
+        let (mode, m) = replayed(case);
         // The window holds every sample, so it must equal the totals.
         for (which, got) in [
             ("totals", m.totals_metrics()),
@@ -281,4 +289,88 @@ fn correlations_matter_with_varying_temperatures() {
         rel_diff(u_margin, quadrature) > 1e-6,
         "u(margin) {u_margin:e} vs quadrature {quadrature:e}"
     );
+}
+
+#[test]
+fn budget_matches_pypi_uncertainties_sensitivities() {
+    // Source: the `sensitivity` of every figure in tests/vectors/gum_cases.json,
+    // PyPI `uncertainties` 3.2.3's own derivatives ∂f/∂x_i (GUM §5.1.3,
+    // c_i), written by tests/tools/gum_vectors.py. Each coefficient the
+    // monitor's budget gives must match, and the squares of the
+    // contributions c_i·u(x_i) must add up to the figure's u_c² (GUM eq. 10),
+    // so that the shares a report prints sum to 1.
+    let doc: Value = serde_json::from_str(include_str!("../vectors/gum_cases.json")).unwrap();
+    let names = ["hot", "cold", "heat_in", "work", "heat_out"];
+    let mut checked = 0;
+    for case in doc["cases"].as_array().unwrap() {
+        let name = case["name"].as_str().unwrap();
+        let (mode, m) = replayed(case);
+        let budget = m.totals_integrals().budget(m.settings());
+        let totals = m.totals_metrics();
+        let (perf, bound) = if mode == Mode::Engine {
+            ("efficiency", "carnot_efficiency")
+        } else {
+            ("cop", "carnot_cop")
+        };
+        for (key, c, u_c) in [
+            (
+                perf,
+                budget.performance,
+                totals.u_efficiency.or(totals.u_cop),
+            ),
+            (
+                bound,
+                budget.bound,
+                totals.u_carnot_efficiency.or(totals.u_carnot_cop),
+            ),
+            ("carnot_margin", budget.margin, totals.u_carnot_margin),
+            (
+                "entropy_generated_j_per_k",
+                budget.entropy_generated,
+                totals.u_entropy_generated_j_per_k,
+            ),
+            (
+                "entropy_rate_w_per_k",
+                budget.entropy_rate,
+                totals.u_entropy_rate_w_per_k,
+            ),
+            // Figures whose u only the budget gives: against the vectors' u.
+            ("exergy_destroyed_j", budget.exergy_destroyed, None),
+            ("heat_in_j", Some(budget.heat_in), None),
+            ("work_j", Some(budget.work), None),
+            ("heat_out_j", Some(budget.heat_out), None),
+        ] {
+            let what = format!("{name} {key}");
+            let c = c.unwrap_or_else(|| panic!("{what}: no budget"));
+            let want = &case["expected"][key];
+            let u_c = u_c.unwrap_or_else(|| num(&want["u"]));
+            let contributions = budget.contributions(&c);
+            for (i, input) in names.iter().enumerate() {
+                let want_c = num(&want["sensitivity"][input]);
+                // Against the figure's own u: a coefficient that is zero in
+                // the model (heat out when inferred) compares at zero.
+                let diff = (c[i] - want_c).abs() * budget.u[i];
+                assert!(
+                    diff <= 1e-9 * num(&want["u"]),
+                    "{what}: c({input}) = {:e}, uncertainties gives {want_c:e}",
+                    c[i]
+                );
+            }
+            let shares: f64 = contributions.iter().map(|x| x * x / (u_c * u_c)).sum();
+            assert!(
+                (shares - 1.0).abs() < 1e-12,
+                "{what}: shares sum to {shares}"
+            );
+            let var = budget.variance(&c).unwrap();
+            close(&format!("u_c({what})"), Some(var.sqrt()), u_c, 1e-12);
+            close(
+                &format!("u_c({what}) against the vectors"),
+                Some(var.sqrt()),
+                num(&want["u"]),
+                1e-9,
+            );
+            checked += 1;
+        }
+    }
+    assert_eq!(checked, 7 * 9, "every figure of every case");
 }

@@ -30,7 +30,11 @@ Usage (from the workspace root):
 
 Writes tests/vectors/gum_cases.json: per case, the settings, the samples
 (exact decimal round-trip of the f64 values) and the expected nominal values
-and standard uncertainties.
+and standard uncertainties (the energies and the exergy destroyed too), and
+for each figure its sensitivity coefficients
+c_i = df/dx_i to the five inputs (`uncertainties`' own derivatives, signed;
+GUM §5.1.3), from which each input's contribution c_i u(x_i) follows (the
+uncertainty budget of `heatbound report`).
 """
 import json
 import math
@@ -119,13 +123,28 @@ def figures(case):
         s_gen = s_out_int + loss / t0 - s_in_int
         r["balance_residual_j"] = sign * loss
     else:
+        # Default T0 with heat out inferred: the heat-weighted T_c.
+        t0 = ambient if ambient is not None else t_c
         s_gen = s_out_int - s_in_int
     s_gen = sign * s_gen
     r["entropy_generated_j_per_k"] = s_gen
     r["entropy_rate_w_per_k"] = s_gen / duration
-    return {
-        k: {"value": uncertainties.nominal_value(v), "u": uncertainties.std_dev(v)} for k, v in r.items()
-    }
+    # Gouy-Stodola: exergy destroyed T0 * S_gen, T0 itself measured when
+    # it is the cold-side mean.
+    r["exergy_destroyed_j"] = t0 * s_gen
+    # The energies: scale errors only.
+    r["heat_in_j"] = q_in
+    r["work_j"] = w
+    r["heat_out_j"] = q_out
+    inputs = {"hot": d_hot, "cold": d_cold, "heat_in": s_in, "work": s_w, "heat_out": s_out}
+
+    def entry(v):
+        e = {"value": uncertainties.nominal_value(v), "u": uncertainties.std_dev(v)}
+        derivatives = getattr(v, "derivatives", {})
+        e["sensitivity"] = {name: derivatives.get(x, 0.0) for name, x in inputs.items()}
+        return e
+
+    return {k: entry(v) for k, v in r.items()}
 
 
 def main():

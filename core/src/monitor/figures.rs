@@ -8,7 +8,7 @@ use crate::num::{Real, fin, ratio};
 
 use super::integrals::Integrals;
 use super::settings::{FigureSettings, Mode};
-use super::uncertainty::{Partials, std_uncertainty};
+use super::uncertainty::{Budget, Partials, std_uncertainty};
 
 /// Every figure of a window or run. `None` means *not available*.
 ///
@@ -173,6 +173,107 @@ impl<R: Real> Integrals<R> {
         m
     }
 
+    /// The uncertainty budget of these integrals' figures: each figure's
+    /// sensitivity coefficients to the five systematic inputs, from the
+    /// same partials [`Integrals::metrics`] combines into its `u_*`.
+    ///
+    /// ```
+    /// use heatbound::config::RigConfig;
+    /// use heatbound::monitor::{FigureSettings, Integrals};
+    /// // The steady engine of `metrics`: 1000 W in, 150 W out, 600 K and 300 K.
+    /// let i: Integrals<f64> = Integrals {
+    ///     duration_s: 1.0, heat_in_j: 1000.0, work_j: 150.0, heat_out_j: 850.0,
+    ///     heat_out_measured: false,
+    ///     entropy_in_j_per_k: 1000.0 / 600.0, entropy_out_j_per_k: 850.0 / 300.0,
+    ///     hot_sensitivity: 1000.0 / 360000.0, cold_sensitivity: 850.0 / 90000.0,
+    ///     cold_heat_in_j_per_k: 1000.0 / 300.0, cold_work_j_per_k: 150.0 / 300.0,
+    ///     cold_temperature_integral_k_s: 0.0,
+    ///     hot_temperature_integral_k_s: 600.0, hot2_measured: false,
+    ///     hot_pair_integral_k_s: 0.0,
+    /// };
+    /// let settings = FigureSettings::new(&RigConfig::default());
+    /// let b = i.budget(&settings);
+    /// // η = W/Q_in: a heat-in scale error s moves it by −η·s, work by +η·s.
+    /// let c = b.performance.unwrap();
+    /// assert_eq!((c[2], c[3]), (-0.15, 0.15));
+    /// // The squares of the contributions add up to u(η)².
+    /// let u = i.metrics(&settings).u_efficiency.unwrap();
+    /// assert!((b.variance(&c).unwrap().sqrt() - u).abs() < 1e-15);
+    /// ```
+    pub fn budget(&self, settings: &FigureSettings) -> Budget<R> {
+        let p = Prepared::new(settings);
+        let c = self.second_law::<true>(&p);
+        // The partials of S_gen are kept in the engine's convention (the sign
+        // does not matter to u); a budget shows signed coefficients.
+        let sign = if settings.mode.is_reverse() {
+            -R::ONE
+        } else {
+            R::ONE
+        };
+        let d_s = c.d_s.map(|d| d.scale(sign));
+        // T0's partials: none when configured; the time mean of T_cold moves
+        // one for one with a cold offset; T_c as the bound's T_c does.
+        let d_t0 = match (p.ambient, self.heat_out_measured) {
+            (Some(_), _) => Partials::default(),
+            (None, true) => Partials {
+                cold: R::ONE,
+                ..Partials::default()
+            },
+            (None, false) => self.cold_mean_partials(),
+        };
+        // Gouy–Stodola, T0·S_gen, with T0's own partials when it is measured.
+        let exergy_destroyed = match (d_s, c.s_gen, c.t0) {
+            (Some(ds), Some(s), Some(t0)) => Some(ds.scale(t0).add(d_t0.scale(s))),
+            _ => None,
+        };
+        let zero = R::ZERO;
+        let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
+        Budget {
+            u: p.u,
+            performance: c.d_perf.map(Partials::to_array),
+            bound: c.d_bound.map(Partials::to_array),
+            margin: match (c.d_perf, c.d_bound) {
+                (Some(dp), Some(db)) => Some(db.sub(dp).to_array()),
+                _ => None,
+            },
+            entropy_generated: d_s.map(Partials::to_array),
+            entropy_rate: d_s
+                .and_then(|d| ratio(R::ONE, self.duration_s).map(|inv| d.scale(inv).to_array())),
+            exergy_destroyed: exergy_destroyed.map(Partials::to_array),
+            heat_in: [zero, zero, qi, zero, zero],
+            work: [zero, zero, zero, w, zero],
+            heat_out: if self.heat_out_measured {
+                [zero, zero, zero, zero, qo]
+            } else {
+                [zero, zero, qi, -w, zero]
+            },
+        }
+    }
+
+    /// The partials of the heat-weighted `T_c = Q_out/∫q_out/T_cold dt`: a
+    /// cold offset, and with heat out inferred (`q_in − w`) the heat-in and
+    /// work scales too. Zero without heat out.
+    // Inlined: on the per-sample path it is dead code, and dropped.
+    #[inline(always)]
+    fn cold_mean_partials(&self) -> Partials<R> {
+        let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
+        let (so, so2) = (self.entropy_out_j_per_k, self.cold_sensitivity);
+        let (ca, cb) = (self.cold_heat_in_j_per_k, self.cold_work_j_per_k);
+        match ratio(R::ONE, so * so) {
+            Some(inv) if self.heat_out_measured => Partials {
+                cold: qo * so2 * inv,
+                ..Partials::default()
+            },
+            Some(inv) => Partials {
+                cold: qo * so2 * inv,
+                heat_in: (qi * so - qo * ca) * inv,
+                work: (qo * cb - w * so) * inv,
+                ..Partials::default()
+            },
+            None => Partials::default(),
+        }
+    }
+
     /// Only the figures the alarm rules read: the per-sample path, which
     /// skips everything [`Integrals::metrics`] adds for reports.
     pub fn alarm_figures(&self, settings: &FigureSettings) -> AlarmFigures<R> {
@@ -228,19 +329,7 @@ impl<R: Real> Integrals<R> {
             hot: ratio(qi * si2, si * si).unwrap_or(zero),
             ..Partials::default()
         };
-        let d_tc = match ratio(R::ONE, so * so) {
-            Some(inv) if measured => Partials {
-                cold: qo * so2 * inv,
-                ..Partials::default()
-            },
-            Some(inv) => Partials {
-                cold: qo * so2 * inv,
-                heat_in: (qi * so - qo * ca) * inv,
-                work: (qo * cb - w * so) * inv,
-                ..Partials::default()
-            },
-            None => Partials::default(),
-        };
+        let d_tc = self.cold_mean_partials();
 
         // The figure of merit and its bound.
         let (perf, d_perf, bound, d_bound) = match mode {

@@ -76,3 +76,4 @@ pub use settings::{
     FigureSettings, Health, Mode, MonitorConfig, MonitorSettings, Steady, Uncertainty,
 };
 pub use trend::{Line, TREND_POINTS, TrendTracker, Trends};
+pub use uncertainty::Budget;

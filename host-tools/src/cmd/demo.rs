@@ -4,7 +4,8 @@
 //! sender thread:   sil::Simulation (thermocouple-drift, paced) <--wire bytes--> TCP 127.0.0.1
 //! this thread:     TCP --> Ingest (decoder, link tracker, SQLite log, live lines)
 //!                  the operator's acknowledge --> Downlink (demo key) --> TCP --> Reply
-//! afterwards:      the log --> audit --> report; the log --> chart (PNG beside it); where both are
+//! afterwards:      the log --> audit --> report; the log --> chart (PNG beside it) and the
+//!                  HTML test report (beside it too); where each is
 //! ```
 //!
 //! The simulated bench rig runs the same controller as the firmware
@@ -34,8 +35,9 @@ use heatbound_host::term;
     allow_negative_numbers = true,
     after_help = "The demo starts a fresh log at --db: an existing heatbound log of that \
 name is replaced, any other file is refused and left untouched. It ends with the audit of \
-what it logged, and draws its chart beside the log (--db heatbound-demo.sqlite: \
-heatbound-demo.png)."
+what it logged, and draws its chart and writes its HTML test report beside the log (--db \
+heatbound-demo.sqlite: heatbound-demo.png and heatbound-demo.html; an existing file of that name \
+that is not a heatbound report is refused and left untouched)."
 )]
 pub struct Args {
     /// The log database the demo writes.
@@ -75,8 +77,17 @@ pub fn run(args: &Args) -> Result<()> {
             args.db.display()
         );
     }
-    // Refuse a --db that is not a heatbound log before anything starts.
+    let report_out = heatbound_host::report::default_out(&args.db);
+    if report_out == args.db {
+        bail!(
+            "--db {}: the report written beside it would replace the log; name it .sqlite",
+            args.db.display()
+        );
+    }
+    // Refuse a --db that is not a heatbound log, or a report's place that
+    // holds another file, before anything starts.
     link::check_log_target(&args.db)?;
+    heatbound_host::report::check_target(&report_out, &[&args.db])?;
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
     println!("{}", heatbound_host::term::SAFETY_NOTE);
     println!();
@@ -156,11 +167,14 @@ pub fn run(args: &Args) -> Result<()> {
     // Draw it, as `heatbound chart` would.
     let chart = heatbound_host::chart::default_out(&args.db);
     heatbound_host::chart::write_chart(&args.db, None, &chart)?;
-    let shown = std::fs::canonicalize(&args.db).unwrap_or_else(|_| args.db.clone());
-    let chart_shown = std::fs::canonicalize(&chart).unwrap_or_else(|_| chart.clone());
+    // And report on it, as `heatbound report` would.
+    let page = heatbound_host::report::from_log(&args.db, None, &config)?;
+    heatbound_host::report::write(&page, &report_out, &[&args.db])?;
+    let shown = |p: &Path| std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
     println!();
-    println!("log written to {}", shown.display());
-    println!("chart written to {}", chart_shown.display());
+    println!("log written to {}", shown(&args.db).display());
+    println!("chart written to {}", shown(&chart).display());
+    println!("report written to {}", shown(&report_out).display());
     let db = args.db.display().to_string();
     println!("re-check it with `{}`", term::how_to_run(&["audit", &db]));
     println!("redraw it with `{}`", term::how_to_run(&["chart", &db]));
