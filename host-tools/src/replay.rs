@@ -10,6 +10,7 @@
 //!          --(csv, one reused ByteRecord)--> Columns (header, checked once)
 //!          --> cells to s, K, W --> Sample<f64> per row --> Monitor<4096, f64>::push
 //!          --> AlarmSet::update --> Replay (counts, events, final metrics) --> table or JSON
+//!          \--each Row--> a follower, if any (the report's controller: replay_file_following)
 //! rig.toml --(toml)--> RigFile --validate--> RigConfig
 //!          \--[csv]--> CsvLayout (crate::csv_layout)
 //! ```
@@ -30,7 +31,7 @@ use std::rc::Rc;
 use heatbound::alarm::{AlarmSet, Event, EventKind, TimeToLimit, time_to_limit};
 use heatbound::config::{Mode, RigConfig};
 use heatbound::diagnosis::Tracker;
-use heatbound::monitor::{Metrics, Monitor, MonitorError, Sample};
+use heatbound::monitor::{Integrals, Metrics, Monitor, MonitorError, Sample};
 use serde::Serialize;
 
 use crate::csv_layout::{CsvLayout, Delimiter, TimeCellError};
@@ -321,6 +322,20 @@ pub struct TimedEvent {
     pub diagnosis: Option<Box<DiagnosisJson>>,
 }
 
+/// One row as the replay hands it to its monitor, for a caller that
+/// follows the replay ([`replay_file_following`]).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Row {
+    /// The row's time, seconds, as in [`TimedEvent::t_s`].
+    pub t_s: f64,
+    /// Whether `t_s` is Unix seconds (`[csv]` time `iso8601` or
+    /// `excel_days`) rather than seconds of the logger's own clock.
+    pub unix_time: bool,
+    /// The sample pushed: its `t_ms` counts from the first row, invalid
+    /// readings are NaN.
+    pub sample: Sample<f64>,
+}
+
 /// Everything a replay found.
 #[derive(Clone, Debug)]
 pub struct Replay {
@@ -350,6 +365,10 @@ pub struct Replay {
     pub heat_out_measured: Option<bool>,
     /// Run totals.
     pub totals: Metrics<f64>,
+    /// The run's own integrals behind [`Replay::totals`], sensitivities
+    /// included: [`Integrals::budget`] of them gives the signed
+    /// sensitivity coefficients that the totals' uncertainties combine.
+    pub totals_integrals: Integrals<f64>,
     /// Final window.
     pub window: Metrics<f64>,
     /// Valid samples in the final window.
@@ -447,6 +466,34 @@ pub fn replay_file_with(
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Replay, ReplayError> {
+    replay_file_following(path, config, layout, progress, |_: &Row| {})
+}
+
+/// [`replay_file_with`], handing every row to `follow` as it is pushed to
+/// the monitor, in file order (blank lines are no row). `follow` runs on
+/// the replay's own thread, so whatever it builds stays as flat in memory
+/// as the replay, if it keeps no rows.
+///
+/// ```
+/// use heatbound::config::RigConfig;
+/// use heatbound_host::replay::{Row, replay_file_following};
+/// let dir = tempfile::tempdir().unwrap();
+/// let csv = dir.path().join("run.csv");
+/// std::fs::write(&csv, "time_s,hot_c,cold_c,heat_in_w,work_w\n5,500,25,400,40\n6,500,25,400,40\n").unwrap();
+/// let mut times = Vec::new();
+/// let replay = replay_file_following(&csv, &RigConfig::default(), None, None, |r: &Row| {
+///     times.push((r.t_s, r.sample.t_ms));
+/// }).unwrap();
+/// assert_eq!(times, [(5.0, 0), (6.0, 1000)]);
+/// assert_eq!(replay.totals_integrals.heat_in_j, 400.0);
+/// ```
+pub fn replay_file_following(
+    path: &Path,
+    config: &RigConfig,
+    layout: Option<&CsvLayout>,
+    progress: Option<&indicatif::ProgressBar>,
+    follow: impl FnMut(&Row) + Send,
+) -> Result<Replay, ReplayError> {
     let name = path.display().to_string();
     let file = File::open(path).map_err(|e| ReplayError {
         file: name.clone(),
@@ -457,7 +504,7 @@ pub fn replay_file_with(
     {
         bar.set_length(meta.len());
     }
-    replay_with(file, config, layout, progress).map_err(|problem| ReplayError {
+    replay_following(file, config, layout, progress, follow).map_err(|problem| ReplayError {
         file: name,
         problem,
     })
@@ -487,11 +534,25 @@ pub fn replay_with<R: Read + Send>(
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Replay, CsvError> {
+    replay_following(input, config, layout, progress, |_: &Row| {})
+}
+
+/// [`replay_with`], handing every row to `follow` (see
+/// [`replay_file_following`]).
+fn replay_following<R: Read + Send>(
+    input: R,
+    config: &RigConfig,
+    layout: Option<&CsvLayout>,
+    progress: Option<&indicatif::ProgressBar>,
+    follow: impl FnMut(&Row) + Send,
+) -> Result<Replay, CsvError> {
     std::thread::scope(|scope| {
         let worker = std::thread::Builder::new()
             .name("replay".into())
             .stack_size(REPLAY_STACK_BYTES)
-            .spawn_scoped(scope, || replay_here(input, config, layout, progress))
+            .spawn_scoped(scope, || {
+                replay_here(input, config, layout, progress, follow)
+            })
             .map_err(CsvError::Read)?;
         worker.join().unwrap_or_else(|_| {
             Err(CsvError::Read(std::io::Error::other(
@@ -525,6 +586,7 @@ fn replay_here<'a, R: Read + 'a>(
     config: &RigConfig,
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
+    follow: impl FnMut(&Row),
 ) -> Result<Replay, CsvError> {
     let mut builder = csv::ReaderBuilder::new();
     builder
@@ -537,7 +599,15 @@ fn replay_here<'a, R: Read + 'a>(
     if skip == 0 && !blanks {
         // The file as it is, straight into the CSV reader.
         let reader = builder.from_reader(input);
-        return replay_rows(reader, |r| r.position().byte(), 0, config, layout, progress);
+        return replay_rows(
+            reader,
+            |r| r.position().byte(),
+            0,
+            config,
+            layout,
+            progress,
+            follow,
+        );
     }
     // The bytes the CSV reader sees: after the preamble, blank runs as tabs.
     let mut input: Box<dyn Read + 'a> = Box::new(input);
@@ -571,12 +641,15 @@ fn replay_here<'a, R: Read + 'a>(
         config,
         layout,
         progress,
+        follow,
     )
 }
 
 /// The replay proper, from the header on: `line_offset` lines were read
 /// before the reader's first, and `bytes_read` says how far into the file
-/// the reader is, for progress.
+/// the reader is, for progress; `follow` sees every row as it is pushed.
+// Each argument is one of the replay's inputs; a struct would only name them again.
+#[allow(clippy::too_many_arguments)]
 fn replay_rows<R: Read>(
     mut reader: csv::Reader<R>,
     bytes_read: impl Fn(&csv::Reader<R>) -> u64,
@@ -584,6 +657,7 @@ fn replay_rows<R: Read>(
     config: &RigConfig,
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
+    mut follow: impl FnMut(&Row),
 ) -> Result<Replay, CsvError> {
     let header_line = line_offset + 1;
     let header = reader
@@ -666,6 +740,11 @@ fn replay_rows<R: Read>(
         // Invalid samples go in too: the sensor_fault rule needs them.
         let invalid_before = monitor.invalid_samples();
         monitor.push(&sample);
+        follow(&Row {
+            t_s,
+            unix_time,
+            sample,
+        });
         tracker.observe(&monitor, sample.t_ms);
         last_t_ms = sample.t_ms;
         if monitor.invalid_samples() != invalid_before && invalid_lines.len() < INVALID_LINES_KEPT {
@@ -708,6 +787,7 @@ fn replay_rows<R: Read>(
         restarts: monitor.restarts(),
         heat_out_measured: monitor.heat_out_measured(),
         totals: monitor.totals_metrics(),
+        totals_integrals: monitor.totals_integrals(),
         window: monitor.window_metrics(),
         window_samples: monitor.window_samples(),
         steady_fraction: monitor.steady_fraction(),

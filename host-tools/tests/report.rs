@@ -4,7 +4,10 @@
 //! - The run totals of a log (windows that meet end to end) against the
 //!   monitor's own f64 totals of the same samples.
 //! - The uncertainty budget of a CSV replay against the GUM vectors of
-//!   `tests/vectors/gum_cases.json` (PyPI `uncertainties`, JCGM 100:2008).
+//!   `tests/vectors/gum_cases.json` (PyPI `uncertainties`, JCGM 100:2008),
+//!   signed coefficients included.
+//! - A CSV file's steady periods (two plateaus joined by a ramp) against
+//!   the plateaus' figures worked out by hand, and its chart.
 //! - The command line: the page, refusals to overwrite what is not ours,
 //!   one-line errors, and `demo` writing its report.
 //! - The page in a real browser (headless Chromium): no console message, no
@@ -285,8 +288,9 @@ fn csv_budget_matches_the_gum_vectors() {
     // Source: tests/vectors/gum_cases.json, written by
     // tests/tools/gum_vectors.py with PyPI `uncertainties` 3.2.3 (GUM JCGM
     // 100:2008 §5.1.2, exact derivatives). For each case and each of η (or
-    // COP), its bound, the margin and σ̇, the report's contribution of every
-    // input must be |c_i|·u(x_i) of the vector's own c_i, the shares must
+    // COP), its bound, the margin and σ̇, the report's coefficient of every
+    // input must be the vector's own c_i, with its sign, and its
+    // contribution |c_i|·u(x_i); the shares must
     // sum to 1, and the contributions' squares must add up to the vector's
     // u² (first order is exact in both: rounding only).
     let vectors = root().join("tests/vectors/gum_cases.json");
@@ -301,7 +305,15 @@ fn csv_budget_matches_the_gum_vectors() {
         let name = case["name"].as_str().expect("name");
         let (csv, toml) = case_files(dir.path(), case);
         let rig = heatbound_host::rigfile::load_rig(Some(&toml)).expect("rig.toml");
-        let r = report::from_csv(&csv, &rig.config, None, Some(&toml), None).expect("report");
+        let r = report::from_csv(
+            &csv,
+            &rig.config,
+            None,
+            Some(&toml),
+            report::DEFAULT_SUMMARY_PERIOD_MS,
+            None,
+        )
+        .expect("report");
         let keys = if rig.config.mode == Mode::Engine {
             [
                 "efficiency",
@@ -326,10 +338,17 @@ fn csv_budget_matches_the_gum_vectors() {
                     "{what} {input}: report {}, uncertainties {contribution}",
                     row.contribution
                 );
-                if row.u > 0.0 {
-                    let mag = row.sensitivity.expect("|c_i|");
-                    assert!((mag - c.abs()).abs() <= 1e-9 * u / row.u, "{what} {input}");
-                }
+                // Signed: the replay's own sensitivity integrals, one pass.
+                let ci = row.sensitivity.expect("c_i");
+                let scale = if row.u > 0.0 {
+                    u / row.u
+                } else {
+                    c.abs().max(1.0)
+                };
+                assert!(
+                    (ci - c).abs() <= 1e-9 * scale,
+                    "{what} {input}: report c = {ci}, uncertainties c = {c}"
+                );
             }
             checked += 1;
         }
@@ -495,10 +514,130 @@ fn report_of_a_csv_with_its_config() {
     check_page(&page);
     assert!(page.contains("Replay of bench-run.csv"));
     assert!(
-        page.contains("Sensitivity |c<sub>i</sub>|"),
-        "magnitudes from a replay"
+        page.contains("Sensitivity coefficient c<sub>i</sub>"),
+        "signed coefficients from the replay's own integrals"
     );
     assert!(page.contains("examples/rig.toml"));
+    assert!(page.contains("<table class=\"steady\">"), "steady periods");
+    assert!(page.contains("<svg class=\"chart\""), "the chart");
+    assert!(page.contains("by the same monitor the controller runs"));
+}
+
+// ---------------------------------------------------------------------------
+// A CSV file's steady periods
+
+/// Plateau A (t < 400 s) and plateau B (t ≥ 600 s), joined by a linear ramp:
+/// (T_h K, T_c K, Q_in W, W W). Heat out closes the balance, Q_out = Q_in − W.
+const PLATEAU_A: (f64, f64, f64, f64) = (600.0, 300.0, 1000.0, 250.0);
+const PLATEAU_B: (f64, f64, f64, f64) = (700.0, 310.0, 1200.0, 360.0);
+
+/// Row `t` (1 Hz) of the two-plateau run.
+fn plateau_row(t: u32) -> (f64, f64, f64, f64) {
+    let (a, b) = (PLATEAU_A, PLATEAU_B);
+    let x = (f64::from(t).clamp(400.0, 600.0) - 400.0) / 200.0;
+    let mix = |p: f64, q: f64| p + (q - p) * x;
+    (mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2), mix(a.3, b.3))
+}
+
+/// The leading number of a cell (`0.2500 ± 0.0031`, `1.000 kW`,
+/// `600.0`), with a `k` or `m` unit prefix undone, and the decimals it was
+/// printed with.
+fn leading(cell: &str) -> (f64, usize) {
+    let text = cell.replace('−', "-");
+    let mut words = text.split_whitespace();
+    let number = words.next().expect("a number");
+    let decimals = number.split_once('.').map_or(0, |(_, d)| d.len());
+    let value: f64 = number
+        .parse()
+        .unwrap_or_else(|_| panic!("not a number: {cell}"));
+    let scale = match words.last() {
+        Some(u) if u.starts_with('k') => 1000.0,
+        Some(u) if u.starts_with('m') && u.len() > 1 => 0.001,
+        _ => 1.0,
+    };
+    (value * scale, decimals)
+}
+
+#[test]
+fn csv_report_lists_the_steady_plateaus_with_their_figures() {
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let csv = dir.path().join("plateaus.csv");
+    let toml = dir.path().join("rig.toml");
+    let mut text = String::from("time_s,hot_k,cold_k,heat_in_w,work_w,heat_out_w\n");
+    for t in 0..1200u32 {
+        let (hot, cold, q_in, w) = plateau_row(t);
+        text.push_str(&format!("{t},{hot},{cold},{q_in},{w},{}\n", q_in - w));
+    }
+    std::fs::write(&csv, text).expect("write CSV");
+    // Windows of 11 samples (10 s) and a summary every 10 s: they meet end
+    // to end. Steady after 30 s inside the bands.
+    std::fs::write(&toml, "window_samples = 11\n[steady]\nduration_s = 30.0\n")
+        .expect("write rig.toml");
+    let rig = heatbound_host::rigfile::load_rig(Some(&toml)).expect("rig.toml");
+    let r = report::from_csv(&csv, &rig.config, None, Some(&toml), 10_000, None).expect("report");
+
+    // The ramp (0.5 K/s on the hot side against a 2 K band) is never
+    // steady; each plateau is, 30 s after it begins.
+    let periods = &r.steady.periods;
+    assert_eq!(periods.len(), 2, "{periods:#?}");
+    assert_eq!(r.steady.more, 0);
+    let seconds = |s: &str| leading(s).0;
+    assert!(seconds(&periods[0].from) >= 30.0 && seconds(&periods[0].to) <= 400.0);
+    assert!(seconds(&periods[1].from) >= 630.0 && seconds(&periods[1].to) <= 1199.0);
+
+    // Expected figures, from the plateau's constants by hand (DESIGN §4
+    // with constant readings and a closed balance): the means are the
+    // readings, η = W/Q_in, η_C = 1 − T_c/T_h, the margin η_C − η, and
+    // σ̇ = Q_out/T_c − Q_in/T_h with Q_out = Q_in − W. Each must match the
+    // page to the decimals it prints.
+    for (p, (t_h, t_c, q_in, w)) in periods.iter().zip([PLATEAU_A, PLATEAU_B]) {
+        let eta = w / q_in;
+        let eta_c = 1.0 - t_c / t_h;
+        let sigma = (q_in - w) / t_c - q_in / t_h;
+        for (what, cell, want) in [
+            ("T_h", &p.t_h, t_h),
+            ("T_c", &p.t_c, t_c),
+            ("heat in", &p.heat_in, q_in),
+            ("work", &p.work, w),
+            ("η", &p.performance, eta),
+            ("η_C", &p.bound, eta_c),
+            ("margin", &p.margin, eta_c - eta),
+            ("σ̇", &p.entropy_rate, sigma),
+        ] {
+            let (got, decimals) = leading(cell);
+            let scale = if cell.contains(" kW") { 1000.0 } else { 1.0 };
+            let half_ulp = 0.5 * scale * 10f64.powi(-i32::try_from(decimals).expect("decimals"));
+            assert!(
+                (got - want).abs() <= half_ulp * 1.000_001,
+                "{what}: page {cell:?}, expected {want} (period {} to {})",
+                p.from,
+                p.to
+            );
+        }
+    }
+
+    // The page, from the command line: the table and the chart.
+    let out = dir.path().join("plateaus.html");
+    heatbound()
+        .arg("report")
+        .arg(&csv)
+        .arg("--config")
+        .arg(&toml)
+        .args(["--summary-period", "10", "--out"])
+        .arg(&out)
+        .assert()
+        .success();
+    let page = std::fs::read_to_string(&out).expect("the page");
+    check_page(&page);
+    let steady = page
+        .split_once("<section id=\"steady\">")
+        .and_then(|(_, rest)| rest.split_once("</section>"))
+        .expect("the steady section")
+        .0;
+    assert_eq!(steady.matches("<tr><td>").count(), 2, "{steady}");
+    assert!(page.contains("<th>File time</th>"));
+    assert!(page.contains("<svg class=\"chart\""));
+    assert!(page.contains("every 10.0 s of the file"));
 }
 
 #[test]

@@ -1,4 +1,4 @@
-//! `heatbound report (LOG.sqlite [--run N] | FILE.csv [--config rig.toml]) [--out report.html]`:
+//! `heatbound report (LOG.sqlite [--run N] | FILE.csv [--config rig.toml] [--summary-period S]) [--out report.html]`:
 //! one run as a self-contained HTML test report, from the report engine
 //! ([`heatbound_host::report`]).
 //!
@@ -38,6 +38,11 @@ pub struct Args {
     /// does not carry. Default: the built-in defaults.
     #[arg(long, value_name = "RIG.toml")]
     pub config: Option<PathBuf>,
+    /// With a CSV file: the summary period, seconds of the file's time. The
+    /// steady periods and the chart are drawn from the summaries that a
+    /// controller running the configuration would send this often.
+    #[arg(long, value_name = "SECONDS", default_value_t = 1.0)]
+    pub summary_period: f64,
     /// Where to write the page (default: the input's name with `.html`,
     /// beside it).
     #[arg(long, short, value_name = "PATH")]
@@ -61,6 +66,16 @@ pub fn run(args: &Args) -> Result<()> {
         if args.run.is_some() {
             bail!("{name}: --run applies to a log database, and this is a CSV file");
         }
+        let period_ms = args.summary_period * 1000.0;
+        if !(period_ms.is_finite() && (1.0..1e9).contains(&period_ms.round())) {
+            bail!(
+                "--summary-period: must be at least 0.001 s and under 10^6 s (got {})",
+                args.summary_period
+            );
+        }
+        // Checked above: a whole number of ms from 1 to under 10^9.
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        let period_ms = period_ms.round() as u32;
         let size = std::fs::metadata(&args.input).map_or(0, |m| m.len());
         let bar = progress_bar(&format!("report {name}"), size, Counting::Bytes, size);
         let report = from_csv(
@@ -68,6 +83,7 @@ pub fn run(args: &Args) -> Result<()> {
             &rig.config,
             rig.csv.as_ref(),
             args.config.as_deref(),
+            period_ms,
             Some(&bar),
         );
         bar.finish_and_clear();

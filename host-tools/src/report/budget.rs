@@ -163,65 +163,6 @@ impl BudgetTable {
         }
     }
 
-    /// The table of a figure from each input's contribution `|c_i|·u(x_i)`
-    /// alone (a replay run once per input, with only that input's
-    /// uncertainty: [`super::from_csv`]). The coefficients' signs are not
-    /// known; their magnitudes are `u_i(y)/u(x_i)`.
-    pub fn from_contributions(
-        figure: Figure,
-        estimate: Option<f64>,
-        u: [f64; 5],
-        contributions: [Option<f64>; 5],
-        u_c: Option<f64>,
-        k: f64,
-        heat_out_measured: bool,
-    ) -> BudgetTable {
-        let var: Option<f64> = contributions
-            .iter()
-            .map(|c| c.map(|c| c * c))
-            .sum::<Option<f64>>()
-            .and_then(finite);
-        let rows = INPUTS
-            .iter()
-            .enumerate()
-            .zip(Budget::<f64>::INPUTS)
-            .map(|((i, &(quantity, description, unit, x)), input)| {
-                let ui = u.get(i).copied().unwrap_or(0.0);
-                let contribution = contributions
-                    .get(i)
-                    .copied()
-                    .flatten()
-                    .and_then(finite)
-                    .map_or(0.0, f64::abs);
-                BudgetRow {
-                    input,
-                    quantity,
-                    description,
-                    unit,
-                    estimate: x,
-                    u: ui,
-                    sensitivity: (ui > 0.0).then(|| contribution / ui).and_then(finite).or(
-                        (contribution == 0.0 && note_for(i, heat_out_measured).is_some())
-                            .then_some(0.0),
-                    ),
-                    contribution,
-                    share: share(contribution, var),
-                    note: note_for(i, heat_out_measured),
-                }
-            })
-            .collect();
-        BudgetTable {
-            symbol: figure.symbol,
-            name: figure.name,
-            unit: figure.unit,
-            estimate: estimate.and_then(finite),
-            u_c: u_c.and_then(finite),
-            k,
-            signed: false,
-            rows,
-        }
-    }
-
     /// The sum of the shares: 1 whenever `u_c` is known and not zero.
     pub fn share_sum(&self) -> Option<f64> {
         self.rows.iter().map(|r| r.share).sum()
@@ -267,23 +208,5 @@ mod tests {
                 .iter()
                 .all(|r| r.share.is_none() && r.contribution == 0.0)
         );
-    }
-
-    #[test]
-    fn contributions_give_magnitudes() {
-        let t = BudgetTable::from_contributions(
-            figures(true)[3],
-            Some(0.2),
-            [1.0, 0.0, 0.01, 0.01, 0.02],
-            [Some(0.03), Some(0.0), Some(0.04), Some(0.0), Some(0.0)],
-            Some(0.05),
-            2.0,
-            true,
-        );
-        assert!(!t.signed);
-        assert_eq!(t.rows[0].sensitivity, Some(0.03));
-        assert_eq!(t.rows[1].sensitivity, None, "u(x) = 0: c unknown");
-        assert!((t.rows[2].sensitivity.unwrap() - 4.0).abs() < 1e-12);
-        assert!((t.share_sum().unwrap() - 1.0).abs() < 1e-12);
     }
 }

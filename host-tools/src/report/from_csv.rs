@@ -1,39 +1,49 @@
-//! A report from a recorded CSV file: the replay of `heatbound analyze`,
-//! then one replay per input with only that input's uncertainty, whose
-//! `u` of each figure is that input's contribution `|c_i|·u(x_i)` (the
-//! monitor's own arithmetic: their squares add up to the full replay's
-//! `u²`). There is no record to audit: the verdict is the replay's own
-//! checks of the readings.
+//! A report from a recorded CSV file, in one pass over it: the replay of
+//! `heatbound analyze` (its run totals, with the run's own sensitivity
+//! integrals for a budget with signed coefficients, and its alarms), and,
+//! row by row beside it, the controller the firmware runs, whose summaries
+//! go into a temporary log ([`super::summaries`]) that the log report's
+//! own code reads for the steady periods and the chart. There is no record
+//! to audit: the verdict is the replay's own checks of the readings.
 
 use std::path::Path;
 
 use heatbound::alarm::EventKind;
 use heatbound::config::RigConfig;
-use heatbound::monitor::{FigureSettings, Metrics, Uncertainty};
+use heatbound::monitor::FigureSettings;
 use heatbound::wire::Hello;
 
-use super::budget::{BudgetTable, figures};
 use super::format::{count, duration, fixed, si, sig, utc};
-use super::from_log::file_name;
-use super::sections::{self, Extra, merit};
+use super::from_log::{Times, file_name, read_frames};
+use super::sections::{self, Extra};
+use super::summaries::{self, Finished, Summaries};
 use super::{
     AlarmRow, Alarms, Chart, Check, Fact, Kind, MAX_ALARM_ROWS, Outcome, Report, ReportError,
     RowKind, Steady, Totals, Verdict,
 };
+use crate::chart::{ChartOptions, Clock, svg_chart};
 use crate::csv_layout::CsvLayout;
-use crate::replay::{Replay, replay_file_with};
+use crate::replay::{Replay, Row, replay_file_following};
+use crate::store::Log;
+
+/// The summary period a CSV file's summaries are made at when none is
+/// given, ms: the firmware example's.
+pub const DEFAULT_SUMMARY_PERIOD_MS: u32 = 1000;
 
 /// Makes the report of the CSV file at `path`, laid out as `layout` says
 /// (`None`: the default layout), replayed with `config`; `config_name` is
-/// the `rig.toml` it came from (`None`: the built-in defaults). `progress`,
-/// if given, follows each replay in turn.
+/// the `rig.toml` it came from (`None`: the built-in defaults). The steady
+/// periods and the chart come from the summaries a controller running
+/// `config` would send every `summary_period_ms` of the file's time.
+/// `progress`, if given, follows the replay.
 ///
 /// ```
 /// use heatbound::config::RigConfig;
+/// use heatbound_host::report::{DEFAULT_SUMMARY_PERIOD_MS, from_csv};
 /// let dir = tempfile::tempdir().unwrap();
 /// let csv = dir.path().join("run.csv");
 /// std::fs::write(&csv, "time_s,hot_c,cold_c,heat_in_w,work_w\n0,500,25,400,40\n1,500,25,400,40\n").unwrap();
-/// let r = heatbound_host::report::from_csv(&csv, &RigConfig::default(), None, None, None).unwrap();
+/// let r = from_csv(&csv, &RigConfig::default(), None, None, DEFAULT_SUMMARY_PERIOD_MS, None).unwrap();
 /// // η = 40/400, and the shares of its budget sum to 1.
 /// assert_eq!(r.budgets[0].estimate, Some(0.1));
 /// assert!((r.budgets[0].share_sum().unwrap() - 1.0).abs() < 1e-12);
@@ -43,127 +53,151 @@ pub fn from_csv(
     config: &RigConfig,
     layout: Option<&CsvLayout>,
     config_name: Option<&Path>,
+    summary_period_ms: u32,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Result<Report, ReportError> {
     let settings = FigureSettings::new(config);
-    let u = &config.uncertainty;
-    let u_in = [u.hot_k, u.cold_k, u.heat_in_rel, u.work_rel, u.heat_out_rel];
-    let replay = replay_file_with(path, config, layout, progress)?;
+    let mut windows = Summaries::new(config, summary_period_ms)?;
+    let replay = replay_file_following(path, config, layout, progress, |row: &Row| {
+        windows.push(row);
+    })?;
+    let windows = windows.finish()?;
     let measured = replay.heat_out_measured.unwrap_or(false);
-    // One replay per input that can contribute, with that input alone.
-    let mut parts: [Option<Metrics<f64>>; 5] = [None; 5];
-    for (i, part) in parts.iter_mut().enumerate() {
-        let ui = u_in.get(i).copied().unwrap_or(0.0);
-        if ui == 0.0 || (i == 4 && !measured) {
-            continue;
-        }
-        let mut alone = *config;
-        alone.uncertainty = only(&config.uncertainty, i);
-        *part = Some(replay_file_with(path, &alone, layout, progress)?.totals);
-    }
     let m = &replay.totals;
     let k = config.coverage_factor;
-    let mode = config.mode;
-    let contributions = |pick: &dyn Fn(&Metrics<f64>) -> Option<f64>| -> [Option<f64>; 5] {
-        std::array::from_fn(|i| match parts.get(i).copied().flatten() {
-            Some(p) => pick(&p),
-            None => Some(0.0),
-        })
-    };
-    let [(perf, u_perf), (bound, u_bound)] = merit(m, mode);
-    let [f_perf, f_bound, f_margin, f_rate] = figures(mode.is_reverse());
-    let table = |f, est, u_c, pick: &dyn Fn(&Metrics<f64>) -> Option<f64>| {
-        BudgetTable::from_contributions(f, est, u_in, contributions(pick), u_c, k, measured)
-    };
-    let budgets = vec![
-        table(f_perf, perf, u_perf, &|p| merit(p, mode)[0].1),
-        table(f_bound, bound, u_bound, &|p| merit(p, mode)[1].1),
-        table(f_margin, m.carnot_margin, m.u_carnot_margin, &|p| {
-            p.u_carnot_margin
-        }),
-        table(
-            f_rate,
-            m.entropy_rate_w_per_k,
-            m.u_entropy_rate_w_per_k,
-            &|p| p.u_entropy_rate_w_per_k,
-        ),
-    ];
-    // The energies' uncertainties are their scale errors (DESIGN §4).
-    let extra = Extra {
-        heat_in: Some(m.heat_in_j.abs() * u.heat_in_rel),
-        work: Some(m.work_j.abs() * u.work_rel),
-        heat_out: Some(if measured {
-            m.heat_out_j.abs() * u.heat_out_rel
-        } else {
-            (m.heat_in_j * u.heat_in_rel).hypot(m.work_j * u.work_rel)
-        }),
-        // T0 exact: T0·u(S_gen); a measured T0 moves with the cold offset,
-        // which a replay's figures do not separate.
-        exergy: config
-            .ambient_k
-            .zip(m.u_entropy_generated_j_per_k)
-            .map(|(t0, u)| t0 * u),
-    };
+    let budget = replay.totals_integrals.budget(&settings);
+    let budgets = sections::budget_tables(&budget, m, k, config.mode, measured);
+    let mut budget_notes = sections::budget_notes();
+    budget_notes.push(
+        "From a CSV replay: the coefficients are the run's own, from the sensitivity integrals \
+         the replay's monitor keeps sample by sample (∫q_in/T_hot² dt and the like)."
+            .to_owned(),
+    );
     let totals = Totals {
         figures: *m,
         k,
-        rows: sections::total_rows(m, &extra, k, &settings, measured),
+        rows: sections::total_rows(m, &Extra::of(&budget), k, &settings, measured),
         notes: vec![format!(
             "From a CSV replay: the run's own integrals over {} samples, as `heatbound analyze` \
              gives them.",
             replay.samples
         )],
     };
+    let (steady, chart) = from_summaries(&windows, config, &replay)?;
     let name = path.display().to_string();
     Ok(Report {
         kind: Kind::Csv,
         title: format!("Replay of {}", file_name(path)),
         input: name.clone(),
-        facts: facts(&name, config, config_name, &replay, &settings),
+        facts: facts(&name, config, config_name, &replay, &settings, &windows),
         losses: losses(&replay),
         verdict: verdict(&replay, k),
         totals,
         budgets,
-        budget_notes: sections::budget_notes(false),
-        steady: Steady {
-            fraction: replay.steady_fraction,
-            periods: Vec::new(),
-            more: 0,
-            note: Some(format!(
-                "A replay keeps the share of the run that was steady and whether it ended \
-                 steady ({}), not the periods themselves: the steady periods and their figures \
-                 are listed for a log.",
-                if replay.steady_at_end {
-                    "it did"
-                } else {
-                    "it did not"
-                }
-            )),
-        },
+        budget_notes,
+        steady,
         alarms: alarms(&replay),
-        chart: Chart::None(
-            "The chart is drawn from a log's summaries, a window per summary; a CSV replay keeps \
-             the run's totals and its final window, not a series of windows."
-                .to_owned(),
-        ),
+        chart,
     })
 }
 
-/// `u` with every input but `i` (in the order of the budget) at zero.
-fn only(u: &Uncertainty, i: usize) -> Uncertainty {
-    let keep = |j: usize, x: f64| if i == j { x } else { 0.0 };
-    Uncertainty {
-        hot_k: keep(0, u.hot_k),
-        cold_k: keep(1, u.cold_k),
-        heat_in_rel: keep(2, u.heat_in_rel),
-        work_rel: keep(3, u.work_rel),
-        heat_out_rel: keep(4, u.heat_out_rel),
-        hot2_k: u.hot2_k,
+/// How the summaries were made, for the notes.
+fn made_how(w: &Finished) -> String {
+    format!(
+        "computed from the file's samples by the same monitor the controller runs (heatbound's \
+         controller, in its f32, with this configuration), which sent a summary of its window \
+         every {} of the file's time",
+        duration(f64::from(w.summary_period_ms) / 1000.0)
+    )
+}
+
+/// The steady periods and the chart, from the summaries' temporary log.
+fn from_summaries(
+    w: &Finished,
+    config: &RigConfig,
+    replay: &Replay,
+) -> Result<(Steady, Chart), ReportError> {
+    let share = format!(
+        "The share of the run that was steady is the replay's, sample by sample, as `heatbound \
+         analyze` gives it; the run {} steady.",
+        if replay.steady_at_end {
+            "ended"
+        } else {
+            "did not end"
+        }
+    );
+    if w.summaries == 0 {
+        let why = format!(
+            "No summary: the file spans less than one summary period ({}).",
+            duration(f64::from(w.summary_period_ms) / 1000.0)
+        );
+        return Ok((
+            Steady {
+                fraction: replay.steady_fraction,
+                periods: Vec::new(),
+                more: 0,
+                note: Some(format!("{why} {share}")),
+            },
+            Chart::None(why),
+        ));
     }
+    let log = Log::open_read(&w.path)?;
+    let times = Times::File {
+        first_s: w.first_s,
+        unix: w.unix_time,
+    };
+    let mut read = read_frames(&log, w.run, config, times)?;
+    drop(log);
+    let mut steady = read.steady.finish();
+    steady.fraction = replay.steady_fraction;
+    steady.note = Some(format!(
+        "The steady periods are {}, as a log's are from a controller's summaries. {} {share}",
+        made_how(w),
+        steady.note.unwrap_or_default(),
+    ));
+    let clock = if w.unix_time {
+        Clock::Wall
+    } else {
+        Clock::Device
+    };
+    let chart = match svg_chart(
+        &w.path,
+        &ChartOptions {
+            run: Some(w.run),
+            clock,
+        },
+    ) {
+        Ok(c) => Chart::Svg {
+            svg: c.svg,
+            caption: format!(
+                "{} summaries, from {} to {}: the chart is {}. Its time axis is {}; \"rig {}\" \
+                 names that controller, not the rig, and the device's times are the file's. \
+                 Lines break where the file has a gap longer than max_gap_s; second-law alarms \
+                 (as that controller raised them) are shaded.",
+                c.summaries,
+                at(w.first_s + c.t_s.0, w.unix_time),
+                at(w.first_s + c.t_s.1, w.unix_time),
+                made_how(w),
+                if w.unix_time {
+                    "the file's time, UTC"
+                } else if w.file_clock {
+                    "the file's time"
+                } else {
+                    "counted from the file's first row"
+                },
+                summaries::RIG_ID,
+            ),
+        },
+        Err(e) => Chart::None(format!(
+            "The chart could not be drawn: {}",
+            crate::term::error_line(&e)
+        )),
+    };
+    Ok((steady, chart))
 }
 
 /// A replay's time: seconds of the logger's clock, or UTC.
-fn at(t_s: f64, unix: bool) -> String {
+pub(super) fn at(t_s: f64, unix: bool) -> String {
     if unix && t_s.is_finite() {
         // Unix seconds of a spreadsheet or ISO 8601 time: well inside i64 ms.
         #[allow(clippy::cast_possible_truncation)]
@@ -181,6 +215,7 @@ fn facts(
     config_name: Option<&Path>,
     r: &Replay,
     settings: &FigureSettings,
+    w: &Finished,
 ) -> Vec<Fact> {
     let mut f = vec![
         Fact::new("File", name),
@@ -238,6 +273,15 @@ fn facts(
             ),
         ),
     ];
+    f.push(Fact::new(
+        "Summaries",
+        format!(
+            "{} made from the samples by heatbound's controller, one every {} of the file's              time, for the steady periods and the chart (its Hello's sample period: {} ms, the              median spacing of the first rows)",
+            w.summaries,
+            duration(f64::from(w.summary_period_ms) / 1000.0),
+            w.sample_period_ms
+        ),
+    ));
     if !r.read_columns.is_empty() {
         let cols: Vec<String> = r
             .read_columns

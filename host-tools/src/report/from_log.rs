@@ -26,7 +26,7 @@ use crate::store::{CommandRow, Log, OutageRow, RunInfo, StoreError};
 
 /// What one pass over the run's frames keeps: counts, sums and the few
 /// rows the report names, so memory does not grow with the run.
-struct Read {
+pub(super) struct Read {
     first_hello: Option<Hello>,
     last_hello: Option<Hello>,
     hellos: u64,
@@ -35,7 +35,7 @@ struct Read {
     first: Option<Rec>,
     last: Option<Rec>,
     totals: Option<Tiler>,
-    steady: SteadyScan,
+    pub(super) steady: SteadyScan,
     /// Events with their host time and the segment they fell in.
     events: Vec<(i64, u32, EventFrame)>,
     replies: u64,
@@ -96,7 +96,7 @@ pub fn from_log(path: &Path, run: Option<i64>, config: &RigConfig) -> Result<Rep
     let runs = log.runs()?;
     let info = pick_run(path, &runs, run)?;
     let audit = audit::audit_log(&log, Some(info.id), config)?;
-    let mut read = read_frames(&log, info.id, config)?;
+    let mut read = read_frames(&log, info.id, config, Times::Device)?;
     let commands = log.commands(info.id)?;
     let outages = log.outages(info.id)?;
     drop(log);
@@ -188,7 +188,7 @@ pub fn from_log(path: &Path, run: Option<i64>, config: &RigConfig) -> Result<Rep
         verdict: verdict(&audit),
         totals,
         budgets,
-        budget_notes: sections::budget_notes(true),
+        budget_notes: sections::budget_notes(),
         steady: read.steady.finish(),
         alarms: alarms(&read, &commands),
         chart,
@@ -239,9 +239,15 @@ fn pick_run<'a>(
     }
 }
 
-/// One pass over the run's frames. Rows that cannot be frames are counted
-/// and skipped: the audit reports them.
-fn read_frames(log: &Log, run: i64, config: &RigConfig) -> Result<Read, ReportError> {
+/// One pass over the run's frames, steady periods timed as `times` says.
+/// Rows that cannot be frames are counted and skipped: the audit reports
+/// them.
+pub(super) fn read_frames(
+    log: &Log,
+    run: i64,
+    config: &RigConfig,
+    times: Times,
+) -> Result<Read, ReportError> {
     let mut r = Read {
         first_hello: None,
         last_hello: None,
@@ -251,7 +257,10 @@ fn read_frames(log: &Log, run: i64, config: &RigConfig) -> Result<Read, ReportEr
         first: None,
         last: None,
         totals: None,
-        steady: SteadyScan::default(),
+        steady: SteadyScan {
+            times,
+            ..SteadyScan::default()
+        },
         events: Vec::new(),
         replies: 0,
         unreadable: 0,
@@ -650,11 +659,30 @@ pub(super) fn verdict_words(v: &WireVerdict) -> String {
     }
 }
 
+/// How a steady period's times are written.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub(super) enum Times {
+    /// A log's: the device's clock, and the host's (UTC) when it began.
+    #[default]
+    Device,
+    /// A CSV file's own: `first_s` (the file's first time, s) on from the
+    /// controller's clock, which counts from the first row; UTC when the
+    /// file's times are dates (`unix`).
+    File {
+        /// The file's first time, s.
+        first_s: f64,
+        /// Whether the file's times are Unix seconds.
+        unix: bool,
+    },
+}
+
 /// Steady periods, found as the log is read: runs of summaries with the
 /// device's steady flag, in one session and with no summary missing, each
 /// with its figures over the windows that tile it.
 #[derive(Default)]
-struct SteadyScan {
+pub(super) struct SteadyScan {
+    /// How the periods' times are written.
+    times: Times,
     /// The period being read.
     open: Option<Period>,
     /// Periods found, with their length in ms; the longest kept past
@@ -714,17 +742,25 @@ impl SteadyScan {
         let Some(mut p) = self.open.take() else {
             return;
         };
-        let when = |r: &Rec| format!("{} s", fixed(Some(f64::from(r.summary.t_ms) / 1000.0), 1));
+        let device_s = |r: &Rec| f64::from(r.summary.t_ms) / 1000.0;
+        let (from, to, wall) = match self.times {
+            Times::Device => {
+                let when = |r: &Rec| format!("{} s", fixed(Some(device_s(r)), 1));
+                (when(&p.first), when(&p.last), utc(p.first.host_ms))
+            }
+            Times::File { first_s, unix } => {
+                let when = |r: &Rec| {
+                    if unix {
+                        super::from_csv::at(first_s + device_s(r), true)
+                    } else {
+                        format!("{} s", fixed(Some(first_s + device_s(r)), 1))
+                    }
+                };
+                (when(&p.first), when(&p.last), String::new())
+            }
+        };
         let m = p.tiler.finish().metrics(&p.settings);
-        let cells = sections::steady_cells(
-            &m,
-            p.k,
-            p.settings.mode,
-            when(&p.first),
-            when(&p.last),
-            utc(p.first.host_ms),
-            p.summaries,
-        );
+        let cells = sections::steady_cells(&m, p.k, p.settings.mode, from, to, wall, p.summaries);
         let length = p.last.end_ms.saturating_sub(p.first.end_ms);
         self.periods.push((p.first.host_ms, length, cells));
         if self.periods.len() >= 2 * MAX_PERIODS {
@@ -746,9 +782,24 @@ impl SteadyScan {
         self.more += excess;
     }
 
-    fn finish(&mut self) -> Steady {
+    pub(super) fn finish(&mut self) -> Steady {
         self.close();
         self.keep_longest();
+        let note = match self.times {
+            Times::Device => {
+                "A period runs from the first summary with the device's steady flag on to the \
+                 last, within one session and with no summary missing. Its figures are over the \
+                 windows that meet end to end from its first summary on, that summary's window \
+                 reaching back before the flag came on (the steady test looks back too), with \
+                 the settings of the Hello in force."
+            }
+            Times::File { .. } => {
+                "A period runs from the first summary with the steady flag on to the last, at \
+                 the file's times. Its figures are over the windows that meet end to end from \
+                 its first summary on, that summary's window reaching back before the flag came \
+                 on (the steady test looks back too)."
+            }
+        };
         Steady {
             fraction: (self.total_ms > 0).then(|| self.steady_ms as f64 / self.total_ms as f64),
             periods: std::mem::take(&mut self.periods)
@@ -756,14 +807,7 @@ impl SteadyScan {
                 .map(|(_, _, p)| p)
                 .collect(),
             more: self.more,
-            note: Some(
-                "A period runs from the first summary with the device's steady flag on to the \
-                 last, within one session and with no summary missing. Its figures are over the \
-                 windows that meet end to end from its first summary on, that summary's window \
-                 reaching back before the flag came on (the steady test looks back too), with \
-                 the settings of the Hello in force."
-                    .to_owned(),
-            ),
+            note: Some(note.to_owned()),
         }
     }
 }

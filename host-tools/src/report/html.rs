@@ -89,8 +89,8 @@ footer { margin-top: 32px; border-top: 3px solid var(--slate); padding-top: 10px
   #budget, #steady { break-before: page; }
   #charts.drawn { page: landscape; break-before: page; }
   #charts.drawn h2 { margin-top: 0; }
-  #charts .chart { max-height: 140mm; width: auto; margin: 0 auto; }
-  footer.after-chart { page: landscape; margin-top: 8pt; padding-top: 4pt; }
+  #charts .chart { max-height: 128mm; width: auto; margin: 0 auto; }
+  footer.after-chart { page: landscape; margin-top: 8pt; padding-top: 4pt; break-inside: avoid; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
 "#;
@@ -470,11 +470,15 @@ pub fn render(report: &Report) -> String {
             |i: usize, default: &'static str| report.budgets.get(i).map_or(default, |b| b.symbol);
         let _ = writeln!(
             o,
-            "<table class=\"steady\"><thead><tr><th>#</th><th>Device time</th>\
+            "<table class=\"steady\"><thead><tr><th>#</th><th>{}</th>\
              <th class=\"num\">Windows span</th><th class=\"num\">T_h / T_c</th>\
              <th class=\"num\">Heat in / work</th><th class=\"num\">{} ± U</th>\
              <th class=\"num\">{} ± U</th><th class=\"num\">{} ± U</th>\
              <th class=\"num\">{} ± U</th></tr></thead><tbody>",
+            match report.kind {
+                Kind::Log => "Device time",
+                Kind::Csv => "File time",
+            },
             escape(symbol(0, "merit")),
             escape(symbol(1, "bound")),
             escape(symbol(2, "margin")),
@@ -483,8 +487,8 @@ pub fn render(report: &Report) -> String {
         for (i, p) in s.periods.iter().enumerate() {
             let _ = writeln!(
                 o,
-                "<tr><td>{}</td><td>{}–{}<br><small>{}; from {}</small></td>\
-                 <td class=\"num\">{}</td><td class=\"num\">{} K<br>{} K</td>\
+                "<tr><td>{}</td><td>{}–{}<br><small>{}{}</small></td>\
+                 <td class=\"num\">{}</td><td class=\"num\">{}&nbsp;K<br>{}&nbsp;K</td>\
                  <td class=\"num\">{}<br>{}</td><td class=\"num\">{}</td>\
                  <td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
                 i + 1,
@@ -495,7 +499,11 @@ pub fn render(report: &Report) -> String {
                     p.summaries,
                     if p.summaries == 1 { "y" } else { "ies" }
                 )),
-                escape(&p.wall),
+                if p.wall.is_empty() {
+                    String::new()
+                } else {
+                    format!("; from {}", escape(&p.wall))
+                },
                 escape(&p.length),
                 escape(&p.t_h),
                 escape(&p.t_c),

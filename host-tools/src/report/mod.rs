@@ -9,7 +9,9 @@
 //!                 --tiles (windows end to end)--> run totals, steady periods
 //!                 --Integrals::budget----------> uncertainty budgets
 //!            --chart::svg_chart--> the chart    --+--> Report --html--> report.html
-//! FILE.csv   --replay (once, then once per input)--> totals, budgets, alarms --+
+//! FILE.csv   --replay (one pass)--> totals, budgets, alarms               --+
+//!              \--each row--> the controller's summaries --> temporary log  |
+//!                   --> the log's steady scan and chart::svg_chart         --+
 //! ```
 //!
 //! The page has no network reference at all: the style is inline, the font
@@ -19,9 +21,10 @@
 //!
 //! A log's run totals add up windows that meet end to end ([`tiles`]): a
 //! Summary carries its window, not the run. A CSV replay has the run's own
-//! integrals; its budget comes from replays with one input's uncertainty
-//! each, so it has the contributions and the coefficients' magnitudes, not
-//! their signs. The page says which.
+//! integrals, sensitivities included, so its budget is exact and signed.
+//! Its steady periods and chart are a log's: the summaries a controller
+//! running the configuration would have sent from the file's samples. The
+//! page says so.
 use std::path::{Path, PathBuf};
 
 use crate::chart::ChartError;
@@ -34,10 +37,11 @@ mod from_csv;
 mod from_log;
 mod html;
 mod sections;
+mod summaries;
 pub mod tiles;
 
 pub use budget::{BudgetRow, BudgetTable};
-pub use from_csv::from_csv;
+pub use from_csv::{DEFAULT_SUMMARY_PERIOD_MS, from_csv};
 pub use from_log::from_log;
 pub use html::{GENERATOR, render};
 
@@ -66,6 +70,17 @@ pub enum ReportError {
     /// The CSV file could not be replayed.
     #[error(transparent)]
     Replay(#[from] ReplayError),
+    /// The controller that makes a CSV file's summaries cannot run the
+    /// configuration.
+    #[error("the controller cannot run this configuration: {0}")]
+    Controller(#[source] heatbound::monitor::MonitorError),
+    /// The temporary log of a CSV file's summaries cannot be made.
+    #[error("cannot make a temporary directory for the summaries: {source}")]
+    Temporary {
+        /// The operating system's error.
+        #[source]
+        source: std::io::Error,
+    },
     /// `--run` names a run the log does not hold.
     #[error("{}: --run {run}: no such run in the log ({held})", path.display())]
     NoSuchRun {
@@ -220,7 +235,8 @@ pub struct SteadyPeriod {
     pub from: String,
     /// When it was last on, device time.
     pub to: String,
-    /// When it came on, the host's time (UTC).
+    /// When it came on, the host's time (UTC); empty for a CSV file,
+    /// whose own times are in `from` and `to`.
     pub wall: String,
     /// How long the figures' windows span.
     pub length: String,

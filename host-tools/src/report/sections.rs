@@ -395,8 +395,8 @@ pub(super) fn uncertainty_words(s: &FigureSettings) -> String {
 }
 
 /// What the budget section says about the model.
-pub(super) fn budget_notes(signed: bool) -> Vec<String> {
-    let mut notes = vec![
+pub(super) fn budget_notes() -> Vec<String> {
+    vec![
         "Model (GUM, JCGM 100:2008, §5.1): each channel's standard uncertainty is a \
          systematic error shared by every sample: an offset of a temperature (estimate 0 K) \
          or a scale factor of a power (estimate 1). The sensitivity coefficients c_i = ∂y/∂x_i \
@@ -408,16 +408,7 @@ pub(super) fn budget_notes(signed: bool) -> Vec<String> {
          with η and η_C through the same inputs), which is why the margin has a budget of \
          its own: u(η_C − η) is not √(u(η)² + u(η_C)²)."
             .to_owned(),
-    ];
-    if !signed {
-        notes.push(
-            "From a CSV replay, each contribution comes from a replay with that input's \
-             uncertainty alone; the coefficients are shown as magnitudes |c_i| (their signs \
-             are not separated)."
-                .to_owned(),
-        );
-    }
-    notes
+    ]
 }
 
 /// The cells of a steady period's figures.
