@@ -378,7 +378,7 @@ pub fn write_chart_with(
             path: out.to_path_buf(),
         });
     }
-    check_target(out)?;
+    check_out(out)?;
     let (data, run, t_s) = load(log, options)?;
     register_font()?;
     // Written beside the target and renamed over it, so a reader (or a
@@ -618,8 +618,10 @@ fn mark_text() -> Vec<u8> {
 }
 
 /// Refuses to replace a file `chart` did not draw: only a missing file, an
-/// empty one, or a picture that carries [`MARK`] may be written over.
-fn check_target(out: &Path) -> Result<(), ChartError> {
+/// empty one, or a picture that carries the mark `chart` leaves in every
+/// picture it draws may be written over. [`write_chart_with`] checks this
+/// itself; a caller that draws at the end of a long job checks first.
+pub fn check_out(out: &Path) -> Result<(), ChartError> {
     use std::io::Read as _;
     let not_ours = || ChartError::NotOurs {
         path: out.to_path_buf(),

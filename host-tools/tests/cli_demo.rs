@@ -140,3 +140,24 @@ fn demo_refuses_a_db_that_is_not_a_heatbound_log_and_leaves_it() {
     assert!(err.contains("not a heatbound log"), "{err}");
     assert_eq!(std::fs::read_to_string(&csv).unwrap(), "t_s,hot_c\n0,500\n");
 }
+
+#[test]
+fn demo_refuses_a_picture_it_did_not_draw_where_its_chart_goes_before_starting() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("bench.sqlite");
+    let png = dir.path().join("bench.png");
+    let photo = b"\x89PNG\r\n\x1a\nsomeone's photo".to_vec();
+    std::fs::write(&png, &photo).unwrap();
+    let out = Command::cargo_bin("heatbound")
+        .unwrap()
+        .args(["demo", "--speed", "300", "--quiet", "--db"])
+        .arg(&db)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("is not a chart heatbound drew"), "{err}");
+    assert_eq!(std::fs::read(&png).unwrap(), photo, "the picture is left");
+    assert!(!db.exists(), "nothing started: no log");
+}

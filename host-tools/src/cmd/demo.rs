@@ -84,9 +84,10 @@ pub fn run(args: &Args) -> Result<()> {
             args.db.display()
         );
     }
-    // Refuse a --db that is not a heatbound log, or a report's place that
-    // holds another file, before anything starts.
+    // Refuse a --db that is not a heatbound log, or a chart's or a report's
+    // place that holds another file, before anything starts.
     link::check_log_target(&args.db)?;
+    heatbound_host::chart::check_out(&heatbound_host::chart::default_out(&args.db))?;
     heatbound_host::report::check_target(&report_out, &[&args.db])?;
     println!("heatbound demo: a simulated bench Stirling engine, streamed over loopback TCP");
     println!("{}", heatbound_host::term::SAFETY_NOTE);
