@@ -505,21 +505,8 @@ fn seconds(t_ms: u32) -> f64 {
 
 /// `host_ms` as `YYYY-MM-DD HH:MM:SS.mmm UTC`.
 fn utc(host_ms: i64) -> String {
-    // Days to civil date (proleptic Gregorian), the well-known
-    // era-of-400-years conversion (common practice).
-    let days = host_ms.div_euclid(86_400_000);
     let ms = host_ms.rem_euclid(86_400_000);
-    let z = days.saturating_add(719_468);
-    let era = z.div_euclid(146_097);
-    let doe = z.rem_euclid(146_097);
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe
-        .saturating_add(era.saturating_mul(400))
-        .saturating_add(i64::from(m <= 2));
+    let (y, m, d) = crate::term::civil_from_days(host_ms.div_euclid(86_400_000));
     format!(
         "{y:04}-{m:02}-{d:02} {:02}:{:02}:{:02}.{:03} UTC",
         ms / 3_600_000,

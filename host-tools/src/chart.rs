@@ -1990,7 +1990,7 @@ impl Utc {
         const LIMIT: f64 = 253_402_300_799.0; // 9999-12-31T23:59:59Z
         let secs = epoch_s.floor().clamp(-LIMIT, LIMIT) as i64;
         let (days, rem) = (secs.div_euclid(86_400), secs.rem_euclid(86_400));
-        let (year, month, day) = civil_from_days(days);
+        let (year, month, day) = crate::term::civil_from_days(days);
         Utc {
             year,
             month,
@@ -2012,21 +2012,6 @@ impl Utc {
     fn hms(&self) -> String {
         format!("{:02}:{:02}:{:02}", self.hour, self.minute, self.second)
     }
-}
-
-/// Days since 1970-01-01 as a proleptic Gregorian (year, month, day): the
-/// `civil_from_days` algorithm of H. Hinnant, "chrono-Compatible Low-Level
-/// Date Algorithms".
-fn civil_from_days(days: i64) -> (i64, u32, u32) {
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z.rem_euclid(146_097);
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let day = (doy - (153 * mp + 2) / 5 + 1) as u32;
-    let month = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
-    (yoe + era * 400 + i64::from(month <= 2), month, day)
 }
 
 /// The shared time axis: its range, unit, ticks and title.

@@ -502,3 +502,31 @@ mod how_to_run_tests {
         assert_eq!(shell_word("a*b"), "'a*b'");
     }
 }
+
+/// Days since 1970-01-01 as a proleptic Gregorian (year, month, day): the
+/// era-of-400-years `civil_from_days` conversion (common practice), in
+/// saturating arithmetic, since a crafted log may hold any time.
+///
+/// ```
+/// use heatbound_host::term::civil_from_days;
+/// // POSIX.1-2017 §4.16: day 0 is 1970-01-01; day 19 675 is 2023-11-14
+/// // (Unix time 1 700 000 000 s, as `date -u -d @1700000000` prints it).
+/// assert_eq!(civil_from_days(0), (1970, 1, 1));
+/// assert_eq!(civil_from_days(19_675), (2023, 11, 14));
+/// assert_eq!(civil_from_days(-1), (1969, 12, 31));
+/// ```
+pub fn civil_from_days(days: i64) -> (i64, u32, u32) {
+    let z = days.saturating_add(719_468);
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    // Both in range by construction: day 1..=31, month 1..=12.
+    let day = u32::try_from(doy - (153 * mp + 2) / 5 + 1).unwrap_or(1);
+    let month = u32::try_from(if mp < 10 { mp + 3 } else { mp - 9 }).unwrap_or(1);
+    let year = yoe
+        .saturating_add(era.saturating_mul(400))
+        .saturating_add(i64::from(month <= 2));
+    (year, month, day)
+}

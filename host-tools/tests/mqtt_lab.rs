@@ -446,21 +446,24 @@ fn three_rigs_a_broker_restart_and_a_watch_restart_lose_nothing() {
     assert!(answer.contains("\"outcome\":\"refused\""), "{answer}");
     // From the lab, `ack --broker` seals with the rig's key for the session
     // the rig's retained status names; the controller applies it.
-    let out = heatbound()
-        .args([
-            "ack",
-            "--broker",
-            &url,
-            "--rig",
-            "rig-3",
-            "--timeout-s",
-            "30",
-        ])
-        .env("HEATBOUND_MQTT_USER", USER)
-        .env("HEATBOUND_MQTT_PASSWORD", PASSWORD)
-        .env_remove("HEATBOUND_KEY_FILE")
-        .output()
-        .unwrap();
+    let ack_from_lab = || {
+        heatbound()
+            .args([
+                "ack",
+                "--broker",
+                &url,
+                "--rig",
+                "rig-3",
+                "--timeout-s",
+                "30",
+            ])
+            .env("HEATBOUND_MQTT_USER", USER)
+            .env("HEATBOUND_MQTT_PASSWORD", PASSWORD)
+            .env_remove("HEATBOUND_KEY_FILE")
+            .output()
+            .unwrap()
+    };
+    let out = ack_from_lab();
     let said = String::from_utf8_lossy(&out.stdout);
     assert!(
         out.status.success() && said.contains("acknowledge all") && said.contains(": applied"),
@@ -481,21 +484,7 @@ fn three_rigs_a_broker_restart_and_a_watch_restart_lose_nothing() {
     );
     // A second one right after: the status has caught up with the counter.
     std::thread::sleep(Duration::from_secs(3));
-    let again = heatbound()
-        .args([
-            "ack",
-            "--broker",
-            &url,
-            "--rig",
-            "rig-3",
-            "--timeout-s",
-            "30",
-        ])
-        .env("HEATBOUND_MQTT_USER", USER)
-        .env("HEATBOUND_MQTT_PASSWORD", PASSWORD)
-        .env_remove("HEATBOUND_KEY_FILE")
-        .output()
-        .unwrap();
+    let again = ack_from_lab();
     assert!(
         again.status.success(),
         "{}",
