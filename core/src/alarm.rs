@@ -21,7 +21,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::monitor::Trends;
+use crate::monitor::{AlarmFigures, ClearBands, Trends};
 pub use crate::monitor::{AlarmInputs, RuleInputs};
 use crate::num::Real;
 
@@ -588,7 +588,7 @@ impl Limits {
     /// deadband unit ([`RuleId::deadband_unit`]): raise when `x > 0`, hold
     /// while `x ≥ −deadband`, clear below.
     pub fn verdicts<I: RuleInputs>(&self, inputs: &I) -> [Verdict; RuleId::COUNT] {
-        verdicts(self, inputs)
+        verdicts(self, inputs, |_| true)
     }
 }
 
@@ -607,53 +607,48 @@ fn beyond_uncertainty<R: Real>(a: R, k2_var: R, d: R) -> Verdict {
     }
 }
 
-fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COUNT] {
+/// Each rule's verdict on `inputs`. Where `banded(rule)` is false, the
+/// rule's caller does not tell `Hold` from `Clear` (a rule that is not
+/// raised), and the division-free test of the second-law rules may clear
+/// it without its deadband.
+fn verdicts<I: RuleInputs>(
+    limits: &Limits,
+    inputs: &I,
+    banded: impl Fn(RuleId) -> bool,
+) -> [Verdict; RuleId::COUNT] {
     type R<I> = <I as RuleInputs>::Real;
     let single = &limits.single;
     let k = R::<I>::pick(single.coverage_factor, limits.coverage_factor);
-    let k2 = k * k;
     let db = |id: RuleId| {
         let i = id.index();
         R::<I>::pick(single.deadband[i], limits.deadband[i])
     };
-    let m = inputs.figures();
     let zero = R::<I>::ZERO;
+    let near_fraction = R::<I>::pick(single.near_carnot_fraction, limits.near_carnot_fraction);
 
-    // The three second-law rules as (a, d): raise when a − k·u > 0, hold
-    // while a − k·u ≥ −d.
-    // η − η_C > k·u(margin), with margin = η_C − η (or COP_C − COP).
-    let beyond = m.carnot_margin.map(|x| (-x, db(RuleId::BeyondCarnot)));
-    // σ̇ < −k·u(σ̇); the deadband is a fraction of the entropy inflow rate,
-    // so it does not depend on the size of the rig.
-    let negative_entropy = match (m.entropy_rate_w_per_k, m.entropy_in_rate_w_per_k) {
-        (Some(s), Some(inflow)) if inflow > zero => {
-            Some((-s, db(RuleId::NegativeEntropyProduction) * inflow))
-        }
-        _ => None,
+    // The usual sample, every second-law figure clear of its limit, is told
+    // by cross-multiplying the window's sums; only otherwise are the
+    // figures, and perhaps their uncertainties, worked out.
+    let band = |id: RuleId| match db(id) {
+        d if banded(id) && d > zero => d,
+        _ => zero,
     };
-    // Q_loss < −k·u(Q_loss); the deadband is a fraction of Q_in.
-    let balance = match m.balance_residual_j {
-        Some(l) if m.heat_in_j > zero => Some((-l, db(RuleId::EnergyBalance) * m.heat_in_j)),
-        _ => None,
+    let clear = inputs.second_law_clear(&ClearBands {
+        beyond: band(RuleId::BeyondCarnot),
+        entropy: band(RuleId::NegativeEntropyProduction),
+        balance: band(RuleId::EnergyBalance),
+        near: near_fraction - band(RuleId::NearCarnot),
+    });
+    let figures = (!clear).then(|| inputs.figures());
+    let (beyond, negative_entropy, near, balance) = match &figures {
+        Some(m) => second_law_verdicts(limits, inputs, m),
+        None => (
+            Verdict::Clear,
+            Verdict::Clear,
+            Verdict::Clear,
+            Verdict::Clear,
+        ),
     };
-    // Only a rule with a > 0 or a + d ≥ 0 can do anything but clear.
-    let open =
-        |rule: Option<(R<I>, R<I>)>| matches!(rule, Some((a, d)) if a > zero || a + d >= zero);
-    let variances = (open(beyond) || open(negative_entropy) || open(balance))
-        .then(|| inputs.figures_with_variances());
-    let judge = |rule: Option<(R<I>, R<I>)>, var: Option<R<I>>| match (rule, var) {
-        (Some((a, d)), Some(var)) => beyond_uncertainty(a, k2 * var, d),
-        _ => Verdict::Clear,
-    };
-    let v = variances.as_ref();
-    let beyond = judge(beyond, v.and_then(|v| v.var_carnot_margin));
-    let negative_entropy = judge(negative_entropy, v.and_then(|v| v.var_entropy_rate_w_per_k));
-    let balance = judge(balance, v.and_then(|v| v.var_balance_residual_j));
-    let near = level(
-        m.second_law_efficiency
-            .map(|f| f - R::<I>::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
-        db(RuleId::NearCarnot),
-    );
     let over = level(
         inputs
             .t_hot_k()
@@ -683,32 +678,110 @@ fn verdicts<I: RuleInputs>(limits: &Limits, inputs: &I) -> [Verdict; RuleId::COU
                 .is_some_and(|t| t < hot_max - db(RuleId::OverTemperature))
         })
         .map(|l| (hot_max - l.value, l.slope_per_s, l.u_slope_per_s));
-    let margin = trends
-        .carnot_margin
-        .filter(|_| {
-            m.carnot_margin
-                .is_some_and(|x| x > db(RuleId::BeyondCarnot))
-        })
-        .map(|l| (l.value, -l.slope_per_s, l.u_slope_per_s));
-    let ahead_of = |line: Option<(R<I>, R<I>, R<I>)>| match line {
-        Some((gap, speed, u)) if speed > zero && speed > k * u && gap > zero => {
-            if gap < speed * horizon {
-                2
-            } else if gap <= speed * (horizon + db(RuleId::LimitAhead)) {
-                1
+    let ahead_of = |line| ahead_of(line, k, horizon, db(RuleId::LimitAhead));
+    // The margin's line counts only while the margin is beyond its own
+    // rule's deadband, which needs the figures: asked only if it counts.
+    let margin = match ahead_of(
+        trends
+            .carnot_margin
+            .map(|l| (l.value, -l.slope_per_s, l.u_slope_per_s)),
+    ) {
+        0 => 0,
+        n => {
+            let now = match &figures {
+                Some(m) => m.carnot_margin,
+                None => inputs.figures().carnot_margin,
+            };
+            if now.is_some_and(|x| x > db(RuleId::BeyondCarnot)) {
+                n
             } else {
                 0
             }
         }
-        _ => 0,
     };
-    let ahead = match ahead_of(hot).max(ahead_of(margin)) {
+    let ahead = match ahead_of(hot).max(margin) {
         2 => Verdict::Raise { since_ms: None },
         1 => Verdict::Hold,
         _ => Verdict::Clear,
     };
 
     [beyond, negative_entropy, near, balance, over, sensor, ahead]
+}
+
+/// How a trend line, as (gap to its limit, speed towards it, u(speed)),
+/// stands against the horizon: 2 when it reaches the limit within it, 1
+/// within the deadband beyond it, else 0 (or when not heading there by more
+/// than `k` standard errors).
+fn ahead_of<R: Real>(line: Option<(R, R, R)>, k: R, horizon: R, deadband: R) -> u8 {
+    match line {
+        Some((gap, speed, u)) if speed > R::ZERO && speed > k * u && gap > R::ZERO => {
+            if gap < speed * horizon {
+                2
+            } else if gap <= speed * (horizon + deadband) {
+                1
+            } else {
+                0
+            }
+        }
+        _ => 0,
+    }
+}
+
+/// The verdicts of `beyond_carnot`, `negative_entropy_production`,
+/// `near_carnot` and `energy_balance` on the figures `m`.
+fn second_law_verdicts<I: RuleInputs>(
+    limits: &Limits,
+    inputs: &I,
+    m: &AlarmFigures<I::Real>,
+) -> (Verdict, Verdict, Verdict, Verdict) {
+    type R<I> = <I as RuleInputs>::Real;
+    let single = &limits.single;
+    let k = R::<I>::pick(single.coverage_factor, limits.coverage_factor);
+    let k2 = k * k;
+    let db = |id: RuleId| {
+        let i = id.index();
+        R::<I>::pick(single.deadband[i], limits.deadband[i])
+    };
+    let zero = R::<I>::ZERO;
+
+    // The three second-law rules as (a, d): raise when a − k·u > 0, hold
+    // while a − k·u ≥ −d.
+    // η − η_C > k·u(margin), with margin = η_C − η (or COP_C − COP).
+    let beyond = m.carnot_margin.map(|x| (-x, db(RuleId::BeyondCarnot)));
+    // σ̇ < −k·u(σ̇); the deadband is a fraction of the entropy inflow rate,
+    // so it does not depend on the size of the rig.
+    let negative_entropy = match (m.entropy_rate_w_per_k, m.entropy_in_rate_w_per_k) {
+        (Some(s), Some(inflow)) if inflow > zero => {
+            Some((-s, db(RuleId::NegativeEntropyProduction) * inflow))
+        }
+        _ => None,
+    };
+    // Q_loss < −k·u(Q_loss); the deadband is a fraction of Q_in.
+    let balance = match m.balance_residual_j {
+        Some(l) if m.heat_in_j > zero => Some((-l, db(RuleId::EnergyBalance) * m.heat_in_j)),
+        _ => None,
+    };
+    // Only a rule with a > 0 or a + d ≥ 0 can do anything but clear.
+    let open =
+        |rule: Option<(R<I>, R<I>)>| matches!(rule, Some((a, d)) if a > zero || a + d >= zero);
+    let variances = (open(beyond) || open(negative_entropy) || open(balance))
+        .then(|| inputs.figures_with_variances());
+    let judge = |rule: Option<(R<I>, R<I>)>, var: Option<R<I>>| match (rule, var) {
+        (Some((a, d)), Some(var)) => beyond_uncertainty(a, k2 * var, d),
+        _ => Verdict::Clear,
+    };
+    let v = variances.as_ref();
+    let near = level(
+        m.second_law_efficiency
+            .map(|f| f - R::<I>::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
+        db(RuleId::NearCarnot),
+    );
+    (
+        judge(beyond, v.and_then(|v| v.var_carnot_margin)),
+        judge(negative_entropy, v.and_then(|v| v.var_entropy_rate_w_per_k)),
+        near,
+        judge(balance, v.and_then(|v| v.var_balance_residual_j)),
+    )
 }
 
 /// When each limit is projected to be crossed, seconds from the latest
@@ -859,8 +932,59 @@ impl AlarmSet {
     /// assert!(alarms.trip_active());
     /// ```
     pub fn update<I: RuleInputs>(&mut self, t_ms: u32, inputs: &I) -> Events {
-        let verdicts = verdicts(&self.limits, inputs);
+        if self.calm(inputs) {
+            return Events::at(t_ms);
+        }
+        // Only a raised rule tells `Hold` from `Clear`: elsewhere (normal,
+        // pending, latched unacknowledged) both leave it where it is.
+        let raised = |id: RuleId| {
+            matches!(
+                self.states[id.index()],
+                AlarmState::Active { .. } | AlarmState::Clearing { .. }
+            )
+        };
+        let verdicts = verdicts(&self.limits, inputs, raised);
         self.apply(t_ms, &verdicts)
+    }
+
+    /// Whether no rule can move on `inputs`: every rule normal, no channel
+    /// fault, the hot side not above its limit, no trend reaching a limit
+    /// within the horizon, and the second-law rules certainly clear. Each
+    /// verdict is then `Hold` or `Clear`, which leave a normal rule where it
+    /// is; this is the usual sample, and it costs a few comparisons.
+    fn calm<I: RuleInputs>(&self, inputs: &I) -> bool {
+        type R<I> = <I as RuleInputs>::Real;
+        let (l, s) = (&self.limits, &self.limits.single);
+        if self.states != [AlarmState::Normal; RuleId::COUNT] || inputs.faults().any() {
+            return false;
+        }
+        let hot_max = R::<I>::pick(s.hot_max_k, l.hot_max_k);
+        if inputs.t_hot_k().is_some_and(|t| t > hot_max) {
+            return false;
+        }
+        let trends = inputs.trends();
+        let i = RuleId::LimitAhead.index();
+        let raises = |line| {
+            let k = R::<I>::pick(s.coverage_factor, l.coverage_factor);
+            let horizon = R::<I>::pick(s.horizon_s, l.horizon_s);
+            ahead_of(line, k, horizon, R::<I>::pick(s.deadband[i], l.deadband[i])) == 2
+        };
+        let hot = trends
+            .t_hot_k
+            .map(|l| (hot_max - l.value, l.slope_per_s, l.u_slope_per_s));
+        let margin = trends
+            .carnot_margin
+            .map(|l| (l.value, -l.slope_per_s, l.u_slope_per_s));
+        if raises(hot) || raises(margin) {
+            return false;
+        }
+        let zero = R::<I>::ZERO;
+        inputs.second_law_clear(&ClearBands {
+            beyond: zero,
+            entropy: zero,
+            balance: zero,
+            near: R::<I>::pick(s.near_carnot_fraction, l.near_carnot_fraction),
+        })
     }
 
     /// The limits the rules compare against.

@@ -115,7 +115,7 @@ def main():
             by_line[outer][where] += n
 
     print(f"instructions per call ({calls:.0f} calls), by outermost function:")
-    for fn, n in by_function.most_common(12):
+    for fn, n in by_function.most_common(30):
         print(f"{n / calls:10.1f}  {fn}")
     for fn in ("push", "update"):
         if fn in by_line:

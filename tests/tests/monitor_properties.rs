@@ -12,8 +12,8 @@
 mod common;
 
 use common::{config, sample};
-use heatbound::alarm::AlarmSet;
-use heatbound::config::{Mode, RigFile};
+use heatbound::alarm::{AlarmSet, RuleId};
+use heatbound::config::{AlarmsFile, Mode, RigFile, RuleFile, UncertaintyFile};
 use heatbound::monitor::{Metrics, Monitor, Sample};
 use heatbound::num::Real;
 use proptest::prelude::*;
@@ -238,5 +238,121 @@ proptest! {
         ambient in any::<bool>(),
     ) {
         lazy_matches_eager(th, tc, qi, offset, residual, ambient)?;
+    }
+}
+
+/// A steady machine in `mode` whose figure of merit sits `offset` (relative)
+/// from its Carnot bound, swinging by `swing` over the run, so that rules
+/// raise, hold and clear; with heat out measured, the balance closes to
+/// within `residual` of the heat in. Every sample, the live inputs must give
+/// the verdicts of every figure computed up front, and an alarm set updated
+/// from the live inputs must emit the events, and reach the states, of one
+/// driven by the up-front verdicts. With `precise` channels (uncertainties
+/// far below the deadbands) the rules also hold within their deadbands.
+///
+/// Check values: the definitions of DESIGN.md §4 (η = W/Q_in against
+/// 1 − T_c/T_h; heat pump Q_in/W against T_h/(T_h − T_c); cooler Q_out/W
+/// against T_c/(T_h − T_c)), worked out in f64 here.
+#[allow(clippy::too_many_arguments)]
+fn live_alarms_match_eager(
+    mode: Mode,
+    th: f64,
+    tc: f64,
+    power: f64,
+    offset: f64,
+    swing: f64,
+    residual: Option<f64>,
+    ambient: bool,
+    precise: bool,
+) -> Result<(), TestCaseError> {
+    let rule = |deadband| {
+        Some(RuleFile {
+            deadband: Some(deadband),
+            on_delay_s: Some(0.0),
+            off_delay_s: Some(0.5),
+            ..Default::default()
+        })
+    };
+    let cfg = config(RigFile {
+        mode: Some(mode),
+        window_samples: Some(8),
+        ambient_k: ambient.then_some(293.15),
+        uncertainty: precise.then(|| UncertaintyFile {
+            hot_k: Some(0.01),
+            cold_k: Some(0.01),
+            heat_in_rel: Some(1e-4),
+            work_rel: Some(1e-4),
+            heat_out_rel: Some(1e-4),
+            ..Default::default()
+        }),
+        alarms: precise.then(|| AlarmsFile {
+            // Raised only past the bound, and held only close to it, so
+            // that the other rules' deadbands are not hidden behind it.
+            near_carnot_fraction: Some(1.0),
+            near_carnot: rule(0.001),
+            beyond_carnot: rule(0.05),
+            negative_entropy_production: rule(0.05),
+            energy_balance: rule(0.05),
+            ..Default::default()
+        }),
+        ..Default::default()
+    });
+    let mut monitor: Monitor<8> = Monitor::new(&cfg).unwrap();
+    let mut live = AlarmSet::new(&cfg);
+    let mut eager = AlarmSet::new(&cfg);
+    for i in 0..60u32 {
+        let x = 1.0 + offset + swing * (f64::from(i) / 5.0).sin();
+        // (heat in, work, heat out), heat out by the first law before the residual.
+        let (qi, w, qo) = match mode {
+            Mode::Engine => {
+                let w = power * (1.0 - tc / th) * x;
+                (power, w, power - w)
+            }
+            Mode::HeatPump => {
+                let w = power / (th / (th - tc) * x);
+                (power, w, power - w)
+            }
+            Mode::Cooler => {
+                let w = power / (tc / (th - tc) * x);
+                (power + w, w, power)
+            }
+        };
+        let heat_out_w = residual.map(|r| qo - r * qi);
+        let t = i * 250;
+        monitor.push(&sample::<f32>(t, th, tc, qi, w, heat_out_w));
+        let inputs = monitor.alarm_inputs();
+        let resolved = inputs.resolve();
+        let verdicts = eager.limits().verdicts(&resolved);
+        prop_assert_eq!(live.limits().verdicts(&inputs), verdicts, "sample {}", i);
+        prop_assert_eq!(
+            live.update(t, &inputs),
+            eager.apply(t, &verdicts),
+            "sample {}",
+            i
+        );
+        for id in RuleId::ALL {
+            prop_assert_eq!(live.state(id), eager.state(id), "sample {} {:?}", i, id);
+        }
+    }
+    Ok(())
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 2048, ..ProptestConfig::default() })]
+
+    #[test]
+    fn live_alarms_match_full_figures_in_every_mode(
+        mode in 0usize..3,
+        th in 400.0f64..900.0,
+        tc in 250.0f64..350.0,
+        power in 1.0f64..5000.0,
+        offset in prop_oneof![-0.6f64..0.05, -0.02f64..0.02],
+        swing in prop_oneof![Just(0.0f64), 0.0f64..0.1],
+        residual in proptest::option::of(-0.05f64..0.05),
+        ambient in any::<bool>(),
+        precise in any::<bool>(),
+    ) {
+        let mode = [Mode::Engine, Mode::HeatPump, Mode::Cooler][mode];
+        live_alarms_match_eager(mode, th, tc, power, offset, swing, residual, ambient, precise)?;
     }
 }

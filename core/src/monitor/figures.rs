@@ -457,6 +457,134 @@ impl<R: Real> Integrals<R> {
     }
 }
 
+impl<R: Real> Integrals<R> {
+    /// Whether `beyond_carnot`, `negative_entropy_production`, `near_carnot`
+    /// and `energy_balance` are all certainly clear on these integrals:
+    /// each figure is past its rule's clear level by more than rounding (a
+    /// relative [`CLEAR_MARGIN`] of the terms compared). Decided by
+    /// cross-multiplying the sums, with no division and no uncertainty, so
+    /// the usual sample, far from every bound, costs a few products. `false`
+    /// means "work the figures out", not "raised".
+    ///
+    /// Where a figure does not exist (a denominator that is not positive,
+    /// `T_h` not above `T_c`), its rule clears whatever the readings, and so
+    /// it does here, by the same comparisons.
+    pub(super) fn second_law_clear(&self, p: &Prepared<R>, b: &ClearBands<R>) -> bool {
+        let eps = R::from_f32(CLEAR_MARGIN);
+        let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
+        let (si, so) = (self.entropy_in_j_per_k, self.entropy_out_j_per_k);
+        let sign = if p.mode.is_reverse() { -R::ONE } else { R::ONE };
+
+        // T_h = Q_in/S_in and T_c = Q_out/S_out: T_h − T_c = D/(S_in·S_out)
+        // with D = Q_in·S_out − Q_out·S_in.
+        let bound_rules = !(positive(si) && positive(so)) || {
+            let (h, c) = (qi * so, qo * si);
+            let d = h - c;
+            let sd = h.abs() + c.abs();
+            !positive(d)
+                || match p.mode {
+                    // η = W/Q_in, η_C = D/(Q_in·S_out), η/η_C = W·S_out/D.
+                    Mode::Engine => {
+                        !positive(qi) || {
+                            let ws = w * so;
+                            let beyond = ws - d + b.beyond * h;
+                            let near = b.near * d - ws;
+                            beyond < -eps * (ws.abs() + sd + b.beyond * h)
+                                && near > eps * (ws.abs() + b.near.abs() * sd)
+                        }
+                    }
+                    // COP = Q_in/W, COP_C = Q_in·S_out/D, COP/COP_C = D/(W·S_out).
+                    Mode::HeatPump => {
+                        !positive(w) || {
+                            let beyond = qi * d - h * w + b.beyond * w * d;
+                            let ws = w * so;
+                            beyond < -eps * ((qi.abs() + b.beyond * w) * sd + h.abs() * w)
+                                && (!positive(qi)
+                                    || b.near * ws - d > eps * (b.near.abs() * ws + sd))
+                        }
+                    }
+                    // COP = Q_out/W, COP_C = Q_out·S_in/D, COP/COP_C = D/(W·S_in).
+                    Mode::Cooler => {
+                        !positive(w) || {
+                            let beyond = qo * d - c * w + b.beyond * w * d;
+                            let ws = w * si;
+                            beyond < -eps * ((qo.abs() + b.beyond * w) * sd + c.abs() * w)
+                                && (!positive(qo)
+                                    || b.near * ws - d > eps * (b.near.abs() * ws + sd))
+                        }
+                    }
+                }
+        };
+        if !bound_rules {
+            return false;
+        }
+
+        // σ̇ > db·(S_in/duration), times the duration (and T0 with heat out
+        // measured, where S_gen = S_out − S_in + Q_loss/T0).
+        let dur = self.duration_s;
+        let loss = qi - w - qo;
+        let sl = qi.abs() + w.abs() + qo.abs();
+        let entropy_rule = !(positive(dur) && positive(si)) || {
+            let gap = so - si;
+            let se = so.abs() + si * (R::ONE + b.entropy);
+            if !self.heat_out_measured {
+                sign * gap - b.entropy * si > eps * se
+            } else {
+                match p.ambient {
+                    Some(t0) => {
+                        !positive(t0)
+                            || sign * (gap * t0 + loss) - b.entropy * si * t0 > eps * (se * t0 + sl)
+                    }
+                    // T0 = ∫T_cold dt / duration.
+                    None => {
+                        let ct = self.cold_temperature_integral_k_s;
+                        !positive(ct)
+                            || sign * (gap * ct + loss * dur) - b.entropy * si * ct
+                                > eps * (se * ct + sl * dur)
+                    }
+                }
+            }
+        };
+
+        // Q_loss > db·Q_in, with heat out measured.
+        let balance_rule = !self.heat_out_measured
+            || !positive(qi)
+            || sign * loss - b.balance * qi > eps * (sl + b.balance * qi);
+
+        entropy_rule && balance_rule
+    }
+}
+
+/// `x > 0`, false for NaN: `!positive(x)` is "not above zero".
+#[inline(always)]
+fn positive<R: Real>(x: R) -> bool {
+    x > R::ZERO
+}
+
+/// How far past its clear level a figure must be for
+/// [`Integrals::second_law_clear`] to call its rule clear, relative to the
+/// terms compared: far above the rounding of either way of working it out
+/// (`f32`: about 10⁻⁷ per operation).
+const CLEAR_MARGIN: f32 = 1.0e-3;
+
+/// The clear levels of the second-law rules, for
+/// [`RuleInputs::second_law_clear`](super::RuleInputs::second_law_clear):
+/// a rule is clear when its figure is beyond its limit's deadband, on the
+/// side away from the limit. Each deadband is at least 0.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ClearBands<R> {
+    /// `beyond_carnot`: η − η_C (or COP − COP_C) below −this.
+    pub beyond: R,
+    /// `negative_entropy_production`: σ̇ above this fraction of the entropy
+    /// inflow rate.
+    pub entropy: R,
+    /// `energy_balance`: the balance residual above this fraction of `Q_in`.
+    pub balance: R,
+    /// `near_carnot`: η/η_C (or COP/COP_C) below this (its fraction less its
+    /// deadband).
+    pub near: R,
+}
+
 /// What [`Integrals::second_law`] works out, shared by the full figures and
 /// the alarms' figures.
 struct SecondLaw<R> {

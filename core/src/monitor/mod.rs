@@ -66,7 +66,7 @@ mod steady;
 mod trend;
 mod uncertainty;
 
-pub use figures::{AlarmFigures, Metrics};
+pub use figures::{AlarmFigures, ClearBands, Metrics};
 pub use health::Faults;
 pub use integrals::Integrals;
 pub use live::{Monitor, MonitorError};

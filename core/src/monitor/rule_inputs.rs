@@ -3,7 +3,7 @@
 
 use crate::num::Real;
 
-use super::figures::{AlarmFigures, Prepared};
+use super::figures::{AlarmFigures, ClearBands, Prepared};
 use super::health::Faults;
 use super::integrals::Integrals;
 use super::trend::Trends;
@@ -39,6 +39,10 @@ impl<R: Real> RuleInputs for WindowAlarmInputs<'_, R> {
     }
     fn figures_with_variances(&self) -> AlarmFigures<R> {
         self.integrals.alarm_figures_with::<true>(self.prepared)
+    }
+    #[inline]
+    fn second_law_clear(&self, bands: &ClearBands<R>) -> bool {
+        self.integrals.second_law_clear(self.prepared, bands)
     }
     fn t_hot_k(&self) -> Option<R> {
         self.t_hot_k
@@ -84,6 +88,14 @@ pub trait RuleInputs {
     fn figures(&self) -> AlarmFigures<Self::Real>;
     /// The figures with their variances.
     fn figures_with_variances(&self) -> AlarmFigures<Self::Real>;
+    /// Whether the four second-law rules are certainly clear at `bands`,
+    /// told without working out the figures; `false` when that cannot be
+    /// told cheaply (the default), and the rules then read
+    /// [`RuleInputs::figures`].
+    fn second_law_clear(&self, bands: &ClearBands<Self::Real>) -> bool {
+        let _ = bands;
+        false
+    }
     /// Latest valid hot-side temperature, kelvin.
     fn t_hot_k(&self) -> Option<Self::Real>;
     /// Channel faults.
