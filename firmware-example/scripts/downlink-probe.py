@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Checks the downlink of a controller on a TCP link by hand: the emulator
 served by `run-emulator.sh --serve`, or anything else that speaks wire
-protocol version 3 with the public demo key.
+protocol version 4 with the public demo key.
 
     firmware-example/scripts/run-emulator.sh --serve     # prints 127.0.0.1:PORT
     python3 firmware-example/scripts/downlink-probe.py 127.0.0.1:PORT
@@ -35,7 +35,7 @@ import zlib
 from cobs import cobs  # PyPI cobs 1.2.1, as tests/tools/gen_wire_golden.py
 
 # core/src/wire/format.rs: PROTOCOL_VERSION and `mod kind`.
-VERSION = 3
+VERSION = 4
 KIND_HELLO, KIND_SUMMARY, KIND_EVENT, KIND_REPLY, KIND_COMMAND = 0, 1, 2, 3, 16
 # core/src/wire/command.rs: DOMAIN, the tag's domain-separation prefix.
 DOMAIN = b"heatbound command v2\x00"

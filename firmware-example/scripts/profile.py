@@ -117,10 +117,10 @@ def main():
     print(f"instructions per call ({calls:.0f} calls), by outermost function:")
     for fn, n in by_function.most_common(30):
         print(f"{n / calls:10.1f}  {fn}")
-    for fn in ("push", "update"):
+    for fn in ("push", "update", "slide"):
         if fn in by_line:
             print(f"\n{fn}: where its {by_function[fn] / calls:.0f} instructions go (innermost source line)")
-            for where, n in by_line[fn].most_common(25):
+            for where, n in by_line[fn].most_common(40):
                 print(f"{n / calls:10.1f}  {where}")
 
 

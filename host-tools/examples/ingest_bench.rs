@@ -8,24 +8,27 @@
 //! ```
 use std::time::Instant;
 
+use heatbound::num::Real;
 use heatbound::wire::{self, Frame, Status, Summary};
 use heatbound_host::ingest::{Ingest, LineStyle};
 use heatbound_host::store::Log;
 use rusqlite::{Connection, params};
 
+/// A Summary as a controller makes it: a 6000 ms window (`Real::from_ms`),
+/// heat out inferred (`Q_in − W`) and σ̇ what its integrals give.
 fn summary(seq: u32) -> Summary {
     let x = seq as f32;
-    Summary {
+    let heat_in_j = 6000.0 + x * 0.01;
+    let mut s = Summary {
         seq: seq as u16,
         t_ms: seq.wrapping_mul(1000),
-        duration_s: 6.0,
-        heat_in_j: 6000.0 + x * 0.01,
+        duration_s: <f32 as Real>::from_ms(6000),
+        heat_in_j,
         work_j: 1800.0,
-        heat_out_j: 4200.0,
+        heat_out_j: heat_in_j - 1800.0,
         entropy_in_j_per_k: 10.0,
         entropy_out_j_per_k: 14.0,
         ambient_k: Some(293.15),
-        entropy_rate_w_per_k: Some(0.666_666_7),
         u_performance: Some(0.004),
         u_bound: Some(0.002),
         u_margin: Some(0.0045),
@@ -35,7 +38,9 @@ fn summary(seq: u32) -> Summary {
             ..Status::default()
         },
         ..Summary::default()
-    }
+    };
+    s.entropy_rate_w_per_k = s.metrics().entropy_rate_w_per_k;
+    s
 }
 
 fn main() -> anyhow::Result<()> {

@@ -6,7 +6,7 @@
 //! `tests/tools/gen_wire_golden.py`, which builds each frame from the
 //! specification with Python's struct, zlib.crc32, hmac/hashlib
 //! (HMAC-SHA-256) and PyPI `cobs` 1.2.1, into
-//! `tests/vectors/wire_v3_golden.txt`.
+//! `tests/vectors/wire_v4_golden.txt`.
 
 use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::{Mode, RigConfig};
@@ -46,7 +46,8 @@ fn summary() -> Frame {
     Frame::Summary(Summary {
         seq: 513,
         t_ms: 120_000,
-        duration_s: 6.0,
+        // 6000 ms as a controller makes them: 6000 × 1e-3 in f32.
+        duration_s: 6.000_000_5,
         heat_in_j: 6000.0,
         work_j: 1800.0,
         heat_out_j: 4200.0,
@@ -55,7 +56,8 @@ fn summary() -> Frame {
         hot_temperature_integral_k_s: 3600.0,
         hot_pair_integral_k_s: 240.0,
         ambient_k: Some(300.0),
-        entropy_rate_w_per_k: Some(0.666_666_7),
+        // (14 − 10)/6.0000005 in f32, as the generator works it out.
+        entropy_rate_w_per_k: Some(0.666_666_6),
         u_performance: Some(0.004),
         u_bound: Some(0.002),
         u_margin: Some(0.0045),
@@ -78,6 +80,45 @@ fn summary() -> Frame {
             suspect: Some(Channel::Hot),
             bias: Some(40.0),
         },
+    })
+}
+
+/// Heat out measured with T0 configured: σ̇ is not sent, and the decoder
+/// works it out from the integrals; `0.333_731_44` is the value
+/// `tests/tools/gen_wire_golden.py` works out by the specification's
+/// binary32 operations (`((S_out + Q_loss/T0) − S_in)/duration`).
+fn summary_measured() -> Frame {
+    Frame::Summary(Summary {
+        seq: 7,
+        t_ms: 5000,
+        duration_s: 1.0005,
+        heat_in_j: 500.0,
+        work_j: 100.0,
+        heat_out_j: 390.0,
+        entropy_in_j_per_k: 1.0,
+        entropy_out_j_per_k: 1.3,
+        hot_temperature_integral_k_s: 250.0,
+        hot_pair_integral_k_s: 0.0,
+        ambient_k: Some(295.0),
+        entropy_rate_w_per_k: Some(0.333_731_44),
+        u_performance: Some(0.01),
+        u_bound: Some(0.02),
+        u_margin: Some(0.03),
+        u_entropy_rate_w_per_k: Some(0.04),
+        status: Status {
+            steady: true,
+            heat_out_measured: true,
+            trip_active: false,
+            any_fault: false,
+            hot2_measured: false,
+            mode: Mode::Engine,
+        },
+        faults: FaultBits {
+            channels: 0,
+            stale: false,
+        },
+        alarms: 1,
+        verdict: Verdict::default(),
     })
 }
 
@@ -106,9 +147,9 @@ fn reply() -> Frame {
     })
 }
 
-/// The golden frame `name` from `tests/vectors/wire_v3_golden.txt`.
+/// The golden frame `name` from `tests/vectors/wire_v4_golden.txt`.
 fn golden(name: &str) -> String {
-    let text = include_str!("../vectors/wire_v3_golden.txt");
+    let text = include_str!("../vectors/wire_v4_golden.txt");
     text.lines()
         .find_map(|l| l.strip_prefix(name)?.strip_prefix(' '))
         .unwrap_or_else(|| panic!("no golden frame {name}"))
@@ -141,6 +182,11 @@ fn hello_golden() {
 #[test]
 fn summary_golden() {
     check(summary(), &golden("summary"));
+}
+
+#[test]
+fn summary_measured_golden() {
+    check(summary_measured(), &golden("summary_measured"));
 }
 
 #[test]

@@ -194,9 +194,14 @@ proptest! {
 #[test]
 fn worst_case_sizes() {
     let mut buf = [0u8; wire::MAX_FRAME_LEN];
+    // Every field travels (protocol 4): no integral is what the others
+    // give, σ̇ is not what the integrals give, the duration is not whole ms.
     let worst_summary = Summary {
         seq: u16::MAX,
         t_ms: u32::MAX,
+        duration_s: 0.1234,
+        heat_out_j: 1.0,
+        hot_pair_integral_k_s: 1.0,
         ambient_k: Some(1.0),
         entropy_rate_w_per_k: Some(1.0),
         u_performance: Some(1.0),
@@ -299,4 +304,87 @@ fn worst_case_sizes() {
     };
     let n = wire::encode(&Frame::Event(worst_event), &mut buf).unwrap();
     assert_eq!(n, 20);
+}
+
+prop_compose! {
+    /// A Summary whose optional integrals are what a receiver works out
+    /// (`Q_out = Q_in − W`, no pair integral, σ̇ from the integrals, whole
+    /// milliseconds), as a controller's are, with the rest arbitrary.
+    fn predictable_summary()(s in summary(), ms in 0u32..(1 << 21), entropy_rate in any::<bool>())
+        -> Summary {
+        let mut s = s;
+        s.duration_s = ms as f32 * 1e-3;
+        s.heat_out_j = s.heat_in_j - s.work_j;
+        s.hot_pair_integral_k_s = 0.0;
+        if entropy_rate {
+            s.entropy_rate_w_per_k = s.metrics().entropy_rate_w_per_k;
+        }
+        s
+    }
+}
+
+proptest! {
+    /// Protocol 4 leaves out what a receiver works out; the round trip stays
+    /// exact, and each field left out saves its 4 bytes (the duration 1 to 3).
+    #[test]
+    fn predicted_fields_round_trip(s in predictable_summary()) {
+        prop_assume!(s.heat_out_j.is_finite());
+        let mut buf = [0u8; wire::MAX_FRAME_LEN];
+        let n = wire::encode(&Frame::Summary(s), &mut buf).unwrap();
+        prop_assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Summary(s)));
+        // The same with σ̇ left out of both, and every integral sent in one.
+        let mut lean = s;
+        lean.entropy_rate_w_per_k = lean.metrics().entropy_rate_w_per_k;
+        let mut full = lean;
+        full.duration_s = f32::from_bits(s.duration_s.to_bits() ^ 1);
+        full.heat_out_j = f32::from_bits(s.heat_out_j.to_bits() ^ 1);
+        full.hot_pair_integral_k_s = 1.0;
+        full.entropy_rate_w_per_k = full.metrics().entropy_rate_w_per_k;
+        let n = wire::encode(&Frame::Summary(lean), &mut buf).unwrap();
+        let mut long = [0u8; wire::MAX_FRAME_LEN];
+        let m = wire::encode(&Frame::Summary(full), &mut long).unwrap();
+        prop_assert!(m >= n + 9, "{} bytes with every integral sent, {} without", m, n);
+    }
+}
+
+/// A controller's own Summaries, one window of 60 samples at 100 ms after
+/// half a minute, with heat out inferred and measured: σ̇ and the duration
+/// are what a receiver works out, so the frame is 59 or 63 bytes (`seq`
+/// 513 and `t_ms` 1,000,000 take 2 and 3 bytes).
+#[test]
+fn controller_summaries_fit_64_bytes() {
+    use heatbound::alarm::AlarmSet;
+    use heatbound::config::RigConfig;
+    use heatbound::monitor::{Monitor, Sample};
+    for (measured, expected) in [(false, 59), (true, 63)] {
+        let config = RigConfig {
+            window_samples: 60,
+            ..RigConfig::default()
+        };
+        let mut monitor = Monitor::<64>::new(&config).unwrap();
+        for i in 0..300u32 {
+            let x = i as f32 * 0.01;
+            monitor.push(&Sample {
+                t_ms: 970_100 + i * 100,
+                t_hot_k: 600.0 + x.sin(),
+                t_cold_k: 300.0 + 0.5 * x.cos(),
+                heat_in_w: 1000.0 + 3.0 * x.sin(),
+                work_w: 150.0 + x.cos(),
+                heat_out_w: measured.then_some(840.0 + 2.0 * x.cos()),
+                t_hot2_k: None,
+            });
+        }
+        let s = Summary::from_monitor(
+            513,
+            1_000_000,
+            &monitor,
+            &AlarmSet::new(&config),
+            Verdict::default(),
+        );
+        assert!(s.entropy_rate_w_per_k.is_some() && s.u_margin.is_some());
+        let mut buf = [0u8; wire::MAX_FRAME_LEN];
+        let n = wire::encode(&Frame::Summary(s), &mut buf).unwrap();
+        assert_eq!(n, expected, "heat out measured: {measured}");
+        assert_eq!(wire::decode(&buf[..n]), Ok(Frame::Summary(s)));
+    }
 }

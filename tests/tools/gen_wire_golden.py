@@ -1,12 +1,12 @@
 #!/usr/bin/env python3
-"""Golden frames of wire protocol version 3, built from docs/wire-format.md
+"""Golden frames of wire protocol version 4, built from docs/wire-format.md
 with general-purpose libraries only: Python's struct (IEEE 754 binary32 and
 binary64, little-endian), zlib.crc32 (CRC-32/ISO-HDLC), hmac + hashlib
 (HMAC-SHA-256, RFC 2104 / FIPS 180-4) and PyPI `cobs` (Consistent Overhead
 Byte Stuffing).
 
     pip install cobs==1.2.1
-    python3 tests/tools/gen_wire_golden.py > tests/vectors/wire_v3_golden.txt
+    python3 tests/tools/gen_wire_golden.py > tests/vectors/wire_v4_golden.txt
 
 Each output line is `name hex`, the whole frame on the wire (delimiter
 included). tests/tests/wire_golden.rs compares heatbound's encoder and
@@ -20,7 +20,7 @@ import zlib
 
 from cobs import cobs  # PyPI cobs 1.2.1
 
-VERSION = 3
+VERSION = 4
 KIND_HELLO, KIND_SUMMARY, KIND_EVENT, KIND_REPLY, KIND_COMMAND = 0, 1, 2, 3, 16
 DOMAIN = b"heatbound command v2\x00"
 DEMO_KEY = b"heatbound demo key - not secret!"
@@ -91,20 +91,95 @@ def hello():
 NAN = struct.pack("<I", 0x7FC00000)  # not available
 
 
+def r32(x):
+    """x rounded to IEEE 754 binary32 (the result of an f32 operation)."""
+    return struct.unpack("<f", struct.pack("<f", x))[0]
+
+
+# The bits that say which Summary fields travel (section 3.2).
+SENT_HEAT_OUT = 1 << 7  # in status
+SENT_HOT_PAIR = 1 << 6  # in faults
+SENT_ENTROPY_RATE = 1 << 7  # in alarms
+SENT_AMBIENT, SENT_UNCERTAINTIES, SENT_DURATION_MS = 1 << 5, 1 << 6, 1 << 7  # in verdict
+
+
+def entropy_rate(s):
+    """sigma-dot as section 3.2 works it out, one binary32 operation at a time."""
+    if s["measured"]:
+        t0 = s["ambient"]
+        if t0 is None or t0 <= 0:
+            return None
+        loss = r32(r32(s["qi"] - s["w"]) - s["qo"])
+        s_gen = r32(r32(s["so"] + r32(loss / t0)) - s["si"])
+    else:
+        s_gen = r32(s["so"] - s["si"])
+    return r32(s_gen / s["duration"]) if s["duration"] > 0 else None
+
+
+def summary_body(s):
+    """The body of Summary `s` (a dict), each optional field sent only when
+    a receiver could not work it out."""
+    heat_out = s["qo"] != r32(s["qi"] - s["w"])
+    hot_pair = s["pair"] != 0.0
+    sigma = s["sigma"] != entropy_rate(s)
+    us = s["u"]
+    ms = round(s["duration"] * 1000)
+    duration_ms = ms < 2**21 and r32(r32(float(ms)) * r32(1e-3)) == s["duration"]
+    status, faults, alarms, verdict = s["bits"]
+    body = varint(s["seq"]) + varint(s["t_ms"]) + bytes([
+        status | (SENT_HEAT_OUT if heat_out else 0),
+        faults | (SENT_HOT_PAIR if hot_pair else 0),
+        alarms | (SENT_ENTROPY_RATE if sigma else 0),
+        verdict
+        | (SENT_AMBIENT if s["ambient"] is not None else 0)
+        | (SENT_UNCERTAINTIES if any(u is not None for u in us) else 0)
+        | (SENT_DURATION_MS if duration_ms else 0),
+    ])
+    body += varint(ms) if duration_ms else f32(s["duration"])
+    body += f32(s["qi"]) + f32(s["w"])
+    body += f32(s["qo"]) if heat_out else b""
+    body += f32(s["si"]) + f32(s["so"]) + f32(s["ht"])
+    body += f32(s["pair"]) if hot_pair else b""
+    body += f32(s["ambient"]) if s["ambient"] is not None else b""
+    body += (NAN if s["sigma"] is None else f32(s["sigma"])) if sigma else b""
+    if any(u is not None for u in us):
+        body += b"".join(NAN if u is None else f32(u) for u in us)
+    if verdict >> 2:  # a suspect: its bias travels
+        body += NAN if s["bias"] is None else f32(s["bias"])
+    return body
+
+
 def summary():
-    body = (
-        varint(513)
-        + varint(120000)
-        # duration, Q_in, W, Q_out, S_in, S_out, integral of T_hot, of T_hot - T_hot2
-        + b"".join(f32(x) for x in [6.0, 6000.0, 1800.0, 4200.0, 10.0, 14.0, 3600.0, 240.0])
-        # T0, entropy rate, u(performance), u(bound), u(margin)
-        + b"".join(f32(x) for x in [300.0, 0.6666667, 0.004, 0.002, 0.0045])
-        + NAN  # u(entropy rate) not available
-        + f32(40.0)  # the suspect's bias, K
-        + bytes([0x11, 0x00, 0x00])  # status: steady, hot2 read, engine; no faults; no alarms
-        + bytes([0x02 | (1 << 2)])  # verdict: inconsistent, suspect channel 0 (hot) + 1
+    # An engine with heat out inferred (so Q_out = Q_in - W does not travel)
+    # and a second hot sensor; sigma-dot is what the integrals give, so it
+    # does not travel either.
+    # The window is 6000 ms, which a controller makes 6000 * 1e-3 in binary32
+    # (6.0000005 s): the duration travels as those milliseconds.
+    s = dict(
+        seq=513, t_ms=120000, duration=r32(r32(6000.0) * r32(1e-3)), qi=6000.0, w=1800.0,
+        qo=4200.0, si=10.0, so=14.0, ht=3600.0, pair=240.0, ambient=300.0, measured=False,
+        sigma=None,
+        u=[0.004, 0.002, 0.0045, None], bias=40.0,
+        # status: steady, hot2 read, engine; no faults; no alarms;
+        # verdict: inconsistent, suspect channel 0 (hot) + 1
+        bits=(0x11, 0x00, 0x00, 0x02 | (1 << 2)),
     )
-    return frame(bytes([VERSION, KIND_SUMMARY]) + body)
+    s["sigma"] = entropy_rate(s)
+    return frame(bytes([VERSION, KIND_SUMMARY]) + summary_body(s))
+
+
+def summary_measured():
+    # Heat out measured, T0 configured, no second hot sensor, a duration
+    # that is not whole milliseconds, no diagnosis yet, beyond_carnot active.
+    s = dict(
+        seq=7, t_ms=5000, duration=r32(1.0005), qi=500.0, w=100.0, qo=390.0, si=1.0, so=1.3,
+        ht=250.0, pair=0.0, ambient=295.0, measured=True, sigma=None,
+        u=[0.01, 0.02, 0.03, 0.04], bias=None,
+        bits=(0x03, 0x00, 0x01, 0x00),  # steady, heat out measured, engine
+    )
+    s["so"], s["ambient"] = r32(s["so"]), r32(s["ambient"])
+    s["sigma"] = entropy_rate(s)
+    return frame(bytes([VERSION, KIND_SUMMARY]) + summary_body(s))
 
 
 def event():
@@ -158,6 +233,7 @@ def main():
     lines = [
         ("hello", hello()),
         ("summary", summary()),
+        ("summary_measured", summary_measured()),
         ("event", event()),
         ("reply", reply()),
         # Hello request, unsealed (an all-zero tag): counter 0, variant 0.

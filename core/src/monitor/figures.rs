@@ -274,6 +274,13 @@ impl<R: Real> Integrals<R> {
         }
     }
 
+    /// σ̇ alone, W/K: the value [`Integrals::metrics`] gives, by the same
+    /// operations, without the rest.
+    pub fn entropy_rate(&self, settings: &FigureSettings) -> Option<R> {
+        self.alarm_figures_with::<false>(&Prepared::new(settings))
+            .entropy_rate_w_per_k
+    }
+
     /// Only the figures the alarm rules read: the per-sample path, which
     /// skips everything [`Integrals::metrics`] adds for reports.
     pub fn alarm_figures(&self, settings: &FigureSettings) -> AlarmFigures<R> {
@@ -493,24 +500,21 @@ impl<R: Real> Integrals<R> {
                                 && near > eps * (ws.abs() + b.near.abs() * sd)
                         }
                     }
-                    // COP = Q_in/W, COP_C = Q_in·S_out/D, COP/COP_C = D/(W·S_out).
-                    Mode::HeatPump => {
+                    // COP = P/W against COP_C = B/D, COP/COP_C = D/(W·N): P = Q_in,
+                    // B = Q_in·S_out, N = S_out for a heat pump; P = Q_out,
+                    // B = Q_out·S_in, N = S_in for a cooler.
+                    _ => {
+                        let (top, bound, per) = if p.mode == Mode::HeatPump {
+                            (qi, h, so)
+                        } else {
+                            (qo, c, si)
+                        };
                         !positive(w) || {
-                            let beyond = qi * d - h * w + b.beyond * w * d;
-                            let ws = w * so;
-                            beyond < -eps * ((qi.abs() + b.beyond * w) * sd + h.abs() * w)
-                                && (!positive(qi)
-                                    || b.near * ws - d > eps * (b.near.abs() * ws + sd))
-                        }
-                    }
-                    // COP = Q_out/W, COP_C = Q_out·S_in/D, COP/COP_C = D/(W·S_in).
-                    Mode::Cooler => {
-                        !positive(w) || {
-                            let beyond = qo * d - c * w + b.beyond * w * d;
-                            let ws = w * si;
-                            beyond < -eps * ((qo.abs() + b.beyond * w) * sd + c.abs() * w)
-                                && (!positive(qo)
-                                    || b.near * ws - d > eps * (b.near.abs() * ws + sd))
+                            let beyond = top * d - bound * w + b.beyond * w * d;
+                            let wn = w * per;
+                            beyond < -eps * ((top.abs() + b.beyond * w) * sd + bound.abs() * w)
+                                && (!positive(top)
+                                    || b.near * wn - d > eps * (b.near.abs() * wn + sd))
                         }
                     }
                 }

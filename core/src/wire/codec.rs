@@ -7,6 +7,7 @@ use super::format::*;
 use super::frames::*;
 use crate::alarm::Event;
 use crate::config::Mode;
+use crate::num::Real;
 
 // ---------------------------------------------------------------------------
 // Raw layer: the postcard bodies, fields in wire order
@@ -28,18 +29,6 @@ pub(super) struct RawHello {
     session: u32,
     last_counter: u32,
     commands: u8,
-}
-
-#[derive(Serialize, Deserialize)]
-pub(super) struct RawSummary {
-    seq: u16,
-    t_ms: u32,
-    integrals: [f32; 8],
-    figures: [f32; 7],
-    status: u8,
-    faults: u8,
-    alarms: u8,
-    verdict: u8,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -66,7 +55,84 @@ pub(super) fn none_if_not_finite(x: f32) -> Option<f32> {
     x.is_finite().then_some(x)
 }
 
-pub(super) fn raw_summary(s: &Summary) -> Result<RawSummary, WireError> {
+// ---------------------------------------------------------------------------
+// Summary body (variable length: a field the receiver can work out from the
+// others travels only when it differs from that)
+// ---------------------------------------------------------------------------
+
+/// A window shorter than this many milliseconds travels as a varint of at
+/// most 3 bytes instead of an f32.
+const DURATION_MS_LIMIT: u32 = 1 << 21;
+
+/// Same value, bit for bit (`-0.0` is not `0.0`; NaN is compared by bits).
+fn same(a: f32, b: f32) -> bool {
+    a.to_bits() == b.to_bits()
+}
+
+fn same_option(a: Option<f32>, b: Option<f32>) -> bool {
+    match (a, b) {
+        (None, None) => true,
+        (Some(a), Some(b)) => same(a, b),
+        _ => false,
+    }
+}
+
+/// The integrated time in whole milliseconds, if `duration_s` is exactly
+/// what the controller makes of them (`Real::from_ms`) and they take fewer
+/// bytes than an f32.
+fn duration_ms(duration_s: f32) -> Option<u32> {
+    let ms = libm::round(f64::from(duration_s) * 1000.0);
+    if !(0.0..f64::from(DURATION_MS_LIMIT)).contains(&ms) {
+        return None;
+    }
+    let ms = ms as u32;
+    same(<f32 as Real>::from_ms(u64::from(ms)), duration_s).then_some(ms)
+}
+
+/// Writes postcard values one after another into a buffer.
+struct Writer<'a> {
+    buf: &'a mut [u8],
+    len: usize,
+}
+
+impl Writer<'_> {
+    fn put<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), WireError> {
+        let rest = self
+            .buf
+            .get_mut(self.len..)
+            .ok_or(WireError::BufferTooSmall)?;
+        let n = postcard::to_slice(value, rest)
+            .map_err(|_| WireError::BufferTooSmall)?
+            .len();
+        self.len += n;
+        Ok(())
+    }
+}
+
+/// Reads postcard values one after another from a body.
+struct Reader<'a> {
+    rest: &'a [u8],
+}
+
+impl<'a> Reader<'a> {
+    fn take<T: Deserialize<'a>>(&mut self) -> Result<T, Malformed> {
+        let (value, rest) =
+            postcard::take_from_bytes(self.rest).map_err(|_| Malformed::Postcard)?;
+        self.rest = rest;
+        Ok(value)
+    }
+
+    fn take_if(&mut self, sent: bool) -> Result<Option<f32>, Malformed> {
+        if sent {
+            self.take().map(Some)
+        } else {
+            Ok(None)
+        }
+    }
+}
+
+/// Writes the body of `s` (docs/wire-format.md §3.2).
+pub(super) fn write_summary(s: &Summary, buf: &mut [u8]) -> Result<usize, WireError> {
     if !s.integral_values().iter().all(|x| x.is_finite())
         || !s.figures().iter().all(|x| x.is_none_or(f32::is_finite))
     {
@@ -75,27 +141,114 @@ pub(super) fn raw_summary(s: &Summary) -> Result<RawSummary, WireError> {
     if s.faults.channels & !CHANNEL_BITS != 0 || s.alarms & !ALARM_BITS != 0 {
         return Err(WireError::ReservedBits);
     }
-    Ok(RawSummary {
-        seq: s.seq,
-        t_ms: s.t_ms,
-        integrals: s.integral_values(),
-        figures: s.figures().map(nan_if_none),
-        status: s.status.to_bits(),
-        faults: s.faults.channels | if s.faults.stale { STALE_BIT } else { 0 },
-        alarms: s.alarms,
-        verdict: s.verdict.to_bits(),
-    })
+    let heat_out = !same(s.heat_out_j, s.heat_in_j - s.work_j);
+    let hot_pair = !same(s.hot_pair_integral_k_s, 0.0);
+    let entropy_rate = !same_option(s.entropy_rate_w_per_k, predicted_entropy_rate(s));
+    let us = [
+        s.u_performance,
+        s.u_bound,
+        s.u_margin,
+        s.u_entropy_rate_w_per_k,
+    ];
+    let uncertainties = us.iter().any(Option::is_some);
+    let ms = duration_ms(s.duration_s);
+    let flag = |on: bool, bit: u8| if on { bit } else { 0 };
+
+    let mut w = Writer { buf, len: 0 };
+    w.put(&(s.seq, s.t_ms))?;
+    w.put(&[
+        s.status.to_bits() | flag(heat_out, sent_bit::HEAT_OUT),
+        s.faults.channels | flag(s.faults.stale, STALE_BIT) | flag(hot_pair, sent_bit::HOT_PAIR),
+        s.alarms | flag(entropy_rate, sent_bit::ENTROPY_RATE),
+        s.verdict.to_bits()
+            | flag(s.ambient_k.is_some(), sent_bit::AMBIENT)
+            | flag(uncertainties, sent_bit::UNCERTAINTIES)
+            | flag(ms.is_some(), sent_bit::DURATION_MS),
+    ])?;
+    match ms {
+        Some(ms) => w.put(&ms)?,
+        None => w.put(&s.duration_s)?,
+    }
+    w.put(&(s.heat_in_j, s.work_j))?;
+    if heat_out {
+        w.put(&s.heat_out_j)?;
+    }
+    w.put(&(
+        s.entropy_in_j_per_k,
+        s.entropy_out_j_per_k,
+        s.hot_temperature_integral_k_s,
+    ))?;
+    if hot_pair {
+        w.put(&s.hot_pair_integral_k_s)?;
+    }
+    if let Some(t0) = s.ambient_k {
+        w.put(&t0)?;
+    }
+    if entropy_rate {
+        w.put(&nan_if_none(s.entropy_rate_w_per_k))?;
+    }
+    if uncertainties {
+        w.put(&us.map(nan_if_none))?;
+    }
+    if s.verdict.suspect.is_some() {
+        w.put(&nan_if_none(s.verdict.bias))?;
+    }
+    Ok(w.len)
 }
 
-pub(super) fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
-    if !r.integrals.iter().all(|x| x.is_finite()) {
-        return Err(Malformed::NotFinite);
+/// σ̇ as the controller works it out from the integrals and its T0, which a
+/// receiver works out the same way: it travels only when it differs.
+fn predicted_entropy_rate(s: &Summary) -> Option<f32> {
+    s.recomputed_entropy_rate()
+}
+
+/// Reads a Summary body (docs/wire-format.md §3.2).
+pub(super) fn read_summary(body: &[u8]) -> Result<Summary, Malformed> {
+    let mut r = Reader { rest: body };
+    let (seq, t_ms): (u16, u32) = r.take()?;
+    let [status, faults, alarms, verdict]: [u8; 4] = r.take()?;
+    let sent = |byte: u8, bit: u8| byte & bit != 0;
+    let duration_s = if sent(verdict, sent_bit::DURATION_MS) {
+        let ms: u32 = r.take()?;
+        if ms >= DURATION_MS_LIMIT {
+            return Err(Malformed::Postcard);
+        }
+        <f32 as Real>::from_ms(u64::from(ms))
+    } else {
+        r.take()?
+    };
+    let (heat_in_j, work_j): (f32, f32) = r.take()?;
+    let heat_out_j = r
+        .take_if(sent(status, sent_bit::HEAT_OUT))?
+        .unwrap_or(heat_in_j - work_j);
+    let (entropy_in_j_per_k, entropy_out_j_per_k, hot_temperature_integral_k_s): (f32, f32, f32) =
+        r.take()?;
+    let hot_pair_integral_k_s = r.take_if(sent(faults, sent_bit::HOT_PAIR))?.unwrap_or(0.0);
+    let ambient_k = r.take_if(sent(verdict, sent_bit::AMBIENT))?;
+    let entropy_rate = r.take_if(sent(alarms, sent_bit::ENTROPY_RATE))?;
+    let us: [f32; 4] = if sent(verdict, sent_bit::UNCERTAINTIES) {
+        r.take()?
+    } else {
+        [f32::NAN; 4]
+    };
+    let verdict = verdict & !sent_bit::IN_VERDICT;
+    let bias = r.take_if(verdict >> verdict_bit::SUSPECT_SHIFT != 0)?;
+    if !r.rest.is_empty() {
+        return Err(Malformed::TrailingBytes);
     }
-    let status = Status::from_bits(r.status).ok_or(Malformed::ReservedBits)?;
-    if r.faults & !(CHANNEL_BITS | STALE_BIT) != 0 || r.alarms & !ALARM_BITS != 0 {
+
+    let status = Status::from_bits(status & !sent_bit::HEAT_OUT).ok_or(Malformed::ReservedBits)?;
+    let faults = faults & !sent_bit::HOT_PAIR;
+    let alarms = alarms & !sent_bit::ENTROPY_RATE;
+    if faults & !(CHANNEL_BITS | STALE_BIT) != 0 || alarms & !ALARM_BITS != 0 {
         return Err(Malformed::ReservedBits);
     }
-    let [
+    let verdict = Verdict::from_bits(verdict, bias.and_then(none_if_not_finite))
+        .ok_or(Malformed::ReservedBits)?;
+    let [u_performance, u_bound, u_margin, u_entropy_rate_w_per_k] = us.map(none_if_not_finite);
+    let mut s = Summary {
+        seq,
+        t_ms,
         duration_s,
         heat_in_j,
         work_j,
@@ -104,42 +257,29 @@ pub(super) fn summary_from_raw(r: RawSummary) -> Result<Summary, Malformed> {
         entropy_out_j_per_k,
         hot_temperature_integral_k_s,
         hot_pair_integral_k_s,
-    ] = r.integrals;
-    let [
-        ambient_k,
-        entropy_rate_w_per_k,
-        u_performance,
-        u_bound,
-        u_margin,
-        u_entropy_rate_w_per_k,
-        bias,
-    ] = r.figures.map(none_if_not_finite);
-    let verdict = Verdict::from_bits(r.verdict, bias).ok_or(Malformed::ReservedBits)?;
-    Ok(Summary {
-        seq: r.seq,
-        t_ms: r.t_ms,
-        duration_s,
-        heat_in_j,
-        work_j,
-        heat_out_j,
-        entropy_in_j_per_k,
-        entropy_out_j_per_k,
-        hot_temperature_integral_k_s,
-        hot_pair_integral_k_s,
-        ambient_k,
-        entropy_rate_w_per_k,
+        ambient_k: ambient_k.and_then(none_if_not_finite),
+        entropy_rate_w_per_k: None,
         u_performance,
         u_bound,
         u_margin,
         u_entropy_rate_w_per_k,
         status,
         faults: FaultBits {
-            channels: r.faults & CHANNEL_BITS,
-            stale: r.faults & STALE_BIT != 0,
+            channels: faults & CHANNEL_BITS,
+            stale: faults & STALE_BIT != 0,
         },
-        alarms: r.alarms,
+        alarms,
         verdict,
-    })
+    };
+    // A difference of finite values can overflow.
+    if !s.integral_values().iter().all(|x| x.is_finite()) {
+        return Err(Malformed::NotFinite);
+    }
+    s.entropy_rate_w_per_k = match entropy_rate {
+        Some(x) => none_if_not_finite(x),
+        None => predicted_entropy_rate(&s),
+    };
+    Ok(s)
 }
 
 pub(super) fn raw_hello(h: &Hello) -> RawHello {
@@ -215,7 +355,11 @@ pub fn encode(frame: &Frame, buf: &mut [u8]) -> Result<usize, WireError> {
             postcard::to_slice(&(header, raw_hello(h)), &mut raw).map(|s| s.len())
         }
         Frame::Summary(s) => {
-            postcard::to_slice(&(header, raw_summary(s)?), &mut raw).map(|s| s.len())
+            let head = postcard::to_slice(&header, &mut raw)
+                .map_err(|_| WireError::BufferTooSmall)?
+                .len();
+            let body = raw.get_mut(head..).ok_or(WireError::BufferTooSmall)?;
+            Ok(head + write_summary(s, body)?)
         }
         Frame::Event(e) => postcard::to_slice(
             &(
@@ -354,7 +498,7 @@ pub(super) fn decode_in_place(buf: &mut [u8]) -> Result<Frame, FrameError> {
     }
     let frame = match kind {
         kind::HELLO => Frame::Hello(hello_from_raw(take_all(body)?)?),
-        kind::SUMMARY => Frame::Summary(summary_from_raw(take_all(body)?)?),
+        kind::SUMMARY => Frame::Summary(read_summary(body)?),
         kind::EVENT => {
             let r: RawEvent = take_all(body)?;
             Frame::Event(EventFrame {

@@ -7,7 +7,7 @@ use crate::monitor::Channel;
 ///
 /// Any change to a field's order, type or meaning, and any new frame kind,
 /// bumps it; decoders reject frames of other versions and count them.
-pub const PROTOCOL_VERSION: u8 = 3;
+pub const PROTOCOL_VERSION: u8 = 4;
 
 /// The longest frame on the wire, delimiter included: a buffer of this size
 /// holds any frame `encode` writes, and a `Decoder` of this capacity
@@ -26,8 +26,9 @@ pub const MAC_LEN: usize = 8;
 /// every varint at its longest (`seq ≥ 2^14`, `t_ms ≥ 2^28`).
 pub const SUMMARY_MAX_WIRE_LEN: usize = cobs_max_len(SUMMARY_MAX_PAYLOAD + CRC_LEN) + 1;
 
-/// Header (2) + `seq` (≤ 3) + `t_ms` (≤ 5) + 8 integrals and 7 figures
-/// (f32) + 4 bit bytes (status, faults, alarms, verdict).
+/// Header (2) + `seq` (≤ 3) + `t_ms` (≤ 5) + 4 bit bytes (status, faults,
+/// alarms, verdict) + at most 8 integrals and 7 figures (f32; the duration
+/// as milliseconds takes at most 3 bytes, and only when that is shorter).
 pub(super) const SUMMARY_MAX_PAYLOAD: usize = 2 + 3 + 5 + (8 + 7) * 4 + 4;
 
 const _: () = assert!(
@@ -87,6 +88,27 @@ pub(super) mod status_bit {
     pub const MODE_COOLER: u8 = 2 << 5;
     pub const DEFINED: u8 =
         STEADY | HEAT_OUT_MEASURED | TRIP_ACTIVE | ANY_FAULT | HOT2_MEASURED | MODE_MASK;
+}
+
+/// The bits of a `Summary`'s bit bytes that say which fields travel
+/// (version 4): a field a receiver works out from the others is sent only
+/// when it differs from that.
+pub(super) mod sent_bit {
+    /// `status` bit 7: `heat_out_j` travels (else it is `heat_in_j − work_j`).
+    pub const HEAT_OUT: u8 = 1 << 7;
+    /// `faults` bit 6: `hot_pair_integral_k_s` travels (else it is 0).
+    pub const HOT_PAIR: u8 = 1 << 6;
+    /// `alarms` bit 7: `entropy_rate_w_per_k` travels (else it is worked
+    /// out from the integrals and `ambient_k`).
+    pub const ENTROPY_RATE: u8 = 1 << 7;
+    /// `verdict` bit 5: `ambient_k` travels (else there is none).
+    pub const AMBIENT: u8 = 1 << 5;
+    /// `verdict` bit 6: the four uncertainties travel (else there are none).
+    pub const UNCERTAINTIES: u8 = 1 << 6;
+    /// `verdict` bit 7: the duration travels as whole milliseconds.
+    pub const DURATION_MS: u8 = 1 << 7;
+    /// The ones in the verdict byte.
+    pub const IN_VERDICT: u8 = AMBIENT | UNCERTAINTIES | DURATION_MS;
 }
 
 /// Bits of the verdict byte of `Summary` and `Event`.

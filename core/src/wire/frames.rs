@@ -594,12 +594,21 @@ impl Summary {
     /// in it are meaningless (see [`Summary::integrals`]); use the `u_*`
     /// fields.
     pub fn metrics(&self) -> Metrics<f32> {
-        let settings = FigureSettings {
+        self.integrals().metrics(&self.figure_settings())
+    }
+
+    /// σ̇ recomputed from the integrals and T0, as in [`Summary::metrics`].
+    pub(super) fn recomputed_entropy_rate(&self) -> Option<f32> {
+        self.integrals().entropy_rate(&self.figure_settings())
+    }
+
+    /// The summary's own mode and T0.
+    fn figure_settings(&self) -> FigureSettings {
+        FigureSettings {
             mode: self.status.mode,
             ambient_k: self.ambient_k.map(f64::from),
             uncertainty: Uncertainty::default(),
-        };
-        self.integrals().metrics(&settings)
+        }
     }
 
     /// Heat-weighted mean hot-side temperature, kelvin.

@@ -7,6 +7,7 @@ use super::format::*;
 use super::frames::*;
 use super::link::*;
 use crate::config::RigConfig;
+use crate::monitor::Channel;
 
 fn roundtrip_cobs(data: &[u8]) {
     let mut enc = [0u8; 600];
@@ -55,10 +56,22 @@ fn crc_is_iso_hdlc() {
 #[test]
 fn summary_budget_holds() {
     assert_eq!(SUMMARY_MAX_WIRE_LEN, 80);
+    // Every field travels: no integral is what the others give, and the
+    // duration is not whole milliseconds.
     let worst = Summary {
         seq: u16::MAX,
         t_ms: u32::MAX,
+        duration_s: 0.1234,
+        heat_out_j: 1.0,
+        hot_pair_integral_k_s: 1.0,
         ambient_k: Some(1.0),
+        entropy_rate_w_per_k: Some(1.0),
+        u_performance: Some(1.0),
+        verdict: Verdict {
+            consistent: Some(false),
+            suspect: Some(Channel::Hot),
+            bias: None,
+        },
         ..Summary::default()
     };
     let mut buf = [0u8; MAX_FRAME_LEN];
@@ -155,22 +168,24 @@ fn unknown_version_and_kind_are_told_apart() {
         let n = cobs_encode(&raw, &mut enc).unwrap();
         decode(&enc[..n])
     };
-    // Versions 1 (before the downlink) and 2 (before the diagnosis) are
+    // Versions 1 (before the downlink), 2 (before the diagnosis) and 3
+    // (before the Summary sent only what a receiver cannot work out) are
     // other versions now.
     assert_eq!(frame_with(1, 1), Err(FrameError::UnknownVersion(1)));
     assert_eq!(frame_with(2, 1), Err(FrameError::UnknownVersion(2)));
-    assert_eq!(frame_with(4, 1), Err(FrameError::UnknownVersion(4)));
+    assert_eq!(frame_with(3, 1), Err(FrameError::UnknownVersion(3)));
+    assert_eq!(frame_with(5, 1), Err(FrameError::UnknownVersion(5)));
     assert_eq!(
-        frame_with(3, 9),
+        frame_with(4, 9),
         Err(FrameError::Malformed(Malformed::UnknownKind(9)))
     );
     // A command (kind 16) is not an uplink frame.
     assert_eq!(
-        frame_with(3, 16),
+        frame_with(4, 16),
         Err(FrameError::Malformed(Malformed::UnknownKind(16)))
     );
     assert_eq!(
-        frame_with(3, 1),
+        frame_with(4, 1),
         Err(FrameError::Malformed(Malformed::Postcard))
     );
 }
