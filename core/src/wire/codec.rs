@@ -298,8 +298,13 @@ pub(super) fn cobs_decode_in_place(buf: &mut [u8]) -> Option<usize> {
             return None;
         }
         // `write < start` always, so the copy never overtakes the reading.
-        buf.copy_within(start..end, write);
-        write += end - start;
+        // Byte by byte: a block is at most 254 bytes, and `copy_within`
+        // calls memmove, a 1.5 KB routine in a Cortex-M image.
+        for from in start..end {
+            let b = *buf.get(from)?;
+            *buf.get_mut(write)? = b;
+            write += 1;
+        }
         read = end;
         if code != 0xFF && read < len {
             *buf.get_mut(write)? = 0;
