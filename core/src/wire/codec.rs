@@ -298,8 +298,8 @@ pub(super) fn cobs_decode_in_place(buf: &mut [u8]) -> Option<usize> {
             return None;
         }
         // `write < start` always, so the copy never overtakes the reading.
-        // Byte by byte: a block is at most 254 bytes, and `copy_within`
-        // calls memmove, a 1.5 KB routine in a Cortex-M image.
+        // Byte by byte, forwards: `copy_within` would call memmove, 1.5 KB
+        // in a Cortex-M image, for blocks of at most 254 bytes.
         for from in start..end {
             let b = *buf.get(from)?;
             *buf.get_mut(write)? = b;
