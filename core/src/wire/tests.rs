@@ -218,6 +218,8 @@ mod command_body {
     use super::super::command::Command;
     use super::super::command_body::take_command;
     use super::super::error::Malformed;
+    use super::super::format::CRC;
+    use super::super::frames::Hello;
     use super::take_all;
     use crate::alarm::{RuleId, Severity};
     use crate::config::RigConfig;
@@ -359,6 +361,18 @@ mod command_body {
             let ours = take_command(body);
             prop_assert_eq!(bytes(&ours), Ok(body.to_vec()));
             agree(body);
+        }
+
+        #[test]
+        fn config_digest_is_the_crc_of_postcards_bytes(
+            bits in prop::collection::vec(any::<u64>(), 60),
+            flags in prop::collection::vec(any::<bool>(), 20),
+            picks in prop::collection::vec(any::<u32>(), 10),
+        ) {
+            let c = config(&bits, &flags, &picks);
+            let mut buf = [0u8; 1024];
+            let bytes = postcard::to_slice(&c, &mut buf).unwrap();
+            prop_assert_eq!(Hello::config_digest(&c), CRC.checksum(bytes));
         }
 
         #[test]
