@@ -59,6 +59,14 @@ impl Reader<'_> {
         Some(f64::from_le_bytes(*bytes))
     }
 
+    /// `out.len()` f64 in a row.
+    fn f64s(&mut self, out: &mut [f64]) -> Option<()> {
+        for x in out {
+            *x = self.f64()?;
+        }
+        Some(())
+    }
+
     fn bool(&mut self) -> Option<bool> {
         match self.byte()? {
             0 => Some(false),
@@ -86,12 +94,17 @@ impl Reader<'_> {
     }
 
     fn rule(&mut self) -> Option<Rule> {
+        let enabled = self.bool()?;
+        let severity = self.severity()?;
+        let mut f = [0.0; 3];
+        self.f64s(&mut f)?;
+        let [deadband, on_delay_s, off_delay_s] = f;
         Some(Rule {
-            enabled: self.bool()?,
-            severity: self.severity()?,
-            deadband: self.f64()?,
-            on_delay_s: self.f64()?,
-            off_delay_s: self.f64()?,
+            enabled,
+            severity,
+            deadband,
+            on_delay_s,
+            off_delay_s,
             latching: self.bool()?,
         })
     }
@@ -108,41 +121,47 @@ impl Reader<'_> {
             None
         };
         let window_samples = self.varint()?;
-        let max_gap_s = self.f64()?;
-        let coverage_factor = self.f64()?;
-        let uncertainty = Uncertainty {
-            hot_k: self.f64()?,
-            hot2_k: self.f64()?,
-            cold_k: self.f64()?,
-            heat_in_rel: self.f64()?,
-            work_rel: self.f64()?,
-            heat_out_rel: self.f64()?,
-        };
-        let steady = Steady {
-            duration_s: self.f64()?,
-            hot_band_k: self.f64()?,
-            cold_band_k: self.f64()?,
-            heat_in_band_rel: self.f64()?,
-            work_band_rel: self.f64()?,
-            heat_out_band_rel: self.f64()?,
-        };
-        let health = Health {
-            stuck_samples: self.varint()?,
-            stale_s: self.f64()?,
-            min_temperature_k: self.f64()?,
-            max_temperature_k: self.f64()?,
-        };
-        let near_carnot_fraction = self.f64()?;
-        let hot_max_k = self.f64()?;
-        let horizon_s = self.f64()?;
+        // The f64 settings in blocks, in wire order.
+        let mut f = [0.0; 14];
+        self.f64s(&mut f)?;
+        let [
+            max_gap_s,
+            coverage_factor,
+            hot_k,
+            hot2_k,
+            cold_k,
+            heat_in_rel,
+            work_rel,
+            heat_out_rel,
+            duration_s,
+            hot_band_k,
+            cold_band_k,
+            heat_in_band_rel,
+            work_band_rel,
+            heat_out_band_rel,
+        ] = f;
+        let stuck_samples = self.varint()?;
+        let mut g = [0.0; 6];
+        self.f64s(&mut g)?;
+        let [
+            stale_s,
+            min_temperature_k,
+            max_temperature_k,
+            near_carnot_fraction,
+            hot_max_k,
+            horizon_s,
+        ] = g;
         let mut rules = [self.rule()?; RuleId::COUNT];
         for slot in rules.iter_mut().skip(1) {
             *slot = self.rule()?;
         }
         let losses = if self.some()? {
+            let mut l = [0.0; 2];
+            self.f64s(&mut l)?;
+            let [ua_w_per_k, u_ua_w_per_k] = l;
             Some(Losses {
-                ua_w_per_k: self.f64()?,
-                u_ua_w_per_k: self.f64()?,
+                ua_w_per_k,
+                u_ua_w_per_k,
             })
         } else {
             None
@@ -153,9 +172,28 @@ impl Reader<'_> {
             window_samples,
             max_gap_s,
             coverage_factor,
-            uncertainty,
-            steady,
-            health,
+            uncertainty: Uncertainty {
+                hot_k,
+                hot2_k,
+                cold_k,
+                heat_in_rel,
+                work_rel,
+                heat_out_rel,
+            },
+            steady: Steady {
+                duration_s,
+                hot_band_k,
+                cold_band_k,
+                heat_in_band_rel,
+                work_band_rel,
+                heat_out_band_rel,
+            },
+            health: Health {
+                stuck_samples,
+                stale_s,
+                min_temperature_k,
+                max_temperature_k,
+            },
             alarms: Alarms {
                 near_carnot_fraction,
                 hot_max_k,
