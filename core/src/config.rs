@@ -317,6 +317,9 @@ impl Expect {
         }
     }
 
+    // Out of line: `check` tests some forty settings, and the comparisons
+    // are calls on a core without double-precision hardware.
+    #[inline(never)]
     fn holds(self, x: f64) -> bool {
         x.is_finite()
             && match self {
@@ -326,6 +329,55 @@ impl Expect {
             }
     }
 }
+
+/// The numeric settings [`RigConfig::check`] tests, in the order of its
+/// `values`: their keys, and what each must be. Two tables, so that a
+/// caller that only asks whether a configuration is valid carries no keys.
+static SETTING_KEYS: [&str; 20] = [
+    "max_gap_s",
+    "coverage_factor",
+    "uncertainty.hot_k",
+    "uncertainty.hot2_k",
+    "uncertainty.cold_k",
+    "uncertainty.heat_in_rel",
+    "uncertainty.work_rel",
+    "uncertainty.heat_out_rel",
+    "steady.duration_s",
+    "steady.hot_band_k",
+    "steady.cold_band_k",
+    "steady.heat_in_band_rel",
+    "steady.work_band_rel",
+    "steady.heat_out_band_rel",
+    "health.stale_s",
+    "health.min_temperature_k",
+    "health.max_temperature_k",
+    "alarms.near_carnot_fraction",
+    "alarms.hot_max_k",
+    "alarms.horizon_s",
+];
+
+static SETTING_EXPECT: [Expect; 20] = [
+    Expect::Positive,
+    Expect::Positive,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::Positive,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::NonNegative,
+    Expect::Positive,
+    Expect::Temperature,
+    Expect::Temperature,
+    Expect::Fraction,
+    Expect::Temperature,
+    Expect::Positive,
+];
 
 /// Whether `x` is what `key` expects.
 fn need(x: f64, key: &'static str, expect: Expect) -> Result<(), ConfigError> {
@@ -543,7 +595,7 @@ impl RigConfig {
     /// assert_eq!(c.check().unwrap_err().to_string(), "`steady.hot_band_k` must be a number ≥ 0");
     /// ```
     pub fn check(&self) -> Result<(), ConfigError> {
-        use Expect::{Fraction, NonNegative, Positive, Temperature};
+        use Expect::{NonNegative, Temperature};
         if let Some(t) = self.ambient_k {
             need(t, "ambient_k", Temperature)?;
         }
@@ -554,37 +606,31 @@ impl RigConfig {
             });
         }
         let (u, st, h, a) = (&self.uncertainty, &self.steady, &self.health, &self.alarms);
-        let settings = [
-            (self.max_gap_s, "max_gap_s", Positive),
-            (self.coverage_factor, "coverage_factor", Positive),
-            (u.hot_k, "uncertainty.hot_k", NonNegative),
-            (u.hot2_k, "uncertainty.hot2_k", NonNegative),
-            (u.cold_k, "uncertainty.cold_k", NonNegative),
-            (u.heat_in_rel, "uncertainty.heat_in_rel", NonNegative),
-            (u.work_rel, "uncertainty.work_rel", NonNegative),
-            (u.heat_out_rel, "uncertainty.heat_out_rel", NonNegative),
-            (st.duration_s, "steady.duration_s", Positive),
-            (st.hot_band_k, "steady.hot_band_k", NonNegative),
-            (st.cold_band_k, "steady.cold_band_k", NonNegative),
-            (st.heat_in_band_rel, "steady.heat_in_band_rel", NonNegative),
-            (st.work_band_rel, "steady.work_band_rel", NonNegative),
-            (
-                st.heat_out_band_rel,
-                "steady.heat_out_band_rel",
-                NonNegative,
-            ),
-            (h.stale_s, "health.stale_s", Positive),
-            (h.min_temperature_k, "health.min_temperature_k", Temperature),
-            (h.max_temperature_k, "health.max_temperature_k", Temperature),
-            (
-                a.near_carnot_fraction,
-                "alarms.near_carnot_fraction",
-                Fraction,
-            ),
-            (a.hot_max_k, "alarms.hot_max_k", Temperature),
-            (a.horizon_s, "alarms.horizon_s", Positive),
+        // The values in the order of `SETTINGS`: one loop over a table, not
+        // one inlined test per setting.
+        let values = [
+            self.max_gap_s,
+            self.coverage_factor,
+            u.hot_k,
+            u.hot2_k,
+            u.cold_k,
+            u.heat_in_rel,
+            u.work_rel,
+            u.heat_out_rel,
+            st.duration_s,
+            st.hot_band_k,
+            st.cold_band_k,
+            st.heat_in_band_rel,
+            st.work_band_rel,
+            st.heat_out_band_rel,
+            h.stale_s,
+            h.min_temperature_k,
+            h.max_temperature_k,
+            a.near_carnot_fraction,
+            a.hot_max_k,
+            a.horizon_s,
         ];
-        for (x, key, expect) in settings {
+        for ((&key, &expect), x) in SETTING_KEYS.iter().zip(&SETTING_EXPECT).zip(values) {
             need(x, key, expect)?;
         }
         if let Some(l) = &self.losses {

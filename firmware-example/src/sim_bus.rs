@@ -520,9 +520,12 @@ impl PulseCounter for SimPulseCounter<'_> {
         let Ok(mut bench) = self.bench.try_borrow_mut() else {
             return 0;
         };
-        let whole = libm::floor(bench.pulses_owed).max(0.0);
-        bench.pulses_owed -= whole;
-        whole as u32
+        // Whole pulses only from one on (a negative or NaN debt gives
+        // none); `as` truncates, which is the floor of a positive number.
+        let owed = bench.pulses_owed;
+        let whole = if owed >= 1.0 { owed as u32 } else { 0 };
+        bench.pulses_owed -= f64::from(whole);
+        whole
     }
 }
 

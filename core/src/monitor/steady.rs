@@ -137,10 +137,12 @@ impl<R: Real> SteadyTracker<R> {
             // Close the current bucket, and any empty ones after it.
             let mut closed = 0;
             while elapsed >= self.bucket_ms && closed <= BUCKETS {
+                // Moved out rather than copied and cleared: one copy, and no
+                // memmove routine in a controller's image.
+                let closed_span = core::mem::replace(&mut self.current, Span::empty());
                 if let Some(slot) = self.done.get_mut(self.next) {
-                    *slot = self.current;
+                    *slot = closed_span;
                 }
-                self.current = Span::empty();
                 self.next = (self.next + 1) % BUCKETS;
                 self.completed = (self.completed + 1).min(BUCKETS);
                 self.bucket_start_ms = self.bucket_start_ms.wrapping_add(self.bucket_ms);

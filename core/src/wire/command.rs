@@ -18,7 +18,8 @@ use hmac::{Hmac, KeyInit, Mac};
 use serde::{Deserialize, Serialize};
 use sha2::Sha256;
 
-use super::codec::{cobs_decode_in_place, cobs_encode, take_all};
+use super::codec::{cobs_decode_in_place, cobs_encode};
+use super::command_body::take_command;
 use super::error::*;
 use super::format::*;
 use super::frames::RigId;
@@ -357,7 +358,7 @@ pub fn decode_command(buf: &mut [u8]) -> Result<Received<'_>, FrameError> {
     if kind != kind::COMMAND {
         return Err(Malformed::UnknownKind(kind).into());
     }
-    let (counter, command): (u32, Command) = take_all(body)?;
+    let (counter, command) = take_command(body)?;
     Ok(Received {
         frame: CommandFrame { counter, command },
         payload,

@@ -38,6 +38,7 @@
 
 mod codec;
 mod command;
+mod command_body;
 mod decoder;
 mod error;
 mod format;

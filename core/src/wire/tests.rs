@@ -224,3 +224,190 @@ fn link_tracker_sees_hello_then_restart() {
         }
     );
 }
+
+mod command_body {
+    //! The hand-written command body parser against postcard's serde path.
+
+    use proptest::prelude::*;
+
+    use super::super::command::Command;
+    use super::super::command_body::take_command;
+    use super::super::error::Malformed;
+    use super::super::format::CRC;
+    use super::super::frames::Hello;
+    use super::take_all;
+    use crate::alarm::{RuleId, Severity};
+    use crate::config::RigConfig;
+    use crate::diagnosis::Losses;
+    use crate::monitor::Mode;
+
+    /// Postcard's bytes for a parse result, so that NaN fields compare.
+    fn bytes(r: &Result<(u32, Command), Malformed>) -> Result<Vec<u8>, Malformed> {
+        match r {
+            Ok(v) => Ok(postcard::to_slice(v, &mut [0u8; 1024]).unwrap().to_vec()),
+            Err(e) => Err(*e),
+        }
+    }
+
+    fn agree(body: &[u8]) {
+        let reference = take_all::<(u32, Command)>(body);
+        let ours = take_command(body);
+        assert_eq!(bytes(&ours), bytes(&reference), "body {body:02x?}");
+    }
+
+    /// A configuration with every field drawn from `bits` (any f64, NaN and
+    /// infinities included), `flags` and `picks`.
+    fn config(bits: &[u64], flags: &[bool], picks: &[u32]) -> RigConfig {
+        let mut f = bits.iter().map(|b| f64::from_bits(*b));
+        let mut f = move || f.next().unwrap();
+        let mut b = flags.iter().copied();
+        let mut b = move || b.next().unwrap();
+        let mut c = RigConfig {
+            mode: [Mode::Engine, Mode::HeatPump, Mode::Cooler][picks[0] as usize % 3],
+            ambient_k: b().then(&mut f),
+            window_samples: picks[1],
+            max_gap_s: f(),
+            coverage_factor: f(),
+            ..RigConfig::default()
+        };
+        let u = &mut c.uncertainty;
+        for x in [
+            &mut u.hot_k,
+            &mut u.hot2_k,
+            &mut u.cold_k,
+            &mut u.heat_in_rel,
+            &mut u.work_rel,
+            &mut u.heat_out_rel,
+        ] {
+            *x = f();
+        }
+        let s = &mut c.steady;
+        for x in [
+            &mut s.duration_s,
+            &mut s.hot_band_k,
+            &mut s.cold_band_k,
+            &mut s.heat_in_band_rel,
+            &mut s.work_band_rel,
+            &mut s.heat_out_band_rel,
+        ] {
+            *x = f();
+        }
+        c.health.stuck_samples = picks[2];
+        c.health.stale_s = f();
+        c.health.min_temperature_k = f();
+        c.health.max_temperature_k = f();
+        c.alarms.near_carnot_fraction = f();
+        c.alarms.hot_max_k = f();
+        c.alarms.horizon_s = f();
+        for (i, r) in c.alarms.rules.iter_mut().enumerate() {
+            r.enabled = b();
+            r.severity =
+                [Severity::Advisory, Severity::Warning, Severity::Trip][picks[3 + i] as usize % 3];
+            r.deadband = f();
+            r.on_delay_s = f();
+            r.off_delay_s = f();
+            r.latching = b();
+        }
+        c.losses = b().then(|| Losses {
+            ua_w_per_k: f(),
+            u_ua_w_per_k: f(),
+        });
+        c
+    }
+
+    #[test]
+    fn every_command_kind_parses_as_postcard_does() {
+        let commands = [
+            Command::HelloRequest,
+            Command::Acknowledge(None),
+            Command::NewRun,
+            Command::Configure(RigConfig::default()),
+        ]
+        .into_iter()
+        .chain(RuleId::ALL.map(|r| Command::Acknowledge(Some(r))));
+        for command in commands {
+            for counter in [0, 1, 127, 128, 16_383, 16_384, u32::MAX] {
+                let mut buf = [0u8; 1024];
+                let body = postcard::to_slice(&(counter, command), &mut buf).unwrap();
+                let parsed = take_command(body);
+                assert_eq!(parsed, Ok((counter, command)));
+                agree(body);
+                // Every truncation, and a byte too many.
+                for n in 0..body.len() {
+                    agree(&body[..n]);
+                }
+                let mut longer = body.to_vec();
+                longer.push(0);
+                agree(&longer);
+            }
+        }
+    }
+
+    #[test]
+    fn varint_edges_parse_as_postcard_does() {
+        for body in [
+            &[0xFF, 0xFF, 0xFF, 0xFF, 0x0F, 0][..],
+            &[0xFF, 0xFF, 0xFF, 0xFF, 0x10, 0],
+            &[0xFF, 0xFF, 0xFF, 0xFF, 0xFF, 0],
+            &[0x80, 0x80, 0x80, 0x80, 0x00, 0],
+            &[0x80, 0x00, 0],
+            &[0, 0x80, 0x00],
+            &[0, 4],
+            &[0, 1, 1, 7],
+            &[0, 1, 1, 0x86, 0x00],
+            &[0, 1, 2],
+            &[],
+        ] {
+            agree(body);
+        }
+    }
+
+    proptest! {
+        #[test]
+        fn any_configure_parses_as_postcard_does(
+            counter in any::<u32>(),
+            bits in prop::collection::vec(any::<u64>(), 60),
+            flags in prop::collection::vec(any::<bool>(), 20),
+            picks in prop::collection::vec(any::<u32>(), 10),
+        ) {
+            let command = Command::Configure(config(&bits, &flags, &picks));
+            let mut buf = [0u8; 1024];
+            let body = postcard::to_slice(&(counter, command), &mut buf).unwrap();
+            let ours = take_command(body);
+            prop_assert_eq!(bytes(&ours), Ok(body.to_vec()));
+            agree(body);
+        }
+
+        #[test]
+        fn config_digest_is_the_crc_of_postcards_bytes(
+            bits in prop::collection::vec(any::<u64>(), 60),
+            flags in prop::collection::vec(any::<bool>(), 20),
+            picks in prop::collection::vec(any::<u32>(), 10),
+        ) {
+            let c = config(&bits, &flags, &picks);
+            let mut buf = [0u8; 1024];
+            let bytes = postcard::to_slice(&c, &mut buf).unwrap();
+            prop_assert_eq!(Hello::config_digest(&c), CRC.checksum(bytes));
+        }
+
+        #[test]
+        fn any_changed_configure_parses_as_postcard_does(
+            at in any::<prop::sample::Index>(),
+            to in any::<u8>(),
+            cut in any::<prop::sample::Index>(),
+        ) {
+            let command = Command::Configure(RigConfig::default());
+            let mut buf = [0u8; 1024];
+            let body = postcard::to_slice(&(300u32, command), &mut buf).unwrap().to_vec();
+            let mut changed = body.clone();
+            changed[at.index(body.len())] = to;
+            agree(&changed);
+            agree(&changed[..cut.index(body.len() + 1)]);
+        }
+
+        #[test]
+        fn any_bytes_parse_as_postcard_does(body in prop::collection::vec(any::<u8>(), 0..40)) {
+            agree(&body);
+        }
+    }
+}

@@ -256,13 +256,31 @@ pub fn chip_thermocouple_c(hot_c: f64, cold_junction_c: f64) -> Result<f64, Ther
 /// `value / lsb` rounded to the nearest count and clamped to `range` (the
 /// chip saturates at the ends of its field). NaN gives 0.
 fn count(value: f64, lsb: f64, range: (i16, i16)) -> i16 {
-    let c = libm::round(value / lsb);
-    if c.is_nan() {
+    let x = value / lsb;
+    if x.is_nan() {
         return 0;
     }
-    // max/min, not clamp: `f64::clamp`'s bound check would bring float
-    // formatting (its panic message) into the firmware.
-    c.max(f64::from(range.0)).min(f64::from(range.1)) as i16
+    // Saturated first: the ends are whole counts, so rounding after gives
+    // the same count. Comparisons, not f64 max/min or clamp, which would
+    // bring libm's fmax/fmin or float formatting into the firmware.
+    if x <= f64::from(range.0) {
+        return range.0;
+    }
+    if x >= f64::from(range.1) {
+        return range.1;
+    }
+    // Round half away from zero without libm's `round`: `as` truncates
+    // towards zero (|x| < 2^15 here), and the fraction is exact.
+    let whole = x as i32;
+    let frac = x - f64::from(whole);
+    let rounded = if frac >= 0.5 {
+        whole + 1
+    } else if frac <= -0.5 {
+        whole - 1
+    } else {
+        whole
+    };
+    i16::try_from(rounded).unwrap_or(if rounded < 0 { range.0 } else { range.1 })
 }
 
 /// The 14-bit thermocouple count for a temperature `t_c` (°C), rounded to
