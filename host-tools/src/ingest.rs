@@ -37,7 +37,6 @@
 //! let totals = ingest.finish(20).unwrap();
 //! assert_eq!(totals.summaries, 1);
 //! ```
-use std::collections::HashMap;
 use std::fmt::Write as _;
 
 use heatbound::alarm::{RuleId, Severity};
@@ -172,7 +171,7 @@ pub struct Ingest {
     outage: Option<i64>,
     /// The summary of each sequence number in the current device session
     /// (since the last restart).
-    session: HashMap<u16, Summary>,
+    session: SeqTable,
     /// The first summary of the current device session.
     session_first: Option<Summary>,
     /// The latest Hello.
@@ -214,6 +213,41 @@ pub struct Logged {
     pub prev_ord: i64,
     /// The row.
     pub record: Record,
+}
+
+/// The summary of each sequence number of a device session, indexed by
+/// `seq`: consecutive numbers sit side by side, so that a stream's inserts
+/// and look-ups stay in the cache (a hash map scatters them).
+#[derive(Default)]
+struct SeqTable {
+    by_seq: Vec<Option<Summary>>,
+    any: bool,
+}
+
+impl SeqTable {
+    fn clear(&mut self) {
+        self.by_seq.clear();
+        self.any = false;
+    }
+
+    fn is_empty(&self) -> bool {
+        !self.any
+    }
+
+    fn insert(&mut self, s: Summary) {
+        let i = usize::from(s.seq);
+        if self.by_seq.len() <= i {
+            self.by_seq.resize(i + 1, None);
+        }
+        if let Some(slot) = self.by_seq.get_mut(i) {
+            *slot = Some(s);
+        }
+        self.any = true;
+    }
+
+    fn get(&self, seq: u16) -> Option<&Summary> {
+        self.by_seq.get(usize::from(seq)).and_then(Option::as_ref)
+    }
 }
 
 /// A replayed section not yet logged.
@@ -260,7 +294,7 @@ impl Ingest {
             },
             limit: None,
             outage: None,
-            session: HashMap::new(),
+            session: SeqTable::default(),
             session_first: None,
             hello: None,
             after_hello: false,
@@ -608,7 +642,7 @@ impl Ingest {
         // A device that started over sends its first summary again after
         // its Hello: a restart, even when the contents repeat exactly.
         let started_over = self.after_hello && !self.in_replay && self.session_first == Some(*s);
-        back && !started_over && self.session.get(&s.seq) == Some(s)
+        back && !started_over && self.session.get(s.seq) == Some(s)
     }
 
     /// Counts a Hello or event frame inside a replayed section.
@@ -694,7 +728,7 @@ impl Ingest {
                 if self.session.is_empty() {
                     self.session_first = Some(*s);
                 }
-                self.session.insert(s.seq, *s);
+                self.session.insert(*s);
                 self.link_event(link, s.seq, host_ms)?;
                 self.last_seq = Some(s.seq);
             }

@@ -48,6 +48,7 @@ use heatbound::wire::{
 };
 use rusqlite::{Connection, OpenFlags, Row, params};
 
+mod batch;
 mod lab;
 pub use lab::{LabSource, Publication, Record, SourceKey, carried};
 
@@ -255,6 +256,28 @@ pub enum StoreError {
         #[source]
         source: rusqlite::Error,
     },
+    /// A summary that [`Log::insert_frame`] took could not be written with
+    /// the rest of its batch (the error surfaces at the call that wrote
+    /// the batch); `also` more of the same batch were not written either.
+    #[error(
+        "{path}: cannot log the summary of run {run_id} at row {ord} (seq {seq}){}: {source}",
+        also_text(*.also)
+    )]
+    SummaryNotLogged {
+        /// The database file.
+        path: PathBuf,
+        /// The run.
+        run_id: i64,
+        /// The summary's `ord`.
+        ord: i64,
+        /// Its sequence number.
+        seq: u16,
+        /// Further summaries of the batch that were not written.
+        also: usize,
+        /// SQLite's error.
+        #[source]
+        source: rusqlite::Error,
+    },
     /// The file was written by a newer heatbound with a schema this tool does not know.
     #[error(
         "{path}: log schema version {found} is newer than this tool's {known}; use a newer heatbound"
@@ -295,6 +318,15 @@ pub enum StoreError {
         /// What is wrong.
         reason: String,
     },
+}
+
+/// The tail of [`StoreError::SummaryNotLogged`]'s text.
+fn also_text(also: usize) -> String {
+    match also {
+        0 => String::new(),
+        1 => ", nor 1 more summary of the same batch".to_string(),
+        n => format!(", nor {n} more summaries of the same batch"),
+    }
 }
 
 /// A stored value no frame can hold (see [`StoreError::ImpossibleValue`]).
@@ -510,7 +542,9 @@ pub struct CommandRow {
 
 /// The log: one SQLite connection, writing in batches or reading.
 pub struct Log {
-    conn: Connection,
+    /// The connection and the batch's summaries not yet written: reached
+    /// only through [`Log::conn`].
+    db: batch::Db,
     path: PathBuf,
     batching: Batching,
     /// Rows in the open transaction; `None` when none is open.
@@ -535,14 +569,6 @@ const INSERT_HELLO: &str = "INSERT INTO hellos (run_id, ord, host_ms, protocol_v
 
 const INSERT_REPLY: &str = "INSERT INTO replies (run_id, ord, host_ms, counter, t_ms, code)
     VALUES (?1, ?2, ?3, ?4, ?5, ?6)";
-
-const INSERT_SUMMARY: &str = "INSERT INTO summaries (run_id, ord, host_ms, seq, t_ms,
-    duration_s, heat_in_j, work_j, heat_out_j, entropy_in_j_per_k, entropy_out_j_per_k,
-    hot_mean_k, ambient_k, performance, bound, entropy_rate_w_per_k, u_performance, u_bound,
-    u_margin, u_entropy_rate_w_per_k, status, faults, alarms, hot_temperature_integral_k_s,
-    hot_pair_integral_k_s, verdict, suspect, suspect_bias, mode)
-    VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18,
-    ?19, ?20, ?21, ?22, ?23, ?24, ?25, ?26, ?27, ?28, ?29)";
 
 const INSERT_EVENT: &str = "INSERT INTO events (run_id, ord, host_ms, seq, t_ms, rule, kind,
     severity, verdict, suspect) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)";
@@ -667,7 +693,7 @@ impl Log {
         let conn = Connection::open_with_flags(path, flags)
             .map_err(|e| sql_err(path, "cannot open", e))?;
         let log = Log::from_conn(conn, path, Batching::default());
-        log.conn
+        log.conn()?
             .busy_timeout(std::time::Duration::from_secs(5))
             .map_err(|e| log.err("cannot set the busy timeout", e))?;
         let found = log.user_version()?;
@@ -691,9 +717,11 @@ impl Log {
     }
 
     fn from_conn(conn: Connection, path: &Path, batching: Batching) -> Log {
-        conn.set_prepared_statement_cache_capacity(16);
+        // Room for every INSERT and SELECT this module prepares, the seven
+        // summary INSERTs (batch::SIZES) among them.
+        conn.set_prepared_statement_cache_capacity(32);
         Log {
-            conn,
+            db: batch::Db::new(conn),
             path: path.to_path_buf(),
             batching,
             pending: None,
@@ -720,7 +748,7 @@ impl Log {
     }
 
     fn configure(&self) -> Result<(), StoreError> {
-        let c = &self.conn;
+        let c = self.conn()?;
         c.busy_timeout(std::time::Duration::from_secs(5))
             .map_err(|e| self.err("cannot set the busy timeout", e))?;
         let mode: String = c
@@ -740,7 +768,7 @@ impl Log {
     }
 
     fn user_version(&self) -> Result<i64, StoreError> {
-        self.conn
+        self.conn()?
             .pragma_query_value(None, "user_version", |r| r.get(0))
             .map_err(|e| self.err("cannot read user_version", e))
     }
@@ -762,7 +790,8 @@ impl Log {
         }
         let path = self.path.clone();
         let tx = self
-            .conn
+            .db
+            .get_mut(&path)?
             .transaction()
             .map_err(|e| sql_err(&path, "cannot begin the migration", e))?;
         for sql in MIGRATIONS.iter().skip(usize::try_from(found).unwrap_or(0)) {
@@ -781,9 +810,17 @@ impl Log {
         &self.path
     }
 
-    /// The connection, for queries this API does not cover.
-    pub fn connection(&self) -> &Connection {
-        &self.conn
+    /// The connection, for queries this API does not cover, with every
+    /// row logged so far written to it (the batch's summaries wait to be
+    /// written together, see [`Log::insert_frame`]).
+    pub fn connection(&self) -> Result<&Connection, StoreError> {
+        self.conn()
+    }
+
+    /// The connection, the batch's waiting summaries written first: the
+    /// only way to it, so that no statement can see the log without them.
+    fn conn(&self) -> Result<&Connection, StoreError> {
+        self.db.get(&self.path)
     }
 
     // -- writing ----------------------------------------------------------
@@ -794,7 +831,7 @@ impl Log {
         match &mut self.pending {
             Some(n) => *n += 1,
             None => {
-                self.conn
+                self.conn()?
                     .execute_batch("BEGIN")
                     .map_err(|e| sql_err(&self.path, "cannot begin a batch", e))?;
                 self.pending = Some(1);
@@ -814,7 +851,7 @@ impl Log {
     fn ord(&mut self, run: RunId) -> Result<i64, StoreError> {
         if self.ord_run != run {
             let max: Option<i64> = self
-                .conn
+                .conn()?
                 .query_row(
                     "SELECT max(m) FROM (SELECT max(ord) AS m FROM hellos WHERE run_id = ?1
                      UNION ALL SELECT max(ord) FROM summaries WHERE run_id = ?1
@@ -836,11 +873,13 @@ impl Log {
         Ok(ord)
     }
 
-    /// Commits the open batch, if any.
+    /// Commits the open batch, if any, its waiting summaries written
+    /// first. If one cannot be written the batch stays open, with every
+    /// row that could be, and the error names it.
     pub fn commit(&mut self) -> Result<(), StoreError> {
+        let conn = self.db.get(&self.path)?;
         if self.pending.take().is_some() {
-            self.conn
-                .execute_batch("COMMIT")
+            conn.execute_batch("COMMIT")
                 .map_err(|e| sql_err(&self.path, "cannot commit a batch", e))?;
         }
         Ok(())
@@ -861,13 +900,13 @@ impl Log {
     /// `file:PATH`, `stdin`) and commits it at once.
     pub fn begin_run(&mut self, source: &str, started_host_ms: i64) -> Result<RunId, StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "INSERT INTO runs (started_host_ms, source, tool_version) VALUES (?1, ?2, ?3)",
                 params![started_host_ms, source, env!("CARGO_PKG_VERSION")],
             )
             .map_err(|e| self.err("cannot start a run", e))?;
-        let id = self.conn.last_insert_rowid();
+        let id = self.conn()?.last_insert_rowid();
         self.run_closed = false;
         self.ord_run = id;
         self.next_ord = 0;
@@ -877,7 +916,7 @@ impl Log {
     /// Ends `run` at `ended_host_ms` and commits everything.
     pub fn end_run(&mut self, run: RunId, ended_host_ms: i64) -> Result<(), StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "UPDATE runs SET ended_host_ms = ?2 WHERE id = ?1",
                 params![run, ended_host_ms],
@@ -888,6 +927,13 @@ impl Log {
     }
 
     /// Logs one frame of `run`, received at `host_ms`. Returns its `ord`.
+    ///
+    /// A Summary is written together with the next ones of the batch, in
+    /// one statement, before any other statement runs on the log and
+    /// before the batch commits. Should SQLite refuse it then, the call
+    /// that wrote it (an insert, a commit, a read) returns
+    /// [`StoreError::SummaryNotLogged`] naming it; an error from this call
+    /// means `frame` itself was not logged.
     pub fn insert_frame(
         &mut self,
         run: RunId,
@@ -897,108 +943,80 @@ impl Log {
         self.row(host_ms)?;
         let ord = self.ord(run)?;
         let result = match frame {
-            Frame::Hello(h) => self.conn.prepare_cached(INSERT_HELLO).and_then(|mut st| {
-                let (a, b, c) = h.firmware_version;
-                let u = &h.uncertainty;
-                st.execute(params![
+            Frame::Hello(h) => self
+                .conn()?
+                .prepare_cached(INSERT_HELLO)
+                .and_then(|mut st| {
+                    let (a, b, c) = h.firmware_version;
+                    let u = &h.uncertainty;
+                    st.execute(params![
+                        run,
+                        ord,
+                        host_ms,
+                        heatbound::wire::PROTOCOL_VERSION,
+                        h.rig_id.as_str(),
+                        format!("{a}.{b}.{c}"),
+                        h.sample_period_ms,
+                        h.window_samples,
+                        h.mode.as_str(),
+                        f64::from(h.coverage_factor),
+                        opt(h.ambient_k),
+                        f64::from(u.hot_k),
+                        f64::from(u.cold_k),
+                        f64::from(u.heat_in_rel),
+                        f64::from(u.work_rel),
+                        f64::from(u.heat_out_rel),
+                        h.config_digest,
+                        h.run,
+                        h.session,
+                        h.last_counter,
+                        h.keyed,
+                        f64::from(u.hot2_k),
+                        opt(h.losses.map(|(ua, _)| ua)),
+                        opt(h.losses.map(|(_, u_ua)| u_ua)),
+                    ])
+                }),
+            Frame::Summary(s) => {
+                let row = batch::Waiting {
                     run,
                     ord,
                     host_ms,
-                    heatbound::wire::PROTOCOL_VERSION,
-                    h.rig_id.as_str(),
-                    format!("{a}.{b}.{c}"),
-                    h.sample_period_ms,
-                    h.window_samples,
-                    h.mode.as_str(),
-                    f64::from(h.coverage_factor),
-                    opt(h.ambient_k),
-                    f64::from(u.hot_k),
-                    f64::from(u.cold_k),
-                    f64::from(u.heat_in_rel),
-                    f64::from(u.work_rel),
-                    f64::from(u.heat_out_rel),
-                    h.config_digest,
-                    h.run,
-                    h.session,
-                    h.last_counter,
-                    h.keyed,
-                    f64::from(u.hot2_k),
-                    opt(h.losses.map(|(ua, _)| ua)),
-                    opt(h.losses.map(|(_, u_ua)| u_ua)),
-                ])
-            }),
-            Frame::Summary(s) => self.conn.prepare_cached(INSERT_SUMMARY).and_then(|mut st| {
-                let v = &s.verdict;
-                // NULL for a summary without a second hot sensor, unless its
-                // pair integral is not 0 (no decoded frame has one), so that
-                // every frame reads back exactly.
-                let pair = (s.status.hot2_measured || s.hot_pair_integral_k_s != 0.0)
-                    .then_some(s.hot_pair_integral_k_s);
-                // Recomputed once: T_h, η or COP and the bound.
-                let m = s.metrics();
-                let reverse = s.status.mode.is_reverse();
-                let (perf, bound) = if reverse {
-                    (m.cop, m.carnot_cop)
-                } else {
-                    (m.efficiency, m.carnot_efficiency)
+                    summary: *s,
                 };
-                st.execute(params![
-                    run,
-                    ord,
-                    host_ms,
-                    s.seq,
-                    s.t_ms,
-                    f64::from(s.duration_s),
-                    f64::from(s.heat_in_j),
-                    f64::from(s.work_j),
-                    f64::from(s.heat_out_j),
-                    f64::from(s.entropy_in_j_per_k),
-                    f64::from(s.entropy_out_j_per_k),
-                    opt(m.hot_mean_k),
-                    opt(s.ambient_k),
-                    opt(perf),
-                    opt(bound),
-                    opt(s.entropy_rate_w_per_k),
-                    opt(s.u_performance),
-                    opt(s.u_bound),
-                    opt(s.u_margin),
-                    opt(s.u_entropy_rate_w_per_k),
-                    status_bits(&s.status),
-                    fault_bits(&s.faults),
-                    s.alarms,
-                    f64::from(s.hot_temperature_integral_k_s),
-                    opt(pair),
-                    v.consistent.map(verdict_text),
-                    v.suspect.map(Channel::name),
-                    // As on the wire: a bias only with a suspect.
-                    opt(v.bias.filter(|_| v.suspect.is_some())),
-                    s.status.mode.as_str(),
-                ])
-            }),
-            Frame::Event(e) => self.conn.prepare_cached(INSERT_EVENT).and_then(|mut st| {
-                st.execute(params![
-                    run,
-                    ord,
-                    host_ms,
-                    e.seq,
-                    e.event.t_ms,
-                    e.event.rule.as_str(),
-                    e.event.kind.as_str(),
-                    e.event.severity.as_str(),
-                    e.verdict.consistent.map(verdict_text),
-                    e.verdict.suspect.map(Channel::name),
-                ])
-            }),
-            Frame::Reply(r) => self.conn.prepare_cached(INSERT_REPLY).and_then(|mut st| {
-                st.execute(params![
-                    run,
-                    ord,
-                    host_ms,
-                    r.counter,
-                    r.t_ms,
-                    r.code.as_str()
-                ])
-            }),
+                self.db.push(&self.path, row)?;
+                self.after_row()?;
+                return Ok(ord);
+            }
+            Frame::Event(e) => self
+                .conn()?
+                .prepare_cached(INSERT_EVENT)
+                .and_then(|mut st| {
+                    st.execute(params![
+                        run,
+                        ord,
+                        host_ms,
+                        e.seq,
+                        e.event.t_ms,
+                        e.event.rule.as_str(),
+                        e.event.kind.as_str(),
+                        e.event.severity.as_str(),
+                        e.verdict.consistent.map(verdict_text),
+                        e.verdict.suspect.map(Channel::name),
+                    ])
+                }),
+            Frame::Reply(r) => self
+                .conn()?
+                .prepare_cached(INSERT_REPLY)
+                .and_then(|mut st| {
+                    st.execute(params![
+                        run,
+                        ord,
+                        host_ms,
+                        r.counter,
+                        r.t_ms,
+                        r.code.as_str()
+                    ])
+                }),
         };
         result.map_err(|e| self.err("cannot log a frame", e))?;
         self.after_row()?;
@@ -1018,7 +1036,7 @@ impl Log {
         self.row(host_ms)?;
         let ord = self.ord(run)?;
         let count = i64::try_from(count).unwrap_or(i64::MAX);
-        self.conn
+        self.conn()?
             .prepare_cached(INSERT_LINK_ERROR)
             .and_then(|mut st| st.execute(params![run, ord, host_ms, kind.as_str(), count, detail]))
             .map_err(|e| self.err("cannot log a link error", e))?;
@@ -1035,19 +1053,19 @@ impl Log {
         reason: &str,
     ) -> Result<i64, StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "INSERT INTO outages (run_id, started_host_ms, reason) VALUES (?1, ?2, ?3)",
                 params![run, host_ms, reason],
             )
             .map_err(|e| self.err("cannot log an outage", e))?;
-        Ok(self.conn.last_insert_rowid())
+        Ok(self.conn()?.last_insert_rowid())
     }
 
     /// Records that the link came back at `host_ms`; commits at once.
     pub fn end_outage(&mut self, outage: i64, host_ms: i64) -> Result<(), StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "UPDATE outages SET ended_host_ms = ?2 WHERE id = ?1",
                 params![outage, host_ms],
@@ -1071,7 +1089,7 @@ impl Log {
         sealed: &[u8],
     ) -> Result<i64, StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "INSERT INTO commands (run_id, host_ms, origin, command, detail, counter, session,
                  sealed, outcome) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 'pending')",
@@ -1080,7 +1098,7 @@ impl Log {
                 ],
             )
             .map_err(|e| self.err("cannot log a command", e))?;
-        Ok(self.conn.last_insert_rowid())
+        Ok(self.conn()?.last_insert_rowid())
     }
 
     /// Records the controller's answer to command `id` (or, with `reply`
@@ -1109,7 +1127,7 @@ impl Log {
             Some(_) => "rejected",
             None => "no_reply",
         });
-        self.conn
+        self.conn()?
             .execute(
                 "UPDATE commands SET reply_host_ms = ?2, reply_code = ?3, outcome = ?4 WHERE id = ?1",
                 params![
@@ -1130,7 +1148,7 @@ impl Log {
             return Ok(Vec::new());
         }
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT id, host_ms, origin, command, detail, counter, session, reply_host_ms,
                  reply_code, outcome, sealed FROM commands WHERE run_id = ?1 ORDER BY id",
@@ -1168,7 +1186,7 @@ impl Log {
         detail: &str,
     ) -> Result<(), StoreError> {
         self.row(host_ms)?;
-        self.conn
+        self.conn()?
             .prepare_cached(
                 "INSERT INTO operator_actions (run_id, host_ms, origin, action, detail)
                  VALUES (?1, ?2, ?3, ?4, ?5)",
@@ -1183,7 +1201,7 @@ impl Log {
     /// Every run, oldest first.
     pub fn runs(&self) -> Result<Vec<RunInfo>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT id, started_host_ms, source, tool_version, ended_host_ms,
                  (SELECT count(*) FROM summaries s WHERE s.run_id = runs.id)
@@ -1232,7 +1250,7 @@ impl Log {
 
     fn frames_page(&self, run: RunId, after_ord: i64) -> Result<Vec<PageRow>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare_cached(&select_frames(self.schema))
             .map_err(|e| self.err("cannot read frames", e))?;
         let rows = st
@@ -1431,7 +1449,7 @@ impl Log {
         run: RunId,
     ) -> Result<Vec<Result<LinkErrorRow, StoreError>>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT ord, host_ms, kind, count, detail FROM link_errors
                  WHERE run_id = ?1 ORDER BY ord",
@@ -1477,7 +1495,7 @@ impl Log {
     /// The outages of `run`, in order.
     pub fn outages(&self, run: RunId) -> Result<Vec<OutageRow>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT id, started_host_ms, ended_host_ms, reason FROM outages
                  WHERE run_id = ?1 ORDER BY started_host_ms, id",
@@ -1499,16 +1517,18 @@ impl Log {
 impl Drop for Log {
     fn drop(&mut self) {
         // Best effort: an error here has nowhere to go, and WAL keeps every
-        // earlier batch either way.
+        // earlier batch either way. The commit writes the waiting summaries.
         let _ = self.commit();
         if self.run_closed {
             // A cleanly closed log goes back to a rollback journal, so that a
             // read-only reader (audit, chart) needs no `-wal`/`-shm` files and
             // leaves none. Fails harmlessly (stays WAL) while another
             // connection has the file open; the next writer switches to WAL.
-            let _ = self
-                .conn
-                .pragma_update_and_check(None, "journal_mode", "DELETE", |r| r.get::<_, String>(0));
+            if let Ok(conn) = self.conn() {
+                let _ = conn.pragma_update_and_check(None, "journal_mode", "DELETE", |r| {
+                    r.get::<_, String>(0)
+                });
+            }
         }
     }
 }

@@ -75,6 +75,7 @@ fn a_writer_switches_back_to_wal_when_it_reopens() {
     let log = heatbound_host::store::Log::open(&db).expect("reopen");
     let mode: String = log
         .connection()
+        .expect("connection")
         .pragma_query_value(None, "journal_mode", |r| r.get(0))
         .expect("journal_mode");
     assert_eq!(mode, "wal");

@@ -3,7 +3,7 @@ use heatbound::alarm::{Event, EventKind, RuleId, Severity};
 use heatbound::config::{Mode, RigConfig};
 use heatbound::monitor::Channel;
 use heatbound::wire::{EventFrame, FaultBits, Frame, Hello, RigId, Status, Summary, Verdict};
-use heatbound_host::store::{LinkErrorKind, Log, SCHEMA_VERSION, StoreError};
+use heatbound_host::store::{Batching, LinkErrorKind, Log, SCHEMA_VERSION, StoreError};
 use rusqlite::Connection;
 
 fn hello() -> Hello {
@@ -602,6 +602,7 @@ fn a_version_4_log_keeps_its_stale_bits_through_migration_5() {
     assert_eq!(log.migrate().unwrap(), SCHEMA_VERSION);
     let faults: Vec<i64> = log
         .connection()
+        .unwrap()
         .prepare("SELECT faults FROM summaries ORDER BY ord")
         .unwrap()
         .query_map([], |r| r.get(0))
@@ -611,6 +612,7 @@ fn a_version_4_log_keeps_its_stale_bits_through_migration_5() {
     assert_eq!(faults, [0b1000_0101, 0b1_1111, 0b0100_0000]);
     let news: (Option<f64>, Option<String>, Option<f64>) = log
         .connection()
+        .unwrap()
         .query_row(
             "SELECT hot_pair_integral_k_s, verdict, u_hot2_k FROM summaries, hellos
              WHERE summaries.ord = 1",
@@ -737,4 +739,104 @@ fn altered_verdict_and_hot2_columns_are_errors_naming_the_column() {
         });
         assert!(found, "{case}: {errors:?}");
     }
+}
+
+/// Summaries are written to SQLite in groups, but nothing can tell: the
+/// writer's own reads, other rows and the batch commits all see every
+/// summary logged before them, in receive order.
+#[test]
+fn waiting_summaries_are_seen_by_every_read_and_keep_their_place() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("wait.sqlite");
+    let batching = Batching {
+        max_rows: 97,
+        max_age_ms: i64::MAX,
+    };
+    let mut log = Log::open_with(&path, batching).unwrap();
+    let run = log.begin_run("file:wait.bin", 0).unwrap();
+    let mut expected = Vec::new();
+    for seq in 0..300u16 {
+        let frame = Frame::Summary(summary(seq));
+        log.insert_frame(run, i64::from(seq), &frame).unwrap();
+        expected.push(frame);
+        if seq % 71 == 70 {
+            log.insert_frame(run, i64::from(seq), &Frame::Event(event()))
+                .unwrap();
+            expected.push(Frame::Event(event()));
+        }
+        if seq == 150 {
+            // Read back mid-batch through every way in.
+            let count: i64 = log
+                .connection()
+                .unwrap()
+                .query_row("SELECT count(*) FROM summaries", [], |r| r.get(0))
+                .unwrap();
+            assert_eq!(count, 151);
+            assert_eq!(log.runs().unwrap()[0].summaries, 151);
+            let got: Vec<Frame> = log.frames(run).unwrap().map(|s| s.unwrap().frame).collect();
+            assert_eq!(got, expected);
+        }
+    }
+    log.end_run(run, 1).unwrap();
+    drop(log);
+    let got: Vec<Frame> = read_all(&path, run)
+        .into_iter()
+        .map(Result::unwrap)
+        .collect();
+    assert_eq!(got, expected);
+}
+
+/// A summary SQLite refuses when its group is written is named in the
+/// error, by run, row and seq; every other summary of the group is kept,
+/// and the call that got the error did not log its own frame.
+#[test]
+fn a_refused_waiting_summary_is_named_and_the_rest_are_kept() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("refused.sqlite");
+    let mut log = Log::open(&path).unwrap();
+    let run = log.begin_run("file:refused.bin", 0).unwrap();
+    log.connection()
+        .unwrap()
+        .execute_batch(
+            "CREATE TEMP TRIGGER refuse BEFORE INSERT ON summaries WHEN NEW.seq = 7
+             BEGIN SELECT RAISE(ABORT, 'refused for the test'); END;",
+        )
+        .unwrap();
+    // Summaries wait until more than a group's worth have come: the call
+    // that writes them gets the error.
+    let mut failed = None;
+    for seq in 0..200u16 {
+        if let Err(e) = log.insert_frame(run, i64::from(seq), &Frame::Summary(summary(seq))) {
+            failed = Some((seq, e));
+            break;
+        }
+    }
+    let (at, err) = failed.expect("the refused summary is reported");
+    match &err {
+        StoreError::SummaryNotLogged {
+            run_id,
+            ord,
+            seq,
+            also,
+            ..
+        } => assert_eq!((*run_id, *ord, *seq, *also), (run, 7, 7, 0)),
+        other => panic!("wrong error: {other}"),
+    }
+    let text = err.to_string();
+    assert!(
+        text.contains("run 1 at row 7 (seq 7)") && text.contains("refused for the test"),
+        "{text}"
+    );
+    log.end_run(run, 1).unwrap();
+    drop(log);
+    let seqs: Vec<u16> = read_all(&path, run)
+        .into_iter()
+        .map(|f| match f.unwrap() {
+            Frame::Summary(s) => s.seq,
+            other => panic!("not a summary: {other:?}"),
+        })
+        .collect();
+    let kept: Vec<u16> = (0..at).filter(|&s| s != 7).collect();
+    assert_eq!(seqs, kept, "all but the refused one, and not seq {at}");
+    assert!(at > 7, "reported when the group was written, at seq {at}");
 }

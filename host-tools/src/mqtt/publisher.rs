@@ -328,15 +328,14 @@ impl State {
             return;
         }
         let run = cursor.run;
-        let mut rig: Option<String> = self
-            .read
-            .connection()
-            .query_row(
+        let mut rig: Option<String> = self.read.connection().ok().and_then(|c| {
+            c.query_row(
                 "SELECT rig_id FROM hellos WHERE run_id = ?1 ORDER BY ord LIMIT 1",
                 [run],
                 |r| r.get(0),
             )
-            .ok();
+            .ok()
+        });
         if rig.is_none() {
             rig = self.live.iter().find_map(|l| match &l.record {
                 store::Record::Frame(s) if l.run == run => match &s.frame {

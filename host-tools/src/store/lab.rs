@@ -88,7 +88,7 @@ impl Log {
     /// This log's id: random, made once when the log was created (or
     /// migrated to version 6), so that a lab tells two bench PCs apart.
     pub fn log_id(&self) -> Result<i64, StoreError> {
-        self.conn
+        self.conn()?
             .query_row("SELECT id FROM log_identity LIMIT 1", [], |r| r.get(0))
             .map_err(|e| self.err("cannot read the log's id", e))
     }
@@ -101,7 +101,7 @@ impl Log {
         host_ms: i64,
     ) -> Result<(), StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute(
                 "INSERT OR IGNORE INTO publications (run_id, broker, acked_ord, updated_host_ms)
                  VALUES (?1, ?2, -1, ?3)",
@@ -119,7 +119,7 @@ impl Log {
         acked_ord: i64,
         host_ms: i64,
     ) -> Result<(), StoreError> {
-        self.conn
+        self.conn()?
             .execute(
                 "UPDATE publications SET acked_ord = ?2, updated_host_ms = ?3
                  WHERE run_id = ?1 AND acked_ord < ?2",
@@ -138,7 +138,7 @@ impl Log {
         also: Option<RunId>,
     ) -> Result<Vec<Publication>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT p.run_id, p.acked_ord, r.ended_host_ms,
                     (SELECT max(m) FROM (
@@ -171,7 +171,7 @@ impl Log {
 
     /// When `run` ended, if its writer closed it.
     pub fn run_ended(&self, run: RunId) -> Result<Option<i64>, StoreError> {
-        self.conn
+        self.conn()?
             .query_row("SELECT ended_host_ms FROM runs WHERE id = ?1", [run], |r| {
                 r.get(0)
             })
@@ -203,7 +203,7 @@ impl Log {
             out.push((ord, Record::Frame(frame?)));
         }
         let mut st = self
-            .conn
+            .conn()?
             .prepare_cached(
                 "SELECT ord, host_ms, kind, count, detail FROM link_errors
                  WHERE run_id = ?1 AND ord > ?2 ORDER BY ord LIMIT ?3",
@@ -250,7 +250,7 @@ impl Log {
     /// Names the rig a lab run came from (`runs.rig`); commits at once.
     pub fn set_run_rig(&mut self, run: RunId, rig: &str) -> Result<(), StoreError> {
         self.commit()?;
-        self.conn
+        self.conn()?
             .execute("UPDATE runs SET rig = ?2 WHERE id = ?1", params![run, rig])
             .map_err(|e| self.err("cannot name a run's rig", e))?;
         Ok(())
@@ -270,7 +270,7 @@ impl Log {
              ORDER BY id"
         };
         let mut st = self
-            .conn
+            .conn()?
             .prepare(sql)
             .map_err(|e| self.err("cannot list a rig's runs", e))?;
         st.query_map([rig], |r| r.get(0))
@@ -281,7 +281,7 @@ impl Log {
     /// Every lab source, by rig, log and run.
     pub fn lab_sources(&self) -> Result<Vec<LabSource>, StoreError> {
         let mut st = self
-            .conn
+            .conn()?
             .prepare(
                 "SELECT rig, log_id, source_run, run_id, last_ord, duplicates, recovered, lost
                  FROM lab_sources ORDER BY rig, log_id, source_run",
@@ -309,7 +309,7 @@ impl Log {
     pub fn save_lab_source(&mut self, source: &LabSource, host_ms: i64) -> Result<(), StoreError> {
         self.row(host_ms)?;
         let k = &source.key;
-        self.conn
+        self.conn()?
             .prepare_cached(
                 "INSERT INTO lab_sources (rig, log_id, source_run, run_id, last_ord, duplicates,
                  recovered, lost) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)
