@@ -190,10 +190,12 @@ pub(crate) fn lanes<const K: usize>(mut f: impl FnMut(usize)) {
 /// nearly exact for a steady signal. Beside them, `fresh` sums the entries
 /// since the last refresh; once it holds a whole window, it replaces the
 /// window's sums, so their rounding never outlives two windows. At that
-/// moment `fresh` is also folded into `f64` run totals, which carry 53 bits:
-/// the rounding of one block of entries does not accumulate against a
-/// growing total. On a Cortex-M4F the fold costs one software `f64`
-/// addition per sum per window.
+/// moment `fresh` also joins the `f64` run totals, which carry 53 bits: the
+/// rounding of one block of entries does not accumulate against a growing
+/// total. It joins them one sum per entry over the next entries (all that
+/// remain at the next refresh, if the window holds fewer entries than
+/// sums), so no single entry pays for all `K` software `f64` additions of a
+/// Cortex-M4F; the totals are the same, bit for bit.
 ///
 /// `refresh_after` must be the number of entries a full window holds, and
 /// the caller must pass the entry leaving the window once it is full, so
@@ -221,6 +223,10 @@ pub struct WindowSums<R, const K: usize> {
     window: [R; K],
     fresh: [R; K],
     fresh_count: u32,
+    /// The last rebuilt window's block, joining `total` one sum per entry:
+    /// sums `joined..K` have yet to.
+    joining: [R; K],
+    joined: usize,
     total: [f64; K],
 }
 
@@ -237,6 +243,8 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
             window: [R::ZERO; K],
             fresh: [R::ZERO; K],
             fresh_count: 0,
+            joining: [R::ZERO; K],
+            joined: K,
             total: [0.0; K],
         }
     }
@@ -267,17 +275,32 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
             self.refresh();
             return true;
         }
+        self.join_one();
         false
     }
 
-    /// `fresh` holds the window: it replaces the window's sums and joins the
-    /// run totals.
+    /// The next sum of the block still joining the run totals, if any.
+    #[inline]
+    fn join_one(&mut self) {
+        if let (Some(t), Some(x)) = (
+            self.total.get_mut(self.joined),
+            self.joining.get(self.joined),
+        ) {
+            *t += x.to_f64();
+            self.joined += 1;
+        }
+    }
+
+    /// `fresh` holds the window: it replaces the window's sums and starts
+    /// to join the run totals, once the block before it has.
     #[cold]
     fn refresh(&mut self) {
-        for (t, f) in self.total.iter_mut().zip(&self.fresh) {
-            *t += f.to_f64();
+        while self.joined < K {
+            self.join_one();
         }
         self.window = self.fresh;
+        self.joining = self.fresh;
+        self.joined = 0;
         self.fresh = [R::ZERO; K];
         self.fresh_count = 0;
     }
@@ -291,6 +314,11 @@ impl<R: Real, const K: usize> WindowSums<R, K> {
     /// The run totals, in `f64`.
     pub fn totals_f64(&self) -> [f64; K] {
         let mut out = self.total;
+        for (i, o) in out.iter_mut().enumerate().skip(self.joined) {
+            if let Some(x) = self.joining.get(i) {
+                *o += x.to_f64();
+            }
+        }
         for (o, f) in out.iter_mut().zip(&self.fresh) {
             *o += f.to_f64();
         }
