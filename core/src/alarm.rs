@@ -13,8 +13,10 @@
 //!
 //! The second-law rules compare against k·u, the expanded uncertainty, so a
 //! reading that is beyond the bound only by less than its own measurement
-//! uncertainty does not raise them. The uncertainties are asked for only
-//! when a rule is within its deadband of such a limit ([`RuleInputs`]).
+//! uncertainty does not raise them. The usual sample, every second-law
+//! figure clear of its limit, is decided by cross-multiplying the window's
+//! sums, without working out a figure; only otherwise are the figures and
+//! their uncertainties worked out ([`RuleInputs`]).
 //!
 //! These alarms are monitoring aids, not a safety-rated interlock: hardwired
 //! cut-outs and relief devices must stay in place.
@@ -639,9 +641,11 @@ fn verdicts<I: RuleInputs>(
         balance: band(RuleId::EnergyBalance),
         near: near_fraction - band(RuleId::NearCarnot),
     });
-    let figures = (!clear).then(|| inputs.figures());
+    // Near a limit the uncertainties are usually wanted too: worked out
+    // with the figures, in one pass.
+    let figures = (!clear).then(|| inputs.figures_with_variances());
     let (beyond, negative_entropy, near, balance) = match &figures {
-        Some(m) => second_law_verdicts(limits, inputs, m),
+        Some(m) => second_law_verdicts(limits, m),
         None => (
             Verdict::Clear,
             Verdict::Clear,
@@ -728,21 +732,20 @@ fn ahead_of<R: Real>(line: Option<(R, R, R)>, k: R, horizon: R, deadband: R) -> 
 }
 
 /// The verdicts of `beyond_carnot`, `negative_entropy_production`,
-/// `near_carnot` and `energy_balance` on the figures `m`.
-fn second_law_verdicts<I: RuleInputs>(
+/// `near_carnot` and `energy_balance` on the figures `m`, with their
+/// variances.
+fn second_law_verdicts<R: Real>(
     limits: &Limits,
-    inputs: &I,
-    m: &AlarmFigures<I::Real>,
+    m: &AlarmFigures<R>,
 ) -> (Verdict, Verdict, Verdict, Verdict) {
-    type R<I> = <I as RuleInputs>::Real;
     let single = &limits.single;
-    let k = R::<I>::pick(single.coverage_factor, limits.coverage_factor);
+    let k = R::pick(single.coverage_factor, limits.coverage_factor);
     let k2 = k * k;
     let db = |id: RuleId| {
         let i = id.index();
-        R::<I>::pick(single.deadband[i], limits.deadband[i])
+        R::pick(single.deadband[i], limits.deadband[i])
     };
-    let zero = R::<I>::ZERO;
+    let zero = R::ZERO;
 
     // The three second-law rules as (a, d): raise when a − k·u > 0, hold
     // while a − k·u ≥ −d.
@@ -761,26 +764,20 @@ fn second_law_verdicts<I: RuleInputs>(
         Some(l) if m.heat_in_j > zero => Some((-l, db(RuleId::EnergyBalance) * m.heat_in_j)),
         _ => None,
     };
-    // Only a rule with a > 0 or a + d ≥ 0 can do anything but clear.
-    let open =
-        |rule: Option<(R<I>, R<I>)>| matches!(rule, Some((a, d)) if a > zero || a + d >= zero);
-    let variances = (open(beyond) || open(negative_entropy) || open(balance))
-        .then(|| inputs.figures_with_variances());
-    let judge = |rule: Option<(R<I>, R<I>)>, var: Option<R<I>>| match (rule, var) {
+    let judge = |rule: Option<(R, R)>, var: Option<R>| match (rule, var) {
         (Some((a, d)), Some(var)) => beyond_uncertainty(a, k2 * var, d),
         _ => Verdict::Clear,
     };
-    let v = variances.as_ref();
     let near = level(
         m.second_law_efficiency
-            .map(|f| f - R::<I>::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
+            .map(|f| f - R::pick(single.near_carnot_fraction, limits.near_carnot_fraction)),
         db(RuleId::NearCarnot),
     );
     (
-        judge(beyond, v.and_then(|v| v.var_carnot_margin)),
-        judge(negative_entropy, v.and_then(|v| v.var_entropy_rate_w_per_k)),
+        judge(beyond, m.var_carnot_margin),
+        judge(negative_entropy, m.var_entropy_rate_w_per_k),
         near,
-        judge(balance, v.and_then(|v| v.var_balance_residual_j)),
+        judge(balance, m.var_balance_residual_j),
     )
 }
 

@@ -75,12 +75,13 @@ pub struct AlarmInputs<R: Real> {
 /// Where the rules read their inputs.
 ///
 /// [`AlarmInputs`] holds every figure up front. The monitor's
-/// [`WindowAlarmInputs`] leaves the
-/// uncertainties until a rule asks for them, which it does only within its
-/// deadband of a second-law limit: each such rule tests `a − k·u` with
-/// `k·u ≥ 0`, so a reading that clears with `u = 0` clears whatever `u` is,
-/// and the usual reading, far from the bound, costs no uncertainty work. The
-/// verdicts are the same either way.
+/// [`WindowAlarmInputs`] works nothing out until the rules ask, and they
+/// first ask [`RuleInputs::second_law_clear`]: each second-law rule tests
+/// `a − k·u` with `k·u ≥ 0`, so a reading that clears with `u = 0` clears
+/// whatever `u` is, and the usual reading, far from the bound, is told
+/// clear from the window's sums by cross-multiplying. Only a reading near a
+/// limit has its figures and their uncertainties worked out. The verdicts
+/// are the same either way.
 pub trait RuleInputs {
     /// The type the figures are in.
     type Real: Real;
@@ -91,7 +92,7 @@ pub trait RuleInputs {
     /// Whether the four second-law rules are certainly clear at `bands`,
     /// told without working out the figures; `false` when that cannot be
     /// told cheaply (the default), and the rules then read
-    /// [`RuleInputs::figures`].
+    /// [`RuleInputs::figures_with_variances`].
     fn second_law_clear(&self, bands: &ClearBands<Self::Real>) -> bool {
         let _ = bands;
         false
