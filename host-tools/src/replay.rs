@@ -252,24 +252,23 @@ fn eight_digits<const POINT: u8>(digits: &[u8]) -> Option<(u64, usize)> {
     // Bytes equal to the mark: high bit set exactly there.
     let t = word ^ splat(POINT);
     let marks = !(((t & splat(0x7f)) + splat(0x7f)) | t) & splat(0x80);
-    let (word, decimals) = match marks.count_ones() {
+    // At most one mark: clearing the lowest set bit leaves none.
+    if marks & marks.wrapping_sub(1) != 0 {
+        return None;
+    }
+    let (word, decimals) = match marks {
         0 => (word, 0),
-        1 => {
+        _ => {
             // Byte q is the mark: the bytes below it move up one, a zero
             // fills the lowest.
             let q = marks.trailing_zeros() / 8;
             let below = (1u64 << (8 * q)) - 1;
-            let above = if q == 7 {
-                0
-            } else {
-                !((1u64 << (8 * (q + 1))) - 1)
-            };
+            let above = !(below | (0xff << (8 * q)));
             (
                 ((word & below) << 8) | (word & above) | u64::from(b'0'),
                 7 - q as usize,
             )
         }
-        _ => return None,
     };
     if len == usize::from(marks != 0) {
         // No digit at all: empty, or the mark alone.
