@@ -222,75 +222,6 @@ fn fast_decimal_with<const POINT: u8>(bytes: &[u8]) -> Option<f64> {
         Some((b'+', rest)) => (false, rest),
         _ => (false, bytes),
     };
-    let (mantissa, decimals) = if digits.len() <= 8 {
-        eight_digits::<POINT>(digits)?
-    } else {
-        long_digits::<POINT>(digits)?
-    };
-    // Below 2^53: exact as a signed integer, one conversion instruction.
-    let magnitude = mantissa as i64 as f64 / *POW10.get(decimals)?;
-    Some(if negative { -magnitude } else { magnitude })
-}
-
-/// Each byte of a word set to `b`.
-const fn splat(b: u8) -> u64 {
-    u64::from_le_bytes([b; 8])
-}
-
-/// Up to 8 bytes of digits with at most one `POINT`, as the integer of the
-/// digits and the count of decimals, eight bytes at a time: the text
-/// right-aligned in a word of ASCII zeros, the mark taken out, every byte
-/// checked to be a digit, then the digits combined pairwise.
-#[inline(always)]
-fn eight_digits<const POINT: u8>(digits: &[u8]) -> Option<(u64, usize)> {
-    let len = digits.len();
-    // The most significant digit ends in byte 8 - len, counted from the
-    // lowest; the bytes below stay ASCII zeros.
-    let mut word = splat(b'0');
-    for &b in digits {
-        word = (word >> 8) | (u64::from(b) << 56);
-    }
-    // Bytes equal to the mark: high bit set exactly there.
-    let t = word ^ splat(POINT);
-    let marks = !(((t & splat(0x7f)) + splat(0x7f)) | t) & splat(0x80);
-    // At most one mark: clearing the lowest set bit leaves none.
-    if marks & marks.wrapping_sub(1) != 0 {
-        return None;
-    }
-    let (word, decimals) = match marks {
-        0 => (word, 0),
-        _ => {
-            // Byte q is the mark: the bytes below it move up one, a zero
-            // fills the lowest.
-            let q = marks.trailing_zeros() / 8;
-            let below = (1u64 << (8 * q)) - 1;
-            let above = !(below | (0xff << (8 * q)));
-            (
-                ((word & below) << 8) | (word & above) | u64::from(b'0'),
-                7 - q as usize,
-            )
-        }
-    };
-    if len == usize::from(marks != 0) {
-        // No digit at all: empty, or the mark alone.
-        return None;
-    }
-    // Every byte a digit: high nibble 3, and adding 6 stays below 0x40.
-    if word & splat(0xf0) != splat(0x30)
-        || (word.wrapping_add(splat(0x06)) & splat(0xf0)) != splat(0x30)
-    {
-        return None;
-    }
-    let v = word - splat(b'0');
-    let v = (v & 0x000f_000f_000f_000f) * 10 + ((v >> 8) & 0x000f_000f_000f_000f);
-    let v = (v & 0x0000_00ff_0000_00ff) * 100 + ((v >> 16) & 0x0000_00ff_0000_00ff);
-    let v = (v & 0x0000_0000_0000_ffff) * 10_000 + ((v >> 32) & 0x0000_0000_0000_ffff);
-    Some((v, decimals))
-}
-
-/// [`eight_digits`] of a longer text, byte by byte: at most 15 digits.
-#[inline]
-fn long_digits<const POINT: u8>(digits: &[u8]) -> Option<(u64, usize)> {
     let mut mantissa: u64 = 0;
     let mut count = 0usize;
     let mut decimals = 0usize;
@@ -309,16 +240,17 @@ fn long_digits<const POINT: u8>(digits: &[u8]) -> Option<(u64, usize)> {
             _ => return None,
         }
     }
-    if count == 0 {
+    if count == 0 || decimals >= POW10.len() {
         return None;
     }
-    Some((mantissa, decimals))
+    let magnitude = mantissa as f64 / POW10[decimals];
+    Some(if negative { -magnitude } else { magnitude })
 }
 
 /// A reading: empty or `NaN` (any case) is an invalid sample, NaN, and so
 /// are `-` and `n/a` with a `[csv]` table; anything else must parse as a
 /// number, with the table's decimal mark.
-#[inline(always)]
+#[inline]
 fn reading(bytes: &[u8], numbers: Numbers, column: &str, line: u64) -> Result<f64, CsvError> {
     if bytes.is_empty() {
         return Ok(f64::NAN);
@@ -333,8 +265,6 @@ fn reading(bytes: &[u8], numbers: Numbers, column: &str, line: u64) -> Result<f6
 const MAX_NUMBER_BYTES: usize = 64;
 
 /// [`reading`] off the fast path: words, exponents, long mantissas.
-#[cold]
-#[inline(never)]
 fn general_reading(
     bytes: &[u8],
     numbers: Numbers,
