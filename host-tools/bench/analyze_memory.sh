@@ -8,6 +8,8 @@
 #     hot side as raw type K millivolts with a cold-junction column, against
 #     the plain parse of that same file.
 # Run from the repository root. Writes the CSV files to ${BENCH_DIR:-/tmp}.
+# Row counts: BENCH_ROWS (default "10000 10000000") for the default layout,
+# BENCH_MAPPED_ROWS (default "10000 2000000") for the [csv] layout.
 # Needs GNU time at /usr/bin/time (Debian: apt-get install -y time).
 set -euo pipefail
 cd "$(dirname "$0")/../.."
@@ -29,7 +31,7 @@ make_csv() { # rows file
     }' > "$2"
 }
 
-for rows in 10000 10000000; do
+for rows in ${BENCH_ROWS:-10000 10000000}; do
     file="$dir/heatbound-bench-$rows.csv"
     [ -s "$file" ] || make_csv "$rows" "$file"
     printf '\n== %s rows, %s bytes\n' "$rows" "$(stat -c %s "$file")"
@@ -63,7 +65,7 @@ heat_in = { column = "P_Heizer", unit = "kW" }
 work = { column = "P_Welle", unit = "W" }
 heat_out = { column = "Q_Kuehl", unit = "W" }
 TOML
-for rows in 10000 2000000; do
+for rows in ${BENCH_MAPPED_ROWS:-10000 2000000}; do
     file="$dir/heatbound-bench-mapped-$rows.csv"
     [ -s "$file" ] || make_mapped_csv "$rows" "$file"
     printf '\n== [csv] layout, %s rows, %s bytes\n' "$rows" "$(stat -c %s "$file")"

@@ -64,7 +64,7 @@ pub(super) struct TemperatureChannel {
     pub memo: Option<Memo>,
 }
 
-/// Slots of a [`Memo`]: 8192 of 24 bytes, 192 KiB per raw channel.
+/// Slots of a [`Memo`]: 8192 of 16 bytes, 128 KiB per raw channel.
 const MEMO_BITS: u32 = 13;
 
 /// The raw signals a channel has already converted, and their kelvin.
@@ -74,22 +74,39 @@ const MEMO_BITS: u32 = 13;
 /// signal to a fixed resolution, so the same reading with the same junction
 /// comes back again and again while the rig holds a temperature: a
 /// direct-mapped table of the last conversion per slot returns exactly what
-/// the conversion gave (it is a function of the reading and the junction),
-/// and memory stays fixed whatever the file's length.
+/// the conversion gave, and memory stays fixed whatever the file's length.
+///
+/// The key is what the conversion is a function of: a thermocouple's
+/// compensated EMF (reading plus junction EMF, the one number the inverse
+/// sees), an RTD's resistance. The slot is the key in steps of
+/// [`Memo::step`], so readings within 8192 steps of each other (0.8 mV of a
+/// thermocouple, 8 Ω of an RTD) never share a slot.
 /// The junction's EMF is kept the same way, for its last reading.
 #[derive(Clone, Debug)]
 pub(super) struct Memo {
-    slots: Box<[std::cell::Cell<(u64, u64, f64)>]>,
+    slots: Box<[std::cell::Cell<(u64, f64)>]>,
     junction: std::cell::Cell<(u64, f64)>,
+    /// Slots per unit of the key.
+    per_unit: f64,
 }
 
 impl Memo {
-    fn new() -> Memo {
+    fn new(signal: &Signal) -> Memo {
         // An empty slot holds a key no finite reading has (a NaN's bits).
-        let empty = std::cell::Cell::new((u64::MAX, u64::MAX, f64::NAN));
+        let empty = std::cell::Cell::new((u64::MAX, f64::NAN));
         Memo {
             slots: vec![empty; 1 << MEMO_BITS].into_boxed_slice(),
             junction: std::cell::Cell::new((u64::MAX, f64::NAN)),
+            per_unit: 1.0 / Memo::step(signal),
+        }
+    }
+
+    /// A slot's width: 0.1 µV of a thermocouple, 1 mΩ of an RTD, finer than
+    /// loggers write either.
+    fn step(signal: &Signal) -> f64 {
+        match signal {
+            Signal::Rtd { .. } => 1e-3,
+            _ => 1e-4,
         }
     }
 
@@ -97,31 +114,33 @@ impl Memo {
     /// `junction_c`, from the table when it holds them.
     #[inline]
     fn kelvin(&self, signal: &Signal, x: f64, junction_c: f64) -> f64 {
-        let convert = || {
-            let (bits, emf) = self.junction.get();
-            let junction_emf_mv = if bits == junction_c.to_bits() {
-                emf
-            } else {
-                let emf = signal.junction_emf_mv(junction_c);
-                self.junction.set((junction_c.to_bits(), emf));
-                emf
-            };
-            signal.kelvin_with_junction_emf(x, junction_emf_mv)
+        let (bits, emf) = self.junction.get();
+        let junction_emf_mv = if bits == junction_c.to_bits() {
+            emf
+        } else {
+            let emf = signal.junction_emf_mv(junction_c);
+            self.junction.set((junction_c.to_bits(), emf));
+            emf
         };
-        if !(x.is_finite() && junction_c.is_finite()) {
-            return convert();
+        let key = match signal {
+            Signal::Thermocouple { .. } => x + junction_emf_mv,
+            _ => x,
+        };
+        if !key.is_finite() {
+            return signal.kelvin_with_junction_emf(x, junction_emf_mv);
         }
-        let (a, b) = (x.to_bits(), junction_c.to_bits());
-        let hash = (a ^ b.rotate_left(29)).wrapping_mul(0x9E37_79B9_7F4A_7C15) >> (64 - MEMO_BITS);
-        let Some(slot) = self.slots.get(hash as usize) else {
-            return convert();
+        // Saturating and wrapping: any finite key has a slot.
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        let index = ((key * self.per_unit).round() as i64 as u64) & ((1 << MEMO_BITS) - 1);
+        let Some(slot) = self.slots.get(index as usize) else {
+            return signal.kelvin_with_junction_emf(x, junction_emf_mv);
         };
-        let (ka, kb, kelvin) = slot.get();
-        if ka == a && kb == b {
+        let (k, kelvin) = slot.get();
+        if k == key.to_bits() {
             return kelvin;
         }
-        let kelvin = convert();
-        slot.set((a, b, kelvin));
+        let kelvin = signal.kelvin_with_junction_emf(x, junction_emf_mv);
+        slot.set((key.to_bits(), kelvin));
         kelvin
     }
 }
@@ -327,7 +346,7 @@ impl Header {
             junction,
             memo: match column.signal {
                 Signal::Temperature(_) => None,
-                _ => Some(Memo::new()),
+                _ => Some(Memo::new(&column.signal)),
             },
         })
     }
@@ -690,4 +709,68 @@ fn unused_columns(names: &[String]) -> Vec<UnusedColumn> {
             }
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use heatbound::sensor::SensorKind;
+    use heatbound::sensor::rtd::Rtd;
+    use heatbound::sensor::thermocouple::ThermocoupleType;
+
+    use super::*;
+
+    /// Readings that revisit, collide and step past the slots, each with
+    /// its junction: the memo gives the conversion's own bits every time.
+    #[test]
+    fn the_memo_gives_what_the_conversion_gives() {
+        let thermocouple = Signal::Thermocouple {
+            sensor: SensorKind::TypeK,
+            thermocouple: ThermocoupleType::K,
+            junction: Junction::Fixed { celsius: 0.0 },
+        };
+        let rtd = Signal::Rtd {
+            sensor: SensorKind::Pt100,
+            rtd: Rtd::PT100,
+        };
+        for signal in [thermocouple, rtd] {
+            let memo = Memo::new(&signal);
+            let step = Memo::step(&signal);
+            let span = f64::from(1u32 << MEMO_BITS) * step;
+            let base = match signal {
+                Signal::Rtd { .. } => 150.0,
+                _ => 21.0,
+            };
+            let mut readings = Vec::new();
+            for i in 0..3000 {
+                let i = f64::from(i);
+                // A slow wave at the logger's resolution, the same wave a
+                // whole span higher (every slot shared), and finer steps.
+                let x = base + 0.2 * (i / 50.0).sin();
+                readings.push(((x / step).round() * step, 23.0));
+                readings.push(((x / step).round() * step + span, 23.0));
+                readings.push((x + i * 1e-7, 23.0 + (i / 400.0).floor() * 0.1));
+            }
+            readings.extend([
+                (f64::NAN, 23.0),
+                (base, f64::NAN),
+                (f64::INFINITY, 23.0),
+                (-0.0, 0.0),
+                (0.0, 0.0),
+                (1e300, 23.0),
+                (-1e300, 23.0),
+                (base, 1e6),
+            ]);
+            for round in 0..2 {
+                for &(x, junction_c) in &readings {
+                    let expected = signal.kelvin(x, junction_c);
+                    let got = memo.kelvin(&signal, x, junction_c);
+                    assert_eq!(
+                        got.to_bits(),
+                        expected.to_bits(),
+                        "{x} with the junction at {junction_c}, round {round}"
+                    );
+                }
+            }
+        }
+    }
 }
