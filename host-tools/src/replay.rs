@@ -8,8 +8,7 @@
 //! ```text
 //! FILE.csv --(preamble skipped, blank runs as tabs: [csv] only)
 //!          --(csv, one reused ByteRecord)--> Columns (header, checked once)
-//!          --> cells to s, K, W --> Sample<f64> per row
-//!          --(batches of 1024 rows, to a second thread)--> Monitor<4096, f64>::push
+//!          --> cells to s, K, W --> Sample<f64> per row --> Monitor<4096, f64>::push
 //!          --> AlarmSet::update --> Replay (counts, events, final metrics) --> table or JSON
 //!          \--each Row--> a follower, if any (the report's controller: replay_file_following)
 //! rig.toml --(toml)--> RigFile --validate--> RigConfig
@@ -472,9 +471,8 @@ pub fn replay_file_with(
 
 /// [`replay_file_with`], handing every row to `follow` as it is pushed to
 /// the monitor, in file order (blank lines are no row). `follow` runs on
-/// the replay's monitor thread (one of the replay's own, not the caller's),
-/// so whatever it builds stays as flat in memory as the replay, if it keeps
-/// no rows.
+/// the replay's own thread, so whatever it builds stays as flat in memory
+/// as the replay, if it keeps no rows.
 ///
 /// ```
 /// use heatbound::config::RigConfig;
@@ -588,7 +586,7 @@ fn replay_here<'a, R: Read + 'a>(
     config: &RigConfig,
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
-    follow: impl FnMut(&Row) + Send,
+    follow: impl FnMut(&Row),
 ) -> Result<Replay, CsvError> {
     let mut builder = csv::ReaderBuilder::new();
     builder
@@ -659,7 +657,7 @@ fn replay_rows<R: Read>(
     config: &RigConfig,
     layout: Option<&CsvLayout>,
     progress: Option<&indicatif::ProgressBar>,
-    mut follow: impl FnMut(&Row) + Send,
+    mut follow: impl FnMut(&Row),
 ) -> Result<Replay, CsvError> {
     let header_line = line_offset + 1;
     let header = reader
@@ -677,136 +675,105 @@ fn replay_rows<R: Read>(
     };
 
     // ~450 KiB with a 4096-sample window: on the heap, not the stack.
-    let monitor: Box<Monitor<WINDOW_CAPACITY, f64>> = Box::new(Monitor::new(config)?);
-    let mut flow = Flow {
-        monitor,
-        alarms: AlarmSet::new(config),
-        tracker: Tracker::<f64>::new(config),
-        last_t_ms: 0,
-        events: Vec::new(),
-        invalid_lines: Vec::new(),
-    };
+    let mut monitor: Box<Monitor<WINDOW_CAPACITY, f64>> = Box::new(Monitor::new(config)?);
+    let mut alarms = AlarmSet::new(config);
+    let mut tracker = Tracker::<f64>::new(config);
+    let mut last_t_ms = 0u32;
+    let mut events = Vec::new();
     let mut record = csv::ByteRecord::new();
     let mut first_s: Option<f64> = None;
     let mut last_s = 0.0_f64;
     let mut rows = 0u64;
+    let mut invalid_lines: Vec<u64> = Vec::new();
 
-    // The rows go to the monitor on a thread of its own, in batches, while
-    // this one reads on: the file order is kept, and at most
-    // BATCHES_IN_FLIGHT batches wait, so memory stays flat.
-    let (to_monitor, from_reader) =
-        std::sync::mpsc::sync_channel::<Vec<(Row, u64)>>(BATCHES_IN_FLIGHT);
-    let flow = std::thread::scope(|scope| -> Result<Flow, CsvError> {
-        let monitor_thread = std::thread::Builder::new()
-            .name("replay-monitor".into())
-            .stack_size(REPLAY_STACK_BYTES)
-            .spawn_scoped(scope, move || {
-                for batch in from_reader {
-                    for (row, line) in &batch {
-                        flow.push(row, *line, &mut follow);
-                    }
+    loop {
+        let more = reader
+            .read_byte_record(&mut record)
+            .map_err(|e| csv_error(&e, 0, line_offset))?;
+        if !more {
+            break;
+        }
+        let line = record.position().map_or(0, |p| p.line()) + line_offset;
+        // A blank line is not a row (the csv reader already skips most).
+        if record.len() == 1 && record[0].trim_ascii().is_empty() {
+            continue;
+        }
+        let t_s = cols.time(&record, line)?;
+        let first = match first_s {
+            None => *first_s.insert(t_s),
+            Some(first) => {
+                if t_s <= last_s {
+                    return Err(CsvError::TimeNotIncreasing {
+                        line,
+                        column: cols.time.cell.name.clone(),
+                        time: shown_time(t_s, unix_time),
+                        previous: shown_time(last_s, unix_time),
+                        hint: fold_hint,
+                    });
                 }
-                flow
-            })
-            .map_err(CsvError::Read)?;
-        let mut batch = Vec::with_capacity(ROWS_PER_BATCH);
-        // Reading stops at the first error; the monitor thread then ends
-        // with the rows it has, and the error is the answer.
-        let read = (|| -> Result<(), CsvError> {
-            loop {
-                let more = reader
-                    .read_byte_record(&mut record)
-                    .map_err(|e| csv_error(&e, 0, line_offset))?;
-                if !more {
-                    return Ok(());
-                }
-                let line = record.position().map_or(0, |p| p.line()) + line_offset;
-                // A blank line is not a row (the csv reader already skips most).
-                if record.len() == 1 && record[0].trim_ascii().is_empty() {
-                    continue;
-                }
-                let t_s = cols.time(&record, line)?;
-                let first = match first_s {
-                    None => *first_s.insert(t_s),
-                    Some(first) => {
-                        if t_s <= last_s {
-                            return Err(CsvError::TimeNotIncreasing {
-                                line,
-                                column: cols.time.cell.name.clone(),
-                                time: shown_time(t_s, unix_time),
-                                previous: shown_time(last_s, unix_time),
-                                hint: fold_hint,
-                            });
-                        }
-                        first
-                    }
-                };
-                let t_hot_k = cols.temperature(&cols.hot, &record, line)?;
-                let t_cold_k = cols.temperature(&cols.cold, &record, line)?;
-                let heat_in_w = cols.power(&cols.heat_in, &record, line)?;
-                let work_w = cols.power(&cols.work, &record, line)?;
-                let heat_out_w = match &cols.heat_out {
-                    Some(c) => Some(cols.power(c, &record, line)?),
-                    None => None,
-                };
-                let t_hot2_k = match &cols.hot2 {
-                    Some(c) => Some(cols.temperature(c, &record, line)?),
-                    None => None,
-                };
-                last_s = t_s;
-                rows += 1;
-                let sample = Sample {
-                    t_ms: offset_ms(t_s, first),
-                    t_hot_k,
-                    t_cold_k,
-                    heat_in_w,
-                    work_w,
-                    heat_out_w,
-                    t_hot2_k,
-                };
-                batch.push((
-                    Row {
-                        t_s,
-                        unix_time,
-                        sample,
-                    },
-                    line,
-                ));
-                if batch.len() == ROWS_PER_BATCH {
-                    let full = std::mem::replace(&mut batch, Vec::with_capacity(ROWS_PER_BATCH));
-                    if to_monitor.send(full).is_err() {
-                        return Err(monitor_stopped());
-                    }
-                }
-                if let Some(bar) = progress
-                    && rows.is_multiple_of(PROGRESS_EVERY_ROWS)
-                {
-                    bar.set_position(bytes_read(&reader));
-                }
+                first
             }
-        })();
-        let sent = match read {
-            Ok(()) if batch.is_empty() => Ok(()),
-            Ok(()) => to_monitor.send(batch).map_err(|_| monitor_stopped()),
-            Err(e) => Err(e),
         };
-        drop(to_monitor);
-        let flow = monitor_thread.join().map_err(|_| monitor_stopped());
-        sent?;
-        flow
-    })?;
+        let t_hot_k = cols.temperature(&cols.hot, &record, line)?;
+        let t_cold_k = cols.temperature(&cols.cold, &record, line)?;
+        let heat_in_w = cols.power(&cols.heat_in, &record, line)?;
+        let work_w = cols.power(&cols.work, &record, line)?;
+        let heat_out_w = match &cols.heat_out {
+            Some(c) => Some(cols.power(c, &record, line)?),
+            None => None,
+        };
+        last_s = t_s;
+        rows += 1;
+
+        let sample = Sample {
+            t_ms: offset_ms(t_s, first),
+            t_hot_k,
+            t_cold_k,
+            heat_in_w,
+            work_w,
+            heat_out_w,
+            t_hot2_k: match &cols.hot2 {
+                Some(c) => Some(cols.temperature(c, &record, line)?),
+                None => None,
+            },
+        };
+        // Invalid samples go in too: the sensor_fault rule needs them.
+        let invalid_before = monitor.invalid_samples();
+        monitor.push(&sample);
+        follow(&Row {
+            t_s,
+            unix_time,
+            sample,
+        });
+        tracker.observe(&monitor, sample.t_ms);
+        last_t_ms = sample.t_ms;
+        if monitor.invalid_samples() != invalid_before && invalid_lines.len() < INVALID_LINES_KEPT {
+            invalid_lines.push(line);
+        }
+        for event in alarms.update(sample.t_ms, &monitor.alarm_inputs()) {
+            let diagnosis =
+                (event.kind == EventKind::Raised && event.rule.is_consistency()).then(|| {
+                    Box::new(DiagnosisJson::new(
+                        &tracker.diagnose(&monitor, sample.t_ms),
+                        tracker.ua(),
+                    ))
+                });
+            events.push(TimedEvent {
+                t_s,
+                event,
+                diagnosis,
+            });
+        }
+        if let Some(bar) = progress
+            && rows.is_multiple_of(PROGRESS_EVERY_ROWS)
+        {
+            bar.set_position(bytes_read(&reader));
+        }
+    }
 
     if let Some(bar) = progress {
         bar.set_position(bytes_read(&reader));
     }
-    let Flow {
-        monitor,
-        alarms: _,
-        tracker,
-        last_t_ms,
-        events,
-        invalid_lines,
-    } = flow;
     Ok(Replay {
         mode: config.mode,
         coverage_factor: config.coverage_factor,
@@ -834,67 +801,6 @@ fn replay_rows<R: Read>(
             config.coverage_factor,
         ),
     })
-}
-
-/// Rows handed to the monitor thread at once.
-const ROWS_PER_BATCH: usize = 1024;
-
-/// Batches read ahead of the monitor, at most.
-const BATCHES_IN_FLIGHT: usize = 8;
-
-/// The monitor thread ended before the rows did: only a panic does that.
-fn monitor_stopped() -> CsvError {
-    CsvError::Read(std::io::Error::other(
-        "the replay's monitor stopped unexpectedly (a bug in heatbound: please report it)",
-    ))
-}
-
-/// What the rows flow into, in file order: the monitor, the alarms and the
-/// diagnosis tracker, and what the report keeps of them.
-struct Flow {
-    monitor: Box<Monitor<WINDOW_CAPACITY, f64>>,
-    alarms: AlarmSet,
-    tracker: Tracker<f64>,
-    last_t_ms: u32,
-    events: Vec<TimedEvent>,
-    invalid_lines: Vec<u64>,
-}
-
-impl Flow {
-    /// One row, from the file's `line`, through the monitor (invalid samples
-    /// too: the sensor_fault rule needs them), `follow`, the tracker and the
-    /// alarms.
-    #[inline]
-    fn push(&mut self, row: &Row, line: u64, follow: &mut impl FnMut(&Row)) {
-        let sample = &row.sample;
-        let invalid_before = self.monitor.invalid_samples();
-        self.monitor.push(sample);
-        follow(row);
-        self.tracker.observe(&self.monitor, sample.t_ms);
-        self.last_t_ms = sample.t_ms;
-        if self.monitor.invalid_samples() != invalid_before
-            && self.invalid_lines.len() < INVALID_LINES_KEPT
-        {
-            self.invalid_lines.push(line);
-        }
-        for event in self
-            .alarms
-            .update(sample.t_ms, &self.monitor.alarm_inputs())
-        {
-            let diagnosis =
-                (event.kind == EventKind::Raised && event.rule.is_consistency()).then(|| {
-                    Box::new(DiagnosisJson::new(
-                        &self.tracker.diagnose(&self.monitor, sample.t_ms),
-                        self.tracker.ua(),
-                    ))
-                });
-            self.events.push(TimedEvent {
-                t_s: row.t_s,
-                event,
-                diagnosis,
-            });
-        }
-    }
 }
 
 /// A csv-crate error on one line (its own position when it has one, after
