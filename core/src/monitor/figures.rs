@@ -572,7 +572,7 @@ fn positive<R: Real>(x: R) -> bool {
 const CLEAR_MARGIN: f32 = 1.0e-3;
 
 /// The clear levels of the second-law rules, for
-/// [`RuleInputs::second_law_clear`](super::RuleInputs::second_law_clear):
+/// `RuleInputs::second_law_clear`:
 /// a rule is clear when its figure is beyond its limit's deadband, on the
 /// side away from the limit. Each deadband is at least 0.
 #[derive(Clone, Copy, Debug, PartialEq)]

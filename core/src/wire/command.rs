@@ -15,47 +15,13 @@
 //! boot of the same rig, fails authentication. The key never travels.
 
 use hmac::{Hmac, KeyInit, Mac};
-use serde::{Deserialize, Serialize};
 use sha2::Sha256;
 
 use super::codec::{cobs_decode_in_place, cobs_encode};
-use super::command_body::take_command;
+use super::command_body::{Command, take_command};
 use super::error::*;
 use super::format::*;
 use super::frames::RigId;
-use crate::alarm::RuleId;
-use crate::config::RigConfig;
-
-/// What the host asks of the controller.
-// No heap in core: a configuration travels by value.
-#[allow(clippy::large_enum_variant)]
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum Command {
-    /// Send a Hello now. Changes nothing, so it is honoured without a key
-    /// or a valid tag.
-    HelloRequest,
-    /// Acknowledge one rule's alarm, or (`None`) every active alarm.
-    Acknowledge(Option<RuleId>),
-    /// Start a new run at the next window boundary: the run totals start
-    /// afresh and the run counter in the Hello goes up by one.
-    NewRun,
-    /// Replace the whole configuration at the next window boundary; a new
-    /// run starts under it and the next Hello carries its digest.
-    Configure(RigConfig),
-}
-
-impl Command {
-    /// The command's name in logs and on the control socket.
-    pub const fn name(&self) -> &'static str {
-        match self {
-            Command::HelloRequest => "hello",
-            Command::Acknowledge(_) => "ack",
-            Command::NewRun => "new_run",
-            Command::Configure(_) => "configure",
-        }
-    }
-}
 
 /// One command with its counter: the host numbers its commands 1, 2, 3, …
 /// above the last counter the controller accepted, and the controller

@@ -1,7 +1,8 @@
-//! A command's body, `(counter, Command)` in postcard's encoding, parsed by
-//! hand on the controller.
+//! What the host asks of the controller ([`Command`]), and a command's body,
+//! `(counter, Command)` in postcard's encoding, parsed by hand on the
+//! controller.
 //!
-//! Where it sits: inside [`decode_command`](super::decode_command), after
+//! Where it sits: inside `wire::decode_command`, after
 //! the CRC and before the MAC check. The derived serde visitors for a whole
 //! [`RigConfig`] (some fifty fields, each with its own error paths) are
 //! about 4 KB of a controller's flash; this reader is a few hundred bytes.
@@ -16,12 +17,44 @@
 //! struct, array       the fields in order, no length
 //! ```
 
-use super::command::Command;
+use serde::{Deserialize, Serialize};
+
 use super::error::Malformed;
 use crate::alarm::{Alarms, Rule, RuleId, Severity};
 use crate::config::RigConfig;
 use crate::diagnosis::Losses;
 use crate::monitor::{Health, Mode, Steady, Uncertainty};
+
+/// What the host asks of the controller.
+// No heap in core: a configuration travels by value.
+#[allow(clippy::large_enum_variant)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Command {
+    /// Send a Hello now. Changes nothing, so it is honoured without a key
+    /// or a valid tag.
+    HelloRequest,
+    /// Acknowledge one rule's alarm, or (`None`) every active alarm.
+    Acknowledge(Option<RuleId>),
+    /// Start a new run at the next window boundary: the run totals start
+    /// afresh and the run counter in the Hello goes up by one.
+    NewRun,
+    /// Replace the whole configuration at the next window boundary; a new
+    /// run starts under it and the next Hello carries its digest.
+    Configure(RigConfig),
+}
+
+impl Command {
+    /// The command's name in logs and on the control socket.
+    pub const fn name(&self) -> &'static str {
+        match self {
+            Command::HelloRequest => "hello",
+            Command::Acknowledge(_) => "ack",
+            Command::NewRun => "new_run",
+            Command::Configure(_) => "configure",
+        }
+    }
+}
 
 /// The bytes still to read.
 struct Reader<'a> {

@@ -49,9 +49,10 @@ mod tests;
 
 pub use codec::{decode, encode};
 pub use command::{
-    Addressee, Authenticator, Command, CommandFrame, CommandKey, CommandReceiver, KeyError,
-    Received, ReceiverStats, decode_command, encode_command, hmac_sha256, tag_prefix,
+    Addressee, Authenticator, CommandFrame, CommandKey, CommandReceiver, KeyError, Received,
+    ReceiverStats, decode_command, encode_command, hmac_sha256, tag_prefix,
 };
+pub use command_body::Command;
 pub use decoder::{Decoder, DecoderStats};
 pub use error::{FrameError, Malformed, WireError};
 pub use format::{MAC_LEN, MAX_COMMAND_LEN, MAX_FRAME_LEN, PROTOCOL_VERSION, SUMMARY_MAX_WIRE_LEN};

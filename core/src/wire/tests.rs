@@ -230,7 +230,7 @@ mod command_body {
 
     use proptest::prelude::*;
 
-    use super::super::command::Command;
+    use super::super::command_body::Command;
     use super::super::command_body::take_command;
     use super::super::error::Malformed;
     use super::super::format::CRC;
