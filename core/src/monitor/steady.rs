@@ -74,6 +74,13 @@ pub(super) struct SteadyTracker<R> {
     done: [Span<R>; BUCKETS],
     /// Merge of `done`, refreshed when a bucket completes.
     done_merged: Span<R>,
+    /// Merge of the complete buckets that outlive the next rotation (all
+    /// but the oldest), built one bucket per sample while the current one
+    /// fills: `survivors` of them so far, oldest first. When the current
+    /// bucket closes, `done_merged` is this merge and the closed bucket, so
+    /// no sample pays for merging every bucket.
+    surviving: Span<R>,
+    survivors: usize,
     next: usize,
     completed: usize,
     /// Absolute part of each band (the temperatures), and relative part (the
@@ -98,6 +105,8 @@ impl<R: Real> SteadyTracker<R> {
             current: Span::empty(),
             done: [Span::empty(); BUCKETS],
             done_merged: Span::empty(),
+            surviving: Span::empty(),
+            survivors: 0,
             next: 0,
             completed: 0,
             band_abs: [s.hot_band_k, s.cold_band_k, z, z, z].map(R::from_f64),
@@ -120,6 +129,8 @@ impl<R: Real> SteadyTracker<R> {
         self.current = Span::empty();
         self.done = [Span::empty(); BUCKETS];
         self.done_merged = Span::empty();
+        self.surviving = Span::empty();
+        self.survivors = 0;
         self.completed = 0;
         self.next = 0;
         self.steady = false;
@@ -140,6 +151,14 @@ impl<R: Real> SteadyTracker<R> {
                 // Moved out rather than copied and cleared: one copy, and no
                 // memmove routine in a controller's image.
                 let closed_span = core::mem::replace(&mut self.current, Span::empty());
+                if closed == 0 {
+                    // The usual close: one bucket, after the merge of the
+                    // others was built sample by sample.
+                    self.merge_survivors(BUCKETS - 1);
+                    let mut merged = core::mem::replace(&mut self.surviving, Span::empty());
+                    merged.merge(&closed_span);
+                    self.done_merged = merged;
+                }
                 if let Some(slot) = self.done.get_mut(self.next) {
                     *slot = closed_span;
                 }
@@ -152,12 +171,19 @@ impl<R: Real> SteadyTracker<R> {
             if elapsed >= self.bucket_ms {
                 self.bucket_start_ms = t_ms;
             }
-            let mut merged = Span::empty();
-            for b in &self.done {
-                merged.merge(b);
+            if closed > 1 {
+                // A gap closed empty buckets too: merge them all.
+                let mut merged = Span::empty();
+                for b in &self.done {
+                    merged.merge(b);
+                }
+                self.done_merged = merged;
             }
-            self.done_merged = merged;
+            self.surviving = Span::empty();
+            self.survivors = 0;
             rotated = true;
+        } else {
+            self.merge_survivors(self.survivors + 1);
         }
         let widened = self.current.include(v);
         if self.completed < BUCKETS {
@@ -176,5 +202,67 @@ impl<R: Real> SteadyTracker<R> {
         }
         self.steady = steady;
         steady
+    }
+
+    /// Merges into `surviving` the next complete buckets, oldest first,
+    /// until `until` of the `BUCKETS − 1` newest are in: the bucket at
+    /// `next`, the oldest, is left out, since the next close replaces it.
+    #[inline]
+    fn merge_survivors(&mut self, until: usize) {
+        while self.survivors < until.min(BUCKETS - 1) {
+            self.survivors += 1;
+            if let Some(b) = self.done.get((self.next + self.survivors) % BUCKETS) {
+                self.surviving.merge(b);
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::RigConfig;
+
+    /// The merge kept for the complete buckets, built one bucket per sample,
+    /// is the merge of every complete bucket after each sample, through
+    /// irregular spacing and gaps that close several buckets at once.
+    #[test]
+    fn merged_buckets_match_a_full_merge() {
+        let config = RigConfig::default();
+        let mut tracker = SteadyTracker::<f32>::new(&config);
+        let bucket_ms = tracker.bucket_ms;
+        // A fixed linear congruential sequence: any stream would do.
+        let mut state = 0x2545_f491_u32;
+        let mut next = move || {
+            state = state.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            state >> 8
+        };
+        let mut t_ms = 0u32;
+        for i in 0..20_000u32 {
+            let r = next();
+            t_ms += match r % 97 {
+                0 => bucket_ms * (1 + r % 3),
+                1 => bucket_ms / 2,
+                _ => 50 + r % 250,
+            };
+            let x = (next() % 1000) as f32 / 100.0;
+            let v = [600.0 + x, 300.0 - x, 1000.0 + 3.0 * x, 150.0 - x, 850.0 + x];
+            let steady = tracker.push(t_ms, &v);
+
+            let mut full = Span::empty();
+            for b in &tracker.done {
+                full.merge(b);
+            }
+            assert_eq!(tracker.done_merged.min, full.min, "sample {i}");
+            assert_eq!(tracker.done_merged.max, full.max, "sample {i}");
+            if tracker.completed == BUCKETS {
+                full.merge(&tracker.current);
+                let in_band = (0..STEADY_CHANNELS).all(|c| {
+                    let (lo, hi) = (full.min[c], full.max[c]);
+                    hi - lo <= tracker.band_abs[c] + tracker.band_rel[c] * hi.abs().max(lo.abs())
+                });
+                assert_eq!(steady, in_band, "sample {i}");
+            }
+        }
     }
 }
