@@ -477,6 +477,24 @@ impl<R: Real> Integrals<R> {
     /// `T_h` not above `T_c`), its rule clears whatever the readings, and so
     /// it does here, by the same comparisons.
     pub(super) fn second_law_clear(&self, p: &Prepared<R>, b: &ClearBands<R>) -> bool {
+        // The usual call, every rule normal, has no deadband but near
+        // Carnot's: the terms of the others are then left out rather than
+        // multiplied by zero (a software multiplication on a Cortex-M0).
+        let z = R::ZERO;
+        if b.beyond == z && b.entropy == z && b.balance == z {
+            self.second_law_clear_at::<false>(p, b)
+        } else {
+            self.second_law_clear_at::<true>(p, b)
+        }
+    }
+
+    /// [`Integrals::second_law_clear`], with the deadbands of
+    /// `beyond_carnot`, `negative_entropy_production` and `energy_balance`
+    /// read only if `BANDED` (else they are 0).
+    #[inline(always)]
+    fn second_law_clear_at<const BANDED: bool>(&self, p: &Prepared<R>, b: &ClearBands<R>) -> bool {
+        // `x + band·y`, which is `x` when the deadbands are 0.
+        let plus = |x: R, band: R, y: R| if BANDED { x + band * y } else { x };
         let eps = R::from_f32(CLEAR_MARGIN);
         let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
         let (si, so) = (self.entropy_in_j_per_k, self.entropy_out_j_per_k);
@@ -494,9 +512,9 @@ impl<R: Real> Integrals<R> {
                     Mode::Engine => {
                         !positive(qi) || {
                             let ws = w * so;
-                            let beyond = ws - d + b.beyond * h;
+                            let beyond = plus(ws - d, b.beyond, h);
                             let near = b.near * d - ws;
-                            beyond < -eps * (ws.abs() + sd + b.beyond * h)
+                            beyond < -eps * plus(ws.abs() + sd, b.beyond, h)
                                 && near > eps * (ws.abs() + b.near.abs() * sd)
                         }
                     }
@@ -510,9 +528,9 @@ impl<R: Real> Integrals<R> {
                             (qo, c, si)
                         };
                         !positive(w) || {
-                            let beyond = top * d - bound * w + b.beyond * w * d;
+                            let beyond = plus(top * d - bound * w, b.beyond, w * d);
                             let wn = w * per;
-                            beyond < -eps * ((top.abs() + b.beyond * w) * sd + bound.abs() * w)
+                            beyond < -eps * (plus(top.abs(), b.beyond, w) * sd + bound.abs() * w)
                                 && (!positive(top)
                                     || b.near * wn - d > eps * (b.near.abs() * wn + sd))
                         }
@@ -530,20 +548,21 @@ impl<R: Real> Integrals<R> {
         let sl = qi.abs() + w.abs() + qo.abs();
         let entropy_rule = !(positive(dur) && positive(si)) || {
             let gap = so - si;
-            let se = so.abs() + si * (R::ONE + b.entropy);
+            let se = plus(so.abs() + si, b.entropy, si);
             if !self.heat_out_measured {
-                sign * gap - b.entropy * si > eps * se
+                plus(sign * gap, -b.entropy, si) > eps * se
             } else {
                 match p.ambient {
                     Some(t0) => {
                         !positive(t0)
-                            || sign * (gap * t0 + loss) - b.entropy * si * t0 > eps * (se * t0 + sl)
+                            || plus(sign * (gap * t0 + loss), -b.entropy, si * t0)
+                                > eps * (se * t0 + sl)
                     }
                     // T0 = ∫T_cold dt / duration.
                     None => {
                         let ct = self.cold_temperature_integral_k_s;
                         !positive(ct)
-                            || sign * (gap * ct + loss * dur) - b.entropy * si * ct
+                            || plus(sign * (gap * ct + loss * dur), -b.entropy, si * ct)
                                 > eps * (se * ct + sl * dur)
                     }
                 }
@@ -553,7 +572,7 @@ impl<R: Real> Integrals<R> {
         // Q_loss > db·Q_in, with heat out measured.
         let balance_rule = !self.heat_out_measured
             || !positive(qi)
-            || sign * loss - b.balance * qi > eps * (sl + b.balance * qi);
+            || plus(sign * loss, -b.balance, qi) > eps * plus(sl, b.balance, qi);
 
         entropy_rule && balance_rule
     }
