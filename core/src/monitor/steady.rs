@@ -34,7 +34,8 @@ impl<R: Real> Span<R> {
         }
     }
 
-    #[inline]
+    // One copy in the image: it is called from four places.
+    #[inline(never)]
     fn merge(&mut self, other: &Self) {
         lanes::<STEADY_CHANNELS>(|i| {
             self.min[i] = lesser(self.min[i], other.min[i]);
@@ -172,12 +173,7 @@ impl<R: Real> SteadyTracker<R> {
                 self.bucket_start_ms = t_ms;
             }
             if closed > 1 {
-                // A gap closed empty buckets too: merge them all.
-                let mut merged = Span::empty();
-                for b in &self.done {
-                    merged.merge(b);
-                }
-                self.done_merged = merged;
+                self.merge_all();
             }
             self.surviving = Span::empty();
             self.survivors = 0;
@@ -204,10 +200,22 @@ impl<R: Real> SteadyTracker<R> {
         steady
     }
 
+    /// `done_merged` from every complete bucket: after a gap that closed
+    /// empty buckets too.
+    #[cold]
+    #[inline(never)]
+    fn merge_all(&mut self) {
+        let mut merged = Span::empty();
+        for b in &self.done {
+            merged.merge(b);
+        }
+        self.done_merged = merged;
+    }
+
     /// Merges into `surviving` the next complete buckets, oldest first,
     /// until `until` of the `BUCKETS − 1` newest are in: the bucket at
     /// `next`, the oldest, is left out, since the next close replaces it.
-    #[inline]
+    #[inline(never)]
     fn merge_survivors(&mut self, until: usize) {
         while self.survivors < until.min(BUCKETS - 1) {
             self.survivors += 1;
