@@ -839,12 +839,18 @@ fn ms(s: f64) -> u32 {
     }
 }
 
+// `AlarmSet::not_normal` has a bit per rule.
+const _: () = assert!(RuleId::COUNT <= u16::BITS as usize);
+
 /// The state machines of every rule.
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct AlarmSet {
     limits: Limits,
     states: [AlarmState; RuleId::COUNT],
+    /// Bit `i` set when rule `i` is not `Normal`: the usual sample asks
+    /// whether all are, which is then one comparison.
+    not_normal: u16,
     enabled: [bool; RuleId::COUNT],
     severity: [Severity; RuleId::COUNT],
     latching: [bool; RuleId::COUNT],
@@ -859,6 +865,7 @@ impl AlarmSet {
         Self {
             limits: Limits::new(config),
             states: [AlarmState::Normal; RuleId::COUNT],
+            not_normal: 0,
             enabled: RuleId::ALL.map(|id| rule(id).enabled),
             severity: RuleId::ALL.map(|id| rule(id).severity),
             latching: RuleId::ALL.map(|id| rule(id).latching),
@@ -895,7 +902,7 @@ impl AlarmSet {
                     events.push(id, EventKind::Cleared, self.severity[i]);
                 }
             } else {
-                self.states[i] = state;
+                self.set_state(i, state);
             }
         }
         events
@@ -952,7 +959,7 @@ impl AlarmSet {
     fn calm<I: RuleInputs>(&self, inputs: &I) -> bool {
         type R<I> = <I as RuleInputs>::Real;
         let (l, s) = (&self.limits, &self.limits.single);
-        if self.states != [AlarmState::Normal; RuleId::COUNT] || inputs.faults().any() {
+        if self.not_normal != 0 || inputs.faults().any() {
             return false;
         }
         let hot_max = R::<I>::pick(s.hot_max_k, l.hot_max_k);
@@ -1010,7 +1017,7 @@ impl AlarmSet {
     fn step(&mut self, id: RuleId, t: u32, verdict: Verdict) -> Option<EventKind> {
         let i = id.index();
         if !self.enabled[i] {
-            self.states[i] = AlarmState::Normal;
+            self.set_state(i, AlarmState::Normal);
             return None;
         }
         let on = self.on_delay_ms[i];
@@ -1056,8 +1063,22 @@ impl AlarmSet {
             }
             (AlarmState::Unacknowledged, _) => (AlarmState::Unacknowledged, None),
         };
-        self.states[i] = next;
+        self.set_state(i, next);
         event
+    }
+
+    /// Rule `i` goes to `state`.
+    #[inline]
+    fn set_state(&mut self, i: usize, state: AlarmState) {
+        if let Some(slot) = self.states.get_mut(i) {
+            *slot = state;
+            let bit = 1u16 << i;
+            if state == AlarmState::Normal {
+                self.not_normal &= !bit;
+            } else {
+                self.not_normal |= bit;
+            }
+        }
     }
 
     /// The off-delay has run out: reset, unless latching and unacknowledged.
@@ -1093,7 +1114,7 @@ impl AlarmSet {
             AlarmState::Unacknowledged => (AlarmState::Normal, true),
             _ => return events,
         };
-        self.states[i] = next;
+        self.set_state(i, next);
         let severity = self.severity[i];
         events.push(rule, EventKind::Acknowledged, severity);
         if reset {
