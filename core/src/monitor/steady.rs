@@ -3,7 +3,7 @@
 
 use crate::num::{Real, lanes};
 
-use super::settings::MonitorConfig;
+use super::settings::{MonitorConfig, Steady};
 
 const BUCKETS: usize = 8;
 pub(super) const STEADY_CHANNELS: usize = 5;
@@ -96,8 +96,11 @@ pub(super) struct SteadyTracker<R> {
 
 impl<R: Real> SteadyTracker<R> {
     pub(super) fn new(config: &impl MonitorConfig) -> Self {
-        let config = &config.monitor_settings();
-        let s = &config.steady;
+        Self::with(&config.monitor_settings().steady)
+    }
+
+    /// A tracker for the steady-state settings `s`.
+    fn with(s: &Steady) -> Self {
         let bucket_ms = (s.duration_s * 1000.0 / BUCKETS as f64).clamp(1.0, u32::MAX as f64) as u32;
         let z = 0.0;
         Self {
@@ -229,15 +232,13 @@ impl<R: Real> SteadyTracker<R> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::config::RigConfig;
 
     /// The merge kept for the complete buckets, built one bucket per sample,
     /// is the merge of every complete bucket after each sample, through
     /// irregular spacing and gaps that close several buckets at once.
     #[test]
     fn merged_buckets_match_a_full_merge() {
-        let config = RigConfig::default();
-        let mut tracker = SteadyTracker::<f32>::new(&config);
+        let mut tracker = SteadyTracker::<f32>::with(&Steady::default());
         let bucket_ms = tracker.bucket_ms;
         // A fixed linear congruential sequence: any stream would do.
         let mut state = 0x2545_f491_u32;
