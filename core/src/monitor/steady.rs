@@ -181,7 +181,8 @@ impl<R: Real> SteadyTracker<R> {
             self.surviving = Span::empty();
             self.survivors = 0;
             rotated = true;
-        } else {
+        } else if self.survivors < BUCKETS - 1 {
+            // One bucket per sample; most samples have none left to merge.
             self.merge_survivors(self.survivors + 1);
         }
         let widened = self.current.include(v);
