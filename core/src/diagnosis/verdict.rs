@@ -258,22 +258,27 @@ fn diagnose_with<R: Real, const STATS: bool>(
         .all(|(i, x)| x.is_none_or(|x| holds(i, x.value, x.u)));
 
     // The active set: the equalities, and the second law when σ̇ < 0.
-    let mut rows = [0usize; MAX_ROWS];
-    let mut n = 0;
-    for (i, x) in residuals.iter().enumerate() {
+    // A bit per relation, so that no index can fall outside the arrays.
+    let mut active = 0u8;
+    for (&rel, x) in Relation::ALL.iter().zip(&residuals) {
         if let Some(x) = x
-            && (i != Relation::SecondLaw as usize || x.value < R::ZERO)
+            && (rel != Relation::SecondLaw || x.value < R::ZERO)
         {
-            rows[n] = i;
-            n += 1;
+            active |= 1 << rel as u8;
         }
     }
+    let rows = || {
+        Relation::ALL
+            .into_iter()
+            .filter(move |&rel| active & (1 << rel as u8) != 0)
+    };
+    let n = active.count_ones() as usize;
     let mut out = Diagnosis {
         residuals,
         first_law_unavailable,
         consistent,
         gamma: R::ZERO,
-        active: rows.iter().take(n).fold(0, |m, i| m | (1 << *i)),
+        active,
         candidates: Vec::new(),
         suspect: None,
     };
@@ -283,9 +288,11 @@ fn diagnose_with<R: Real, const STATS: bool>(
     let rec = if STATS {
         let mut m = [[R::ZERO; MAX_COLS]; MAX_ROWS];
         let mut ract = [R::ZERO; MAX_ROWS];
-        for (dst, (&i, rv)) in m.iter_mut().zip(rows.iter().zip(ract.iter_mut())).take(n) {
-            dst[..COLS].copy_from_slice(&a[i]);
-            *rv = r[i].unwrap_or(R::ZERO);
+        for ((dst, rv), rel) in m.iter_mut().zip(ract.iter_mut()).zip(rows()) {
+            if let Some(d) = dst.get_mut(..COLS) {
+                d.copy_from_slice(&a[rel as usize]);
+            }
+            *rv = r[rel as usize].unwrap_or(R::ZERO);
         }
         let system = System::<R>::from_parts(n, COLS, m, var)?;
         let rec = system.reconcile(&ract[..n])?;
@@ -301,9 +308,9 @@ fn diagnose_with<R: Real, const STATS: bool>(
     // The equalities alone (at most two: the first law and the hot pair),
     // for each channel's own estimate.
     let mut eq = Rows::default();
-    for (i, x) in residuals.iter().enumerate() {
-        if x.is_some() && i != Relation::SecondLaw as usize {
-            eq.push(i);
+    for (&rel, x) in Relation::ALL.iter().zip(&residuals) {
+        if x.is_some() && rel != Relation::SecondLaw {
+            eq.push(rel);
         }
     }
     let fit = Fit {
@@ -330,7 +337,7 @@ fn diagnose_with<R: Real, const STATS: bool>(
     };
     let mut pair = Rows::default();
     if residuals[Relation::HotPair as usize].is_some() {
-        pair.push(Relation::HotPair as usize);
+        pair.push(Relation::HotPair);
     }
     let before_learning = Fit {
         equalities: pair.weights(&a, &var).map(|w| (pair, w)),
@@ -342,7 +349,7 @@ fn diagnose_with<R: Real, const STATS: bool>(
     for (j, &channel) in COLUMNS.iter().enumerate() {
         // A candidate moves an active relation (V is positive definite,
         // so that is GLR > 0).
-        let moves = rows.iter().take(n).any(|&i| a[i][j] != R::ZERO);
+        let moves = rows().any(|rel| a[rel as usize].get(j).is_some_and(|&x| x != R::ZERO));
         if !above(var[j], R::ZERO) || !moves {
             continue;
         }
@@ -408,22 +415,31 @@ fn diagnose_with<R: Real, const STATS: bool>(
 }
 
 /// Up to two relations (rows) a bias is fitted to.
-#[derive(Clone, Copy, Debug, Default)]
+#[derive(Clone, Copy, Debug)]
 struct Rows {
     n: usize,
-    i: [usize; 2],
+    i: [Relation; 2],
+}
+
+impl Default for Rows {
+    fn default() -> Self {
+        Self {
+            n: 0,
+            i: [Relation::FirstLaw; 2],
+        }
+    }
 }
 
 impl Rows {
-    fn push(&mut self, row: usize) {
+    fn push(&mut self, row: Relation) {
         if let Some(slot) = self.i.get_mut(self.n) {
             *slot = row;
             self.n += 1;
         }
     }
 
-    fn rows(&self) -> &[usize] {
-        &self.i[..self.n]
+    fn rows(&self) -> &[Relation] {
+        self.i.get(..self.n).unwrap_or(&[])
     }
 
     // Out of line: a controller's flash is short.
@@ -432,8 +448,10 @@ impl Rows {
     /// scale) or there are no rows.
     #[inline(never)]
     fn weights<R: Real>(&self, a: &[[R; COLS]; 3], var: &[R; MAX_COLS]) -> Option<[[R; 2]; 2]> {
-        let cov =
-            |p: usize, q: usize| (0..COLS).fold(R::ZERO, |s, j| s + a[p][j] * a[q][j] * var[j]);
+        let cov = |p: Relation, q: Relation| {
+            let (p, q) = (&a[p as usize], &a[q as usize]);
+            (0..COLS).fold(R::ZERO, |s, j| s + p[j] * q[j] * var[j])
+        };
         match *self.rows() {
             [p] => {
                 let v = cov(p, p);
@@ -491,13 +509,16 @@ impl<R: Real> Fit<'_, R> {
         let none = if power { R::ONE } else { R::ZERO };
         let mut p = none;
         if let Some((rows, w)) = &self.equalities
-            && rows.rows().iter().any(|&i| self.a[i][j] != R::ZERO)
+            && rows
+                .rows()
+                .iter()
+                .any(|&rel| self.a[rel as usize].get(j).is_some_and(|&x| x != R::ZERO))
         {
             p = self.least_squares(rows, w, channel, none, u)?;
         }
         let mut binds = false;
         let mut second = Rows::default();
-        second.push(Relation::SecondLaw as usize);
+        second.push(Relation::SecondLaw);
         let sigma = |p: R| self.rows_at(&second, channel, p).map(|r| r[0]);
         if self.second_law_fails && sigma(p)? < R::ZERO && self.a[1][j] != R::ZERO {
             let one = [[R::ONE, R::ZERO], [R::ZERO, R::ZERO]];
@@ -544,8 +565,8 @@ impl<R: Real> Fit<'_, R> {
         let b = to_bias(!channel.is_temperature(), p);
         let r = self.window.corrected(channel, b)?.residuals(self.ua);
         let mut out = [R::ZERO; 2];
-        for (o, &i) in out.iter_mut().zip(rows.rows()) {
-            *o = r[i]?;
+        for (o, &rel) in out.iter_mut().zip(rows.rows()) {
+            *o = r[rel as usize]?;
         }
         Some(out)
     }

@@ -44,18 +44,19 @@ impl<R: Real> StuckCheck<R> {
         }
         let mut stuck = 0;
         // The second hot sensor is checked by the diagnosis, against the first.
-        for (i, ch) in Channel::ALL.iter().take(STEADY_CHANNELS).enumerate() {
+        let counters = self.last.iter_mut().zip(self.repeats.iter_mut());
+        for ((ch, &x), (last, repeats)) in Channel::ALL.iter().zip(v).zip(counters) {
             if present & ch.bit() == 0 {
-                self.repeats[i] = 0;
+                *repeats = 0;
                 continue;
             }
-            if v[i] == self.last[i] {
-                self.repeats[i] = self.repeats[i].saturating_add(1);
+            if x == *last {
+                *repeats = repeats.saturating_add(1);
             } else {
-                self.repeats[i] = 1;
-                self.last[i] = v[i];
+                *repeats = 1;
+                *last = x;
             }
-            if self.repeats[i] >= self.limit {
+            if *repeats >= self.limit {
                 stuck |= ch.bit();
             }
         }
