@@ -117,10 +117,10 @@ pub(super) fn integrands<R: Real>(s: &Sample<R>, measured: bool) -> Terms<R> {
     }
 }
 
-/// The trapezoid between integrands `a` and `b`, `dt` seconds apart.
+/// The trapezoid between integrands `a` and `b`, `dt_ms` milliseconds apart.
 #[inline]
-pub(super) fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt: R) -> Terms<R> {
-    let h = dt * R::from_f64(0.5);
+pub(super) fn trapezoid<R: Real>(a: &Terms<R>, b: &Terms<R>, dt_ms: u32) -> Terms<R> {
+    let h = R::half_ms(dt_ms);
     let mut out = [R::ZERO; TERMS];
     lanes::<TERMS>(|i| out[i] = h * (a[i] + b[i]));
     out

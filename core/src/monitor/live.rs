@@ -309,7 +309,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         let entry = match dt_ms {
             Some(dt_ms) => {
                 self.totals_ms += u64::from(dt_ms);
-                trapezoid(&self.prev_point, &point, R::from_ms(u64::from(dt_ms)))
+                trapezoid(&self.prev_point, &point, dt_ms)
             }
             None => [R::ZERO; TERMS],
         };
