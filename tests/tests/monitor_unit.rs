@@ -121,3 +121,74 @@ fn nothing_available_before_two_samples() {
     assert_eq!(w.carnot_efficiency, None);
     assert_eq!(w.entropy_rate_w_per_k, None);
 }
+
+/// Every kind of bad reading on every channel is refused with its own
+/// reason, in `f32` and `f64`, and never integrated: NaN and infinities as
+/// non-finite, temperatures outside the configured range and powers beyond
+/// ±`MAX_POWER_W` as out of range. A temperature range too wide for the
+/// monitor's type (1e300 K does not fit an `f32`) still refuses infinity.
+#[test]
+fn each_bad_reading_is_refused_with_its_reason() {
+    fn run<R: heatbound::num::Real + core::fmt::Debug>(config: &RigConfig, wide: bool) {
+        let r = R::from_f64;
+        let good = |t_ms: u32| Sample::<R> {
+            t_ms,
+            t_hot_k: r(600.0),
+            t_cold_k: r(300.0),
+            heat_in_w: r(1000.0),
+            work_w: r(150.0),
+            heat_out_w: Some(r(850.0)),
+            t_hot2_k: Some(r(601.0)),
+        };
+        let p = f64::from(MAX_POWER_W) * 2.0;
+        let mut cases = std::vec![];
+        for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            cases.push((Channel::Hot, bad, Invalid::NonFinite(Channel::Hot)));
+            cases.push((Channel::Cold, bad, Invalid::NonFinite(Channel::Cold)));
+            cases.push((Channel::Hot2, bad, Invalid::NonFinite(Channel::Hot2)));
+            cases.push((Channel::HeatIn, bad, Invalid::NonFinite(Channel::HeatIn)));
+            cases.push((Channel::Work, bad, Invalid::NonFinite(Channel::Work)));
+            cases.push((Channel::HeatOut, bad, Invalid::NonFinite(Channel::HeatOut)));
+        }
+        for c in [Channel::HeatIn, Channel::Work, Channel::HeatOut] {
+            cases.push((c, p, Invalid::OutOfRange(c)));
+            cases.push((c, -p, Invalid::OutOfRange(c)));
+        }
+        if !wide {
+            // The default range is 1 K to 3000 K.
+            for c in [Channel::Hot, Channel::Cold, Channel::Hot2] {
+                cases.push((c, 0.5, Invalid::OutOfRange(c)));
+                cases.push((c, 3500.0, Invalid::OutOfRange(c)));
+            }
+        }
+        for (channel, value, expected) in cases {
+            let mut m: Monitor<64, R> = Monitor::new(config).unwrap();
+            assert_eq!(m.push(&good(0)), Pushed::Started);
+            let mut s = good(1000);
+            let v = r(value);
+            match channel {
+                Channel::Hot => s.t_hot_k = v,
+                Channel::Cold => s.t_cold_k = v,
+                Channel::Hot2 => s.t_hot2_k = Some(v),
+                Channel::HeatIn => s.heat_in_w = v,
+                Channel::Work => s.work_w = v,
+                Channel::HeatOut => s.heat_out_w = Some(v),
+            }
+            assert_eq!(
+                m.push(&s),
+                Pushed::Invalid(expected),
+                "{channel:?} = {value} ({})",
+                core::any::type_name::<R>()
+            );
+            assert_eq!(m.valid_samples(), 1);
+            assert_eq!(m.totals_integrals().duration_s, R::ZERO);
+        }
+    }
+    let default = RigConfig::default();
+    let mut wide = default;
+    wide.health.max_temperature_k = 1e300;
+    run::<f32>(&default, false);
+    run::<f64>(&default, false);
+    run::<f32>(&wide, true);
+    run::<f64>(&wide, true);
+}

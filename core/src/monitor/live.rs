@@ -123,8 +123,9 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             refresh_after: config.window_samples - 1,
             max_gap_ms: to_ms(config.max_gap_s),
             stale_ms: to_ms(config.health.stale_s),
-            t_min_k: R::from_f64(config.health.min_temperature_k),
-            t_max_k: R::from_f64(config.health.max_temperature_k),
+            // Finite bounds: a reading inside them is finite (see `check`).
+            t_min_k: finite_bound(R::from_f64(config.health.min_temperature_k)),
+            t_max_k: finite_bound(R::from_f64(config.health.max_temperature_k)),
             measured: None,
             hot2: None,
             prev_ms: None,
@@ -181,9 +182,31 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         Ok(())
     }
 
+    /// Why `s` cannot be integrated, if it cannot.
+    fn check(&self, s: &Sample<R>) -> Result<(), Invalid> {
+        // The usual sample, told by six comparisons: the bounds are finite
+        // and NaN fails every comparison, so readings inside them are
+        // finite. Anything else is classified reading by reading.
+        let (lo, hi) = (self.t_min_k, self.t_max_k);
+        let max_power = R::from_f32(MAX_POWER_W);
+        let usual = (s.t_hot_k >= lo)
+            & (s.t_hot_k <= hi)
+            & (s.t_cold_k >= lo)
+            & (s.t_cold_k <= hi)
+            & (s.heat_in_w.abs() <= max_power)
+            & (s.work_w.abs() <= max_power);
+        if !usual {
+            return self.check_each(s);
+        }
+        self.check_hot2(s)?;
+        self.check_rest(s)
+    }
+
     // Written out channel by channel: a loop over (value, channel) pairs is
     // not unrolled when the firmware is built for size.
-    fn check(&self, s: &Sample<R>) -> Result<(), Invalid> {
+    #[cold]
+    #[inline(never)]
+    fn check_each(&self, s: &Sample<R>) -> Result<(), Invalid> {
         let finite = |v: R, c| {
             if v.is_finite() {
                 Ok(())
@@ -195,22 +218,9 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         finite(s.t_cold_k, Channel::Cold)?;
         finite(s.heat_in_w, Channel::HeatIn)?;
         finite(s.work_w, Channel::Work)?;
-        let (lo, hi) = (self.t_min_k, self.t_max_k);
-        let in_range = |v: R, c| {
-            if v >= lo && v <= hi {
-                Ok(())
-            } else {
-                Err(Invalid::OutOfRange(c))
-            }
-        };
-        in_range(s.t_hot_k, Channel::Hot)?;
-        in_range(s.t_cold_k, Channel::Cold)?;
-        match (self.hot2, s.t_hot2_k) {
-            (_, Some(t)) if !t.is_finite() => return Err(Invalid::NonFinite(Channel::Hot2)),
-            (_, Some(t)) => in_range(t, Channel::Hot2)?,
-            (Some(true), None) => return Err(Invalid::MissingHot2),
-            _ => {}
-        }
+        self.in_range(s.t_hot_k, Channel::Hot)?;
+        self.in_range(s.t_cold_k, Channel::Cold)?;
+        self.check_hot2(s)?;
         let max_power = R::from_f32(MAX_POWER_W);
         let bounded = |v: R, c| {
             if v.abs() <= max_power {
@@ -221,9 +231,34 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         };
         bounded(s.heat_in_w, Channel::HeatIn)?;
         bounded(s.work_w, Channel::Work)?;
+        self.check_rest(s)
+    }
+
+    #[inline]
+    fn in_range(&self, v: R, c: Channel) -> Result<(), Invalid> {
+        if v >= self.t_min_k && v <= self.t_max_k {
+            Ok(())
+        } else {
+            Err(Invalid::OutOfRange(c))
+        }
+    }
+
+    #[inline]
+    fn check_hot2(&self, s: &Sample<R>) -> Result<(), Invalid> {
+        match (self.hot2, s.t_hot2_k) {
+            (_, Some(t)) if !t.is_finite() => Err(Invalid::NonFinite(Channel::Hot2)),
+            (_, Some(t)) => self.in_range(t, Channel::Hot2),
+            (Some(true), None) => Err(Invalid::MissingHot2),
+            _ => Ok(()),
+        }
+    }
+
+    /// Heat out and the sample's time.
+    #[inline]
+    fn check_rest(&self, s: &Sample<R>) -> Result<(), Invalid> {
         match (self.measured, s.heat_out_w) {
             (_, Some(q)) if !q.is_finite() => return Err(Invalid::NonFinite(Channel::HeatOut)),
-            (_, Some(q)) if q.abs() > max_power => {
+            (_, Some(q)) if q.abs() > R::from_f32(MAX_POWER_W) => {
                 return Err(Invalid::OutOfRange(Channel::HeatOut));
             }
             (Some(true), None) => return Err(Invalid::MissingHeatOut),
@@ -476,5 +511,16 @@ impl<const N: usize, R: Real> Monitor<N, R> {
     /// Whether this run reads a second hot sensor (`None` before the first valid sample).
     pub fn hot2_measured(&self) -> Option<bool> {
         self.hot2
+    }
+}
+
+/// `x` clamped to the finite range (NaN stays NaN).
+fn finite_bound<R: Real>(x: R) -> R {
+    if x > R::MAX {
+        R::MAX
+    } else if x < -R::MAX {
+        -R::MAX
+    } else {
+        x
     }
 }
