@@ -939,6 +939,14 @@ impl AlarmSet {
         if self.calm(inputs) {
             return Events::at(t_ms);
         }
+        self.update_rules(t_ms, inputs)
+    }
+
+    /// [`AlarmSet::update`] past the calm test: every rule's verdict.
+    /// Out of line, so that the usual, calm sample does not pay for this
+    /// path's registers and stack.
+    #[inline(never)]
+    fn update_rules<I: RuleInputs>(&mut self, t_ms: u32, inputs: &I) -> Events {
         // Only a raised rule tells `Hold` from `Clear`: elsewhere (normal,
         // pending, latched unacknowledged) both leave it where it is.
         let raised = |id: RuleId| {
