@@ -498,7 +498,10 @@ impl<R: Real> Integrals<R> {
         let eps = R::from_f32(CLEAR_MARGIN);
         let (qi, w, qo) = (self.heat_in_j, self.work_j, self.heat_out_j);
         let (si, so) = (self.entropy_in_j_per_k, self.entropy_out_j_per_k);
-        let sign = if p.mode.is_reverse() { -R::ONE } else { R::ONE };
+        // The engine's sign convention: a negation, not a multiplication
+        // (a software one on a Cortex-M0).
+        let reverse = p.mode.is_reverse();
+        let sign = |x: R| if reverse { -x } else { x };
 
         // T_h = Q_in/S_in and T_c = Q_out/S_out: T_h − T_c = D/(S_in·S_out)
         // with D = Q_in·S_out − Q_out·S_in.
@@ -550,19 +553,19 @@ impl<R: Real> Integrals<R> {
             let gap = so - si;
             let se = plus(so.abs() + si, b.entropy, si);
             if !self.heat_out_measured {
-                plus(sign * gap, -b.entropy, si) > eps * se
+                plus(sign(gap), -b.entropy, si) > eps * se
             } else {
                 match p.ambient {
                     Some(t0) => {
                         !positive(t0)
-                            || plus(sign * (gap * t0 + loss), -b.entropy, si * t0)
+                            || plus(sign(gap * t0 + loss), -b.entropy, si * t0)
                                 > eps * (se * t0 + sl)
                     }
                     // T0 = ∫T_cold dt / duration.
                     None => {
                         let ct = self.cold_temperature_integral_k_s;
                         !positive(ct)
-                            || plus(sign * (gap * ct + loss * dur), -b.entropy, si * ct)
+                            || plus(sign(gap * ct + loss * dur), -b.entropy, si * ct)
                                 > eps * (se * ct + sl * dur)
                     }
                 }
@@ -572,7 +575,7 @@ impl<R: Real> Integrals<R> {
         // Q_loss > db·Q_in, with heat out measured.
         let balance_rule = !self.heat_out_measured
             || !positive(qi)
-            || plus(sign * loss, -b.balance, qi) > eps * plus(sl, b.balance, qi);
+            || plus(sign(loss), -b.balance, qi) > eps * plus(sl, b.balance, qi);
 
         entropy_rule && balance_rule
     }

@@ -158,7 +158,9 @@ impl<R: Real> SteadyTracker<R> {
                 if closed == 0 {
                     // The usual close: one bucket, after the merge of the
                     // others was built sample by sample.
-                    self.merge_survivors(BUCKETS - 1);
+                    if self.survivors < BUCKETS - 1 {
+                        self.merge_survivors(BUCKETS - 1);
+                    }
                     let mut merged = core::mem::replace(&mut self.surviving, Span::empty());
                     merged.merge(&closed_span);
                     self.done_merged = merged;
@@ -178,7 +180,7 @@ impl<R: Real> SteadyTracker<R> {
             if closed > 1 {
                 self.merge_all();
             }
-            self.surviving = Span::empty();
+            // `surviving` was moved out at the first close above.
             self.survivors = 0;
             rotated = true;
         } else if self.survivors < BUCKETS - 1 {
