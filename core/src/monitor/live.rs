@@ -285,15 +285,7 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         self.faults.stale = had_sample && since_last > self.stale_ms;
 
         if let Err(why) = self.check(s) {
-            self.invalid += 1;
-            self.faults.invalid = match why {
-                Invalid::NonFinite(c) | Invalid::OutOfRange(c) => c.bit(),
-                Invalid::MissingHeatOut => Channel::HeatOut.bit(),
-                Invalid::MissingHot2 => Channel::Hot2.bit(),
-                Invalid::RepeatedTime => 0,
-            };
-            self.update_fault_since(s.t_ms, since_last);
-            return Pushed::Invalid(why);
+            return self.refuse(why, s.t_ms, since_last);
         }
         self.faults.invalid = 0;
         let measured = *self.measured.get_or_insert(s.heat_out_w.is_some());
@@ -391,6 +383,21 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             self.steady_ms += u64::from(entry_ms);
         }
         outcome
+    }
+
+    /// Counts a sample refused for `why` and marks its channel faulty.
+    #[cold]
+    #[inline(never)]
+    fn refuse(&mut self, why: Invalid, t_ms: u32, since_last: u32) -> Pushed {
+        self.invalid += 1;
+        self.faults.invalid = match why {
+            Invalid::NonFinite(c) | Invalid::OutOfRange(c) => c.bit(),
+            Invalid::MissingHeatOut => Channel::HeatOut.bit(),
+            Invalid::MissingHot2 => Channel::Hot2.bit(),
+            Invalid::RepeatedTime => 0,
+        };
+        self.update_fault_since(t_ms, since_last);
+        Pushed::Invalid(why)
     }
 
     fn update_fault_since(&mut self, t_ms: u32, since_last: u32) {
