@@ -146,43 +146,10 @@ impl<R: Real> SteadyTracker<R> {
         if !self.started {
             self.restart(t_ms);
         }
-        let mut elapsed = t_ms.wrapping_sub(self.bucket_start_ms);
-        let mut rotated = false;
-        if elapsed >= self.bucket_ms {
-            // Close the current bucket, and any empty ones after it.
-            let mut closed = 0;
-            while elapsed >= self.bucket_ms && closed <= BUCKETS {
-                // Moved out rather than copied and cleared: one copy, and no
-                // memmove routine in a controller's image.
-                let closed_span = core::mem::replace(&mut self.current, Span::empty());
-                if closed == 0 {
-                    // The usual close: one bucket, after the merge of the
-                    // others was built sample by sample.
-                    if self.survivors < BUCKETS - 1 {
-                        self.merge_survivors(BUCKETS - 1);
-                    }
-                    let mut merged = core::mem::replace(&mut self.surviving, Span::empty());
-                    merged.merge(&closed_span);
-                    self.done_merged = merged;
-                }
-                if let Some(slot) = self.done.get_mut(self.next) {
-                    *slot = closed_span;
-                }
-                self.next = (self.next + 1) % BUCKETS;
-                self.completed = (self.completed + 1).min(BUCKETS);
-                self.bucket_start_ms = self.bucket_start_ms.wrapping_add(self.bucket_ms);
-                elapsed -= self.bucket_ms;
-                closed += 1;
-            }
-            if elapsed >= self.bucket_ms {
-                self.bucket_start_ms = t_ms;
-            }
-            if closed > 1 {
-                self.merge_all();
-            }
-            // `surviving` was moved out at the first close above.
-            self.survivors = 0;
-            rotated = true;
+        let elapsed = t_ms.wrapping_sub(self.bucket_start_ms);
+        let rotated = elapsed >= self.bucket_ms;
+        if rotated {
+            self.close(t_ms, elapsed);
         } else if self.survivors < BUCKETS - 1 {
             // One bucket per sample; most samples have none left to merge.
             self.merge_survivors(self.survivors + 1);
@@ -204,6 +171,45 @@ impl<R: Real> SteadyTracker<R> {
         }
         self.steady = steady;
         steady
+    }
+
+    /// Closes the current bucket, and any empty ones after it: once per
+    /// bucket, so out of line.
+    #[inline(never)]
+    fn close(&mut self, t_ms: u32, mut elapsed: u32) {
+        // Close the current bucket, and any empty ones after it.
+        let mut closed = 0;
+        while elapsed >= self.bucket_ms && closed <= BUCKETS {
+            // Moved out rather than copied and cleared: one copy, and no
+            // memmove routine in a controller's image.
+            let closed_span = core::mem::replace(&mut self.current, Span::empty());
+            if closed == 0 {
+                // The usual close: one bucket, after the merge of the
+                // others was built sample by sample.
+                if self.survivors < BUCKETS - 1 {
+                    self.merge_survivors(BUCKETS - 1);
+                }
+                let mut merged = core::mem::replace(&mut self.surviving, Span::empty());
+                merged.merge(&closed_span);
+                self.done_merged = merged;
+            }
+            if let Some(slot) = self.done.get_mut(self.next) {
+                *slot = closed_span;
+            }
+            self.next = (self.next + 1) % BUCKETS;
+            self.completed = (self.completed + 1).min(BUCKETS);
+            self.bucket_start_ms = self.bucket_start_ms.wrapping_add(self.bucket_ms);
+            elapsed -= self.bucket_ms;
+            closed += 1;
+        }
+        if elapsed >= self.bucket_ms {
+            self.bucket_start_ms = t_ms;
+        }
+        if closed > 1 {
+            self.merge_all();
+        }
+        // `surviving` was moved out at the first close above.
+        self.survivors = 0;
     }
 
     /// `done_merged` from every complete bucket: after a gap that closed
