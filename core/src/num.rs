@@ -61,6 +61,8 @@ pub trait Real:
     fn abs(self) -> Self;
     /// Whether the value is neither NaN nor infinite.
     fn is_finite(self) -> bool;
+    /// `self > 0`, false for NaN.
+    fn is_positive(self) -> bool;
 }
 
 impl Real for f32 {
@@ -112,6 +114,23 @@ impl Real for f32 {
     fn is_finite(self) -> bool {
         f32::is_finite(self)
     }
+    #[inline]
+    fn is_positive(self) -> bool {
+        // Without an FPU a comparison is a library call, and two integer
+        // comparisons of the bits tell the same.
+        if cfg!(all(target_arch = "arm", not(target_abi = "eabihf"))) {
+            positive_by_bits(self)
+        } else {
+            self > 0.0
+        }
+    }
+}
+
+/// `x > 0`, false for NaN, from the bits: above +0 and at most +∞.
+#[inline]
+fn positive_by_bits(x: f32) -> bool {
+    let bits = x.to_bits() as i32;
+    bits > 0 && bits <= 0x7f80_0000
 }
 
 impl Real for f64 {
@@ -158,6 +177,10 @@ impl Real for f64 {
     #[inline]
     fn is_finite(self) -> bool {
         f64::is_finite(self)
+    }
+    #[inline]
+    fn is_positive(self) -> bool {
+        self > 0.0
     }
 }
 
@@ -359,6 +382,32 @@ pub(crate) fn ratio<R: Real>(a: R, b: R) -> Option<R> {
 #[cfg(test)]
 mod tests {
     use super::Real;
+
+    /// The comparison by bits (used without an FPU) agrees with `x > 0`
+    /// on the special values and on a sweep of every 4,099th bit pattern.
+    #[test]
+    fn positive_by_bits_is_the_comparison() {
+        let special = [
+            0.0,
+            -0.0,
+            f32::MIN_POSITIVE,
+            -f32::MIN_POSITIVE,
+            f32::from_bits(1),
+            f32::from_bits(0x8000_0001),
+            f32::MAX,
+            f32::MIN,
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            f32::NAN,
+            -f32::NAN,
+            f32::from_bits(0x7f80_0001),
+            f32::from_bits(0xff80_0001),
+        ];
+        let sweep = (0..=u32::MAX / 4099).map(|i| f32::from_bits(i * 4099));
+        for x in special.into_iter().chain(sweep) {
+            assert_eq!(super::positive_by_bits(x), x > 0.0, "{:#010x}", x.to_bits());
+        }
+    }
 
     /// `half_ms` is `from_ms` halved to the bit, so a trapezoid's width
     /// costs one multiplication: every spacing up to a minute, and a

@@ -584,7 +584,7 @@ impl<R: Real> Integrals<R> {
 /// `x > 0`, false for NaN: `!positive(x)` is "not above zero".
 #[inline(always)]
 fn positive<R: Real>(x: R) -> bool {
-    x > R::ZERO
+    x.is_positive()
 }
 
 /// How far past its clear level a figure must be for
