@@ -18,12 +18,12 @@ struct Span<R> {
 
 #[inline]
 fn lesser<R: Real>(a: R, b: R) -> R {
-    if b < a { b } else { a }
+    if b.less_not_nan(a) { b } else { a }
 }
 
 #[inline]
 fn greater<R: Real>(a: R, b: R) -> R {
-    if b > a { b } else { a }
+    if a.less_not_nan(b) { b } else { a }
 }
 
 impl<R: Real> Span<R> {
@@ -49,11 +49,11 @@ impl<R: Real> Span<R> {
         let mut widened = false;
         lanes::<STEADY_CHANNELS>(|i| {
             let x = v[i];
-            if x < self.min[i] {
+            if x.less_not_nan(self.min[i]) {
                 self.min[i] = x;
                 widened = true;
             }
-            if x > self.max[i] {
+            if self.max[i].less_not_nan(x) {
                 self.max[i] = x;
                 widened = true;
             }
