@@ -192,3 +192,31 @@ fn each_bad_reading_is_refused_with_its_reason() {
     run::<f32>(&wide, true);
     run::<f64>(&wide, true);
 }
+
+/// A temperature range with a NaN end (a configuration built by hand, not
+/// through `RigFile::validate`) admits no reading, as a comparison with
+/// NaN would have it.
+#[test]
+fn a_nan_temperature_bound_admits_nothing() {
+    let mut config = RigConfig::default();
+    config.health.max_temperature_k = f64::NAN;
+    let mut m: Monitor<64> = Monitor::new(&config).unwrap();
+    assert_eq!(
+        m.push(&steady(0)),
+        Pushed::Invalid(Invalid::OutOfRange(Channel::Hot))
+    );
+    let mut m: Monitor<64, f64> = Monitor::new(&config).unwrap();
+    let s = Sample::<f64> {
+        t_ms: 0,
+        t_hot_k: 600.0,
+        t_cold_k: 300.0,
+        heat_in_w: 1000.0,
+        work_w: 150.0,
+        heat_out_w: None,
+        t_hot2_k: None,
+    };
+    assert_eq!(
+        m.push(&s),
+        Pushed::Invalid(Invalid::OutOfRange(Channel::Hot))
+    );
+}

@@ -116,6 +116,15 @@ impl<const N: usize, R: Real> Monitor<N, R> {
         let window_len = config.window_samples as usize;
         let to_ms = |s: f64| (s * 1000.0).clamp(0.0, u32::MAX as f64 / 2.0) as u32;
         let settings = FigureSettings::new(config);
+        // Finite bounds, not NaN: a reading inside them is finite (see
+        // `check`). A NaN bound leaves no reading inside.
+        let (t_min_k, t_max_k) = match (
+            finite_bound(R::from_f64(config.health.min_temperature_k)),
+            finite_bound(R::from_f64(config.health.max_temperature_k)),
+        ) {
+            (lo, hi) if lo.is_finite() && hi.is_finite() => (lo, hi),
+            _ => (R::MAX, -R::MAX),
+        };
         Ok(Self {
             settings,
             prepared: Prepared::new(&settings),
@@ -123,9 +132,8 @@ impl<const N: usize, R: Real> Monitor<N, R> {
             refresh_after: config.window_samples - 1,
             max_gap_ms: to_ms(config.max_gap_s),
             stale_ms: to_ms(config.health.stale_s),
-            // Finite bounds: a reading inside them is finite (see `check`).
-            t_min_k: finite_bound(R::from_f64(config.health.min_temperature_k)),
-            t_max_k: finite_bound(R::from_f64(config.health.max_temperature_k)),
+            t_min_k,
+            t_max_k,
             measured: None,
             hot2: None,
             prev_ms: None,
@@ -184,15 +192,14 @@ impl<const N: usize, R: Real> Monitor<N, R> {
 
     /// Why `s` cannot be integrated, if it cannot.
     fn check(&self, s: &Sample<R>) -> Result<(), Invalid> {
-        // The usual sample, told by six comparisons: the bounds are finite
-        // and NaN fails every comparison, so readings inside them are
-        // finite. Anything else is classified reading by reading.
+        // The usual sample, told by two range tests and two magnitude
+        // comparisons: the bounds are finite and a NaN passes none, so
+        // readings that pass are finite. Anything else (a test may refuse
+        // what is in fact fine) is classified reading by reading.
         let (lo, hi) = (self.t_min_k, self.t_max_k);
         let max_power = R::from_f32(MAX_POWER_W);
-        let usual = (s.t_hot_k >= lo)
-            & (s.t_hot_k <= hi)
-            & (s.t_cold_k >= lo)
-            & (s.t_cold_k <= hi)
+        let usual = s.t_hot_k.within(lo, hi)
+            & s.t_cold_k.within(lo, hi)
             & (s.heat_in_w.abs() <= max_power)
             & (s.work_w.abs() <= max_power);
         if !usual {
