@@ -70,6 +70,13 @@ pub trait Real:
     fn within(self, lo: Self, hi: Self) -> bool;
 }
 
+/// Whether floating point is done in software (an Armv6-M core, or any
+/// Arm core built for the soft-float ABI): a comparison is then a library
+/// call, and integer comparisons of the bits tell the same for less
+/// (`Real::is_positive`, `Real::less_not_nan`, `Real::within`). The FPU
+/// cores and the host keep the float comparison.
+const NO_FPU: bool = cfg!(all(target_arch = "arm", not(target_abi = "eabihf")));
+
 impl Real for f32 {
     const ZERO: Self = 0.0;
     const ONE: Self = 1.0;
@@ -121,46 +128,31 @@ impl Real for f32 {
     }
     #[inline]
     fn is_positive(self) -> bool {
-        // Without an FPU a comparison is a library call, and two integer
-        // comparisons of the bits tell the same.
-        #[cfg(all(target_arch = "arm", not(target_abi = "eabihf")))]
-        {
+        if NO_FPU {
             positive_by_bits(self)
-        }
-        #[cfg(not(all(target_arch = "arm", not(target_abi = "eabihf"))))]
-        {
+        } else {
             self > 0.0
         }
     }
     #[inline]
     fn less_not_nan(self, other: Self) -> bool {
-        #[cfg(all(target_arch = "arm", not(target_abi = "eabihf")))]
-        {
+        if NO_FPU {
             order_key(self) < order_key(other)
-        }
-        #[cfg(not(all(target_arch = "arm", not(target_abi = "eabihf"))))]
-        {
+        } else {
             self < other
         }
     }
     #[inline]
     fn within(self, lo: Self, hi: Self) -> bool {
-        #[cfg(all(target_arch = "arm", not(target_abi = "eabihf")))]
-        {
+        if NO_FPU {
             within_by_keys(self, lo, hi)
-        }
-        #[cfg(not(all(target_arch = "arm", not(target_abi = "eabihf"))))]
-        {
+        } else {
             (self >= lo) & (self <= hi)
         }
     }
 }
 
 /// `x > 0`, false for NaN, from the bits: above +0 and at most +∞.
-#[cfg_attr(
-    not(all(target_arch = "arm", not(target_abi = "eabihf"))),
-    allow(dead_code)
-)]
 #[inline]
 fn positive_by_bits(x: f32) -> bool {
     let bits = x.to_bits() as i32;
@@ -169,10 +161,6 @@ fn positive_by_bits(x: f32) -> bool {
 
 /// An integer in the order of `x` for every `x` but NaN (−0 just before
 /// +0): the bits, with the magnitude's bits flipped for a negative `x`.
-#[cfg_attr(
-    not(all(target_arch = "arm", not(target_abi = "eabihf"))),
-    allow(dead_code)
-)]
 #[inline]
 fn order_key(x: f32) -> i32 {
     let bits = x.to_bits() as i32;
@@ -182,10 +170,6 @@ fn order_key(x: f32) -> i32 {
 /// [`Real::within`] by [`order_key`]: a NaN's key lies beyond both
 /// infinities'. (−0 falls below a range from +0, which only sends such a
 /// reading the long way round; see `Monitor::check`.)
-#[cfg_attr(
-    not(all(target_arch = "arm", not(target_abi = "eabihf"))),
-    allow(dead_code)
-)]
 #[inline]
 fn within_by_keys(x: f32, lo: f32, hi: f32) -> bool {
     let k = order_key(x);

@@ -6,12 +6,18 @@ use heatbound::config::RigConfig;
 use heatbound::monitor::*;
 
 fn steady(t_ms: u32) -> Sample {
+    steady_in(t_ms)
+}
+
+/// [`steady`] in `R`.
+fn steady_in<R: heatbound::num::Real>(t_ms: u32) -> Sample<R> {
+    let r = R::from_f64;
     Sample {
         t_ms,
-        t_hot_k: 600.0,
-        t_cold_k: 300.0,
-        heat_in_w: 1000.0,
-        work_w: 150.0,
+        t_hot_k: r(600.0),
+        t_cold_k: r(300.0),
+        heat_in_w: r(1000.0),
+        work_w: r(150.0),
         heat_out_w: None,
         t_hot2_k: None,
     }
@@ -132,13 +138,9 @@ fn each_bad_reading_is_refused_with_its_reason() {
     fn run<R: heatbound::num::Real + core::fmt::Debug>(config: &RigConfig, wide: bool) {
         let r = R::from_f64;
         let good = |t_ms: u32| Sample::<R> {
-            t_ms,
-            t_hot_k: r(600.0),
-            t_cold_k: r(300.0),
-            heat_in_w: r(1000.0),
-            work_w: r(150.0),
             heat_out_w: Some(r(850.0)),
             t_hot2_k: Some(r(601.0)),
+            ..steady_in(t_ms)
         };
         let p = f64::from(MAX_POWER_W) * 2.0;
         let mut cases = std::vec![];
@@ -206,17 +208,8 @@ fn a_nan_temperature_bound_admits_nothing() {
         Pushed::Invalid(Invalid::OutOfRange(Channel::Hot))
     );
     let mut m: Monitor<64, f64> = Monitor::new(&config).unwrap();
-    let s = Sample::<f64> {
-        t_ms: 0,
-        t_hot_k: 600.0,
-        t_cold_k: 300.0,
-        heat_in_w: 1000.0,
-        work_w: 150.0,
-        heat_out_w: None,
-        t_hot2_k: None,
-    };
     assert_eq!(
-        m.push(&s),
+        m.push(&steady_in::<f64>(0)),
         Pushed::Invalid(Invalid::OutOfRange(Channel::Hot))
     );
 }
